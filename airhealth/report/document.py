@@ -1,0 +1,61 @@
+"""The building blocks of a written report: sections made of text, tables and figures.
+
+Report content is assembled as plain values (``Section`` holding ``Text``, ``Table`` and ``Figure`` blocks)
+by the functions that know the statistics; writers (HTML, and later LaTeX) only lay them out. This keeps
+each report section testable without writing any file.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import pandas as pd
+
+__all__ = ["CAUTION", "Figure", "Section", "Table", "Text"]
+
+CAUTION = (
+    "These results are statistical associations estimated from observational time series; they are not "
+    "proof of causation. They inform, but do not replace, expert review, local regulation and licensed "
+    "public-health practice."
+)
+
+
+@dataclass(frozen=True)
+class Text:
+    """A paragraph of plain text."""
+
+    text: str
+
+
+@dataclass(frozen=True)
+class Table:
+    """A table; ``name`` is the file stem used when the table is also written as CSV.
+
+    ``count_columns`` lists columns holding health counts, which writers suppress below the user's
+    disclosure threshold.
+    """
+
+    title: str
+    frame: pd.DataFrame
+    name: str
+    note: str | None = None
+    count_columns: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Figure:
+    """A matplotlib figure; ``name`` is the file stem of its PNG."""
+
+    title: str
+    figure: Any
+    name: str
+    note: str | None = None
+
+
+@dataclass(frozen=True)
+class Section:
+    """A titled section: an ordered list of ``Text``, ``Table`` and ``Figure`` blocks."""
+
+    title: str
+    blocks: list[Text | Table | Figure] = field(default_factory=list)
