@@ -1,0 +1,122 @@
+"""The invented Norhaven sample tables shipped with airhealth.
+
+Norhaven is a fictional city; its daily tables (2010-01-01 to 2023-12-31) are simulated by
+:func:`airhealth.simulate.simulate_city` with seed :data:`SAMPLE_SEED` and written by
+``sample_data/generate_sample.py``. The pollutant effects built into them are :data:`SAMPLE_TRUE_EFFECTS`.
+
+The pollution table has about 1.5 % missing values per pollutant and lacks the rows of one nine-day
+monitor outage; the counts and weather tables are complete. Aligning the three tables on a full daily
+calendar is left to the data-preparation layer.
+"""
+
+from __future__ import annotations
+
+from importlib.resources import files
+from pathlib import Path
+
+import pandas as pd
+
+from .errors import DataError
+from .simulate import TRUE_EFFECTS
+
+__all__ = [
+    "SAMPLE_END",
+    "SAMPLE_FILES",
+    "SAMPLE_SEED",
+    "SAMPLE_START",
+    "SAMPLE_TRUE_EFFECTS",
+    "load_sample_tables",
+    "sample_path",
+]
+
+#: Seed, first and last day used to generate the shipped tables.
+SAMPLE_SEED = 20261202
+SAMPLE_START = "2010-01-01"
+SAMPLE_END = "2023-12-31"
+
+#: Table name -> file name inside ``airhealth/data``.
+SAMPLE_FILES: dict[str, str] = {
+    "counts": "norhaven_counts.csv",
+    "pollution": "norhaven_pollution.csv",
+    "weather": "norhaven_weather.csv",
+}
+
+#: True pollutant effects in the sample tables (same object as ``airhealth.simulate.TRUE_EFFECTS``).
+SAMPLE_TRUE_EFFECTS = TRUE_EFFECTS
+
+_COLUMNS: dict[str, tuple[str, ...]] = {
+    "counts": ("date", "deaths_all", "admissions_respiratory", "admissions_cardiovascular"),
+    "pollution": ("date", "pm25", "pm10", "no2", "o3"),
+    "weather": ("date", "temperature", "humidity"),
+}
+
+
+def _data_directory() -> Path:
+    """Locate ``airhealth/data`` through importlib.resources, falling back to this module's directory.
+
+    The fallback covers namespace-package layouts (no ``airhealth/__init__.py``, or an editable install
+    whose search path includes a path hook), for which ``importlib.resources.files`` raises.
+    """
+    try:
+        return Path(str(files(__package__).joinpath("data")))
+    except (TypeError, NotADirectoryError, ModuleNotFoundError):
+        return Path(__file__).resolve().parent / "data"
+
+
+def sample_path(name: str) -> Path:
+    """Return the path of one shipped sample table.
+
+    Parameters
+    ----------
+    name : str
+        ``"counts"``, ``"pollution"`` or ``"weather"``, or the file name itself
+        (for example ``"norhaven_counts.csv"``).
+
+    Returns
+    -------
+    pathlib.Path
+        Location of the CSV file inside the installed package.
+
+    Raises
+    ------
+    DataError
+        If ``name`` is not one of the shipped tables, or the file is missing from the installation.
+    """
+    file_name = SAMPLE_FILES.get(name, name)
+    if file_name not in SAMPLE_FILES.values():
+        valid = ", ".join(repr(k) for k in SAMPLE_FILES)
+        raise DataError(f"sample table {name!r} does not exist; use one of {valid}.")
+    path = _data_directory() / file_name
+    if not path.is_file():
+        raise DataError(
+            f"sample file {path} is missing; reinstall airhealth or run sample_data/generate_sample.py."
+        )
+    return path
+
+
+def load_sample_tables() -> dict[str, pd.DataFrame]:
+    """Read the three Norhaven sample tables.
+
+    Returns
+    -------
+    dict of str to pandas.DataFrame
+        ``"counts"``: date, deaths_all, admissions_respiratory, admissions_cardiovascular (int64);
+        ``"pollution"``: date, pm25, pm10, no2, o3 (µg/m³, float, NaN where missing);
+        ``"weather"``: date, temperature (°C), humidity (%). ``date`` is ``datetime64[ns]`` in each.
+        Fresh frames are returned on every call.
+
+    Examples
+    --------
+    >>> tables = load_sample_tables()
+    >>> list(tables["weather"].columns)
+    ['date', 'temperature', 'humidity']
+    """
+    tables = {}
+    for key, columns in _COLUMNS.items():
+        path = sample_path(key)
+        frame = pd.read_csv(path, parse_dates=["date"], date_format="%Y-%m-%d")
+        if tuple(frame.columns) != columns:
+            raise DataError(f"{path.name} has columns {list(frame.columns)}; expected {list(columns)}.")
+        frame["date"] = frame["date"].astype("datetime64[ns]")
+        tables[key] = frame
+    return tables
