@@ -1,0 +1,512 @@
+"""Matrix-level GLM fitting engine: Poisson, quasi-Poisson and negative binomial with a log link.
+
+This module knows nothing about data frames or model terms: it takes a design matrix ``X``, counts ``y``,
+an optional offset and prior (frequency) weights, and returns a :class:`GLMFit`.
+
+The fit is iteratively reweighted least squares (IRLS) written in Newton form: at each iteration the
+information matrix ``X.T W X`` is formed with one BLAS ``syrk`` call on a preallocated ``n x p`` buffer,
+factorised by Cholesky, and the step ``(X.T W X)^-1 X.T (w (y - mu) mu / V(mu))`` is taken, halving it
+while the deviance increases or is not finite. Convergence is R's criterion
+``|dev - dev_old| / (|dev| + 0.1) <= tol``. At convergence the information matrix is formed once more at
+the final coefficients, so ``cov_unscaled`` is exact there.
+
+References
+----------
+McCullagh P, Nelder JA (1989). *Generalized Linear Models*, 2nd ed. Chapman & Hall, section 2.5.
+R Core Team. ``glm.fit`` in package stats (convergence criterion and starting values ``mu = y + 0.1``).
+Peng RD, Dominici F, Louis TA (2006). Model choice in time series studies of air pollution and
+mortality. *J R Stat Soc A* 169:179-203 (QAIC for quasi-Poisson models).
+"""
+
+from __future__ import annotations
+
+import warnings
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+from scipy.linalg import blas, lapack, qr, solve_triangular
+
+from .._choices import check_choice
+from ..errors import ConvergenceWarning, FitError, SpecificationError
+from .families import NegativeBinomial, Poisson, theta_ml, theta_moments
+
+__all__ = ["FamilyName", "GLMFit", "ThetaMethod", "fit_glm"]
+
+FamilyName = Literal["poisson", "quasipoisson", "negbin"]
+ThetaMethod = Literal["ml", "moments"]
+
+#: A column whose weighted squared norm is explained by the preceding columns up to this fraction
+#: (``1 - R^2`` below it) makes the design numerically rank-deficient.
+RANK_TOL = 1e-11
+MAX_HALVINGS = 40
+MAX_THETA_ROUNDS = 100
+
+
+@dataclass(frozen=True)
+class GLMFit:
+    """Result of a GLM fit with a log link.
+
+    Attributes
+    ----------
+    coef, cov_unscaled, cov, std_err
+        Coefficients, ``(X.T W X)^-1`` at the converged coefficients, ``dispersion * cov_unscaled`` and
+        the square roots of its diagonal.
+    fitted, linear_predictor
+        ``mu`` and ``eta = X coef + offset`` for every input row.
+    deviance, null_deviance, pearson_chi2
+        Deviance of the fit, of the intercept-only model with the same offset (of ``eta = offset`` when
+        the design has no constant column), and Pearson's statistic.
+    loglik
+        Full log-likelihood at the fit; for quasi-Poisson it is the Poisson log-likelihood.
+    n_obs, n_params, df_resid
+        Sum of the prior weights, number of coefficients, and ``n_obs - n_params``.
+    dispersion
+        Pearson chi-square over ``df_resid`` for quasi-Poisson, 1 otherwise.
+    theta, theta_estimated
+        Negative binomial shape (``None`` for the other families) and whether it was estimated.
+    """
+
+    coef: np.ndarray
+    cov_unscaled: np.ndarray
+    cov: np.ndarray
+    std_err: np.ndarray
+    fitted: np.ndarray
+    linear_predictor: np.ndarray
+    deviance: float
+    null_deviance: float
+    pearson_chi2: float
+    loglik: float
+    df_resid: float
+    n_obs: float
+    n_params: int
+    dispersion: float
+    n_iter: int
+    converged: bool
+    family: str
+    theta: float | None = None
+    theta_estimated: bool = False
+    n_step_halvings: int = 0
+    column_names: tuple[str, ...] | None = None
+
+    @property
+    def qaic(self) -> float:
+        """QAIC for quasi-Poisson, plain AIC for Poisson and negative binomial.
+
+        Quasi-Poisson: ``-2 loglik_Poisson / dispersion + 2 n_params`` (Peng, Dominici & Louis 2006).
+        Poisson: ``-2 loglik + 2 n_params``. Negative binomial: ``-2 loglik + 2 (n_params + 1)`` when
+        ``theta`` was estimated (theta counts as a parameter), ``+ 2 n_params`` when it was supplied.
+        """
+        if self.family == "quasipoisson":
+            return -2.0 * self.loglik / self.dispersion + 2.0 * self.n_params
+        return -2.0 * self.loglik + 2.0 * (self.n_params + int(self.theta_estimated))
+
+
+@dataclass
+class _State:
+    """Where an IRLS run ended."""
+
+    coef: np.ndarray
+    eta: np.ndarray
+    mu: np.ndarray
+    deviance: float
+    n_iter: int
+    converged: bool
+    n_halvings: int
+    last_change: float
+
+
+# ----------------------------------------------------------------------------------------- validation
+def _finite_or_raise(name: str, a: np.ndarray) -> None:
+    ok = np.isfinite(a)
+    if not ok.all():
+        bad = ~ok if a.ndim == 1 else ~ok.all(axis=1)
+        row = int(np.flatnonzero(bad)[0])
+        where = f"row {row}" if a.ndim == 1 else f"row {row}, column {int(np.flatnonzero(~ok[row])[0])}"
+        raise FitError(
+            f"{name} has a non-finite value (NaN or infinite) at {where}; remove or impute such rows "
+            "before fitting."
+        )
+
+
+def _as_vector(name: str, a, n: int, default: float) -> np.ndarray:
+    if a is None:
+        return np.full(n, default)
+    v = np.asarray(a, dtype=float)
+    if v.shape != (n,):
+        raise FitError(f"{name} has shape {v.shape} but the design has {n} rows; give one value per row.")
+    _finite_or_raise(name, v)
+    return v
+
+
+def _validate(X, y, offset, weights, column_names):
+    X = np.ascontiguousarray(X, dtype=float)
+    if X.ndim != 2:
+        raise FitError(f"The design matrix must be two-dimensional; got {X.ndim} dimension(s).")
+    n, p = X.shape
+    y = np.asarray(y, dtype=float)
+    if y.shape != (n,):
+        raise FitError(f"y has shape {y.shape} but the design matrix has {n} rows; give one count per row.")
+    _finite_or_raise("X", X)
+    _finite_or_raise("y", y)
+    if y.min(initial=0.0) < 0:
+        raise FitError(f"y has a negative value at row {int(np.argmin(y))}; counts must be >= 0.")
+    offset = _as_vector("offset", offset, n, 0.0)
+    weights = _as_vector("weights", weights, n, 1.0)
+    if weights.min(initial=0.0) < 0:
+        raise FitError(f"weights has a negative value at row {int(np.argmin(weights))}; use weights >= 0.")
+    used = int(np.count_nonzero(weights))
+    if used <= p or weights.sum() <= p:
+        raise FitError(
+            f"The model has {p} coefficients but only {used} rows with positive weight (weight total "
+            f"{weights.sum():g}); it needs more rows than coefficients. Use fewer terms or more days."
+        )
+    names = None
+    if column_names is not None:
+        names = tuple(str(c) for c in column_names)
+        if len(names) != p:
+            raise FitError(f"column_names has {len(names)} names but the design has {p} columns.")
+    return X, y, offset, weights, names
+
+
+def _validate_options(family, theta, theta_method, tol, max_iter):
+    check_choice("family", family, FamilyName)
+    check_choice("theta_method", theta_method, ThetaMethod)
+    if theta is not None:
+        if family != "negbin":
+            raise SpecificationError(f"theta is only used with family='negbin', not family={family!r}.")
+        if not (np.isfinite(theta) and theta > 0):
+            raise SpecificationError(f"theta={theta!r} must be a positive finite number.")
+    if not (tol > 0):
+        raise SpecificationError(f"tol={tol!r} must be positive.")
+    if int(max_iter) < 1:
+        raise SpecificationError(f"max_iter={max_iter!r} must be at least 1.")
+
+
+# --------------------------------------------------------------------------------- linear algebra core
+def _weighted_gram(X: np.ndarray, w: np.ndarray, buf: np.ndarray) -> np.ndarray:
+    """Upper triangle of ``X.T diag(w) X`` (Fortran order) by one ``syrk`` on ``buf``."""
+    np.multiply(X, np.sqrt(w)[:, None], out=buf)
+    return blas.dsyrk(1.0, buf.T, trans=0, lower=0)
+
+
+def _cholesky(info: np.ndarray, names, weighted_x) -> np.ndarray:
+    """Upper Cholesky factor of ``info``; a rank problem raises :class:`FitError` naming the columns.
+
+    ``weighted_x`` is a callable returning ``sqrt(W) X`` for the collinearity diagnosis.
+    """
+    diag = info.diagonal().copy()
+    c, status = lapack.dpotrf(info, lower=0, clean=1, overwrite_a=1)
+    if status == 0:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = c.diagonal() ** 2 / diag
+        if np.all(ratio > RANK_TOL):
+            return c
+    raise _collinearity_error(weighted_x(), names)
+
+
+def _column_label(j: int, names) -> str:
+    return repr(names[j]) if names is not None else f"column {j}"
+
+
+def _collinearity_error(M: np.ndarray, names) -> FitError:
+    """Name the collinear columns of ``M`` (the weighted design) using a pivoted QR."""
+    norms = np.sqrt(np.einsum("ij,ij->j", M, M))
+    zero = np.flatnonzero(norms <= 0)
+    if zero.size:
+        labels = ", ".join(_column_label(j, names) for j in zero)
+        return FitError(
+            f"The design matrix is rank-deficient: {labels} is zero on every row used (with positive "
+            "weight); drop it and refit."
+        )
+    R, piv = qr(M / norms, mode="r", pivoting=True, check_finite=False)
+    d = np.abs(np.diag(R))
+    rank = max(1, int(np.sum(d > np.sqrt(RANK_TOL) * d[0])))
+    rank = min(rank, M.shape[1] - 1)
+    coefs = solve_triangular(R[:rank, :rank], R[:rank, rank:])
+    parts = []
+    for k, j in enumerate(piv[rank:][:3]):
+        c = np.abs(coefs[:, k])
+        involved = piv[:rank][c > 1e-6 * max(c.max(), 1e-300)]
+        shown = ", ".join(_column_label(i, names) for i in involved[:8])
+        more = f" and {involved.size - 8} more" if involved.size > 8 else ""
+        parts.append(f"{_column_label(j, names)} is a linear combination of {shown}{more}")
+    extra = M.shape[1] - rank - 3
+    tail = f" ({extra} further redundant column(s))" if extra > 0 else ""
+    return FitError(
+        "The design matrix is rank-deficient (collinear columns): "
+        + "; ".join(parts)
+        + tail
+        + ". Drop one of the columns named in each group and refit."
+    )
+
+
+def _inverse_from_cholesky(c: np.ndarray) -> np.ndarray:
+    inv, status = lapack.dpotri(c, lower=0)
+    if status != 0:  # pragma: no cover - the factor passed the rank check
+        raise FitError("Could not invert the information matrix; the design is numerically singular.")
+    return np.triu(inv) + np.triu(inv, 1).T
+
+
+# ---------------------------------------------------------------------------------------------- IRLS
+def _eval(fam, X, coef, offset, y, w):
+    with np.errstate(over="ignore", invalid="ignore"):
+        eta = X @ coef + offset
+        mu = np.exp(eta)
+        dev = fam.deviance(y, mu, w)
+    return eta, mu, dev
+
+
+def _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf) -> _State:
+    """Newton-form IRLS with step halving; returns the final state (no warning issued here)."""
+
+    def weighted_x():
+        return buf
+
+    if start is None:
+        mu0 = y + 0.1
+        eta0 = np.log(mu0)
+        ww = fam.working_weights(mu0, w)
+        chol = _cholesky(_weighted_gram(X, ww, buf), names, weighted_x)
+        rhs = X.T @ (ww * (eta0 - offset) + fam.score_residuals(y, mu0, w))
+        coef = lapack.dpotrs(chol, rhs, lower=0)[0]
+        eta, mu, dev = _eval(fam, X, coef, offset, y, w)
+        if not np.isfinite(dev):
+            raise FitError("The first IRLS step gave non-finite fitted values; supply starting coefficients.")
+        dev_old = fam.deviance(y, mu0, w)
+        n_iter, change = 1, abs(dev - dev_old) / (abs(dev) + 0.1)
+    else:
+        coef = np.array(start, dtype=float)
+        eta, mu, dev = _eval(fam, X, coef, offset, y, w)
+        if not np.isfinite(dev):
+            raise FitError(
+                "The starting coefficients give non-finite fitted values; use other starting values."
+            )
+        n_iter, change = 0, np.inf
+    state = _State(coef, eta, mu, dev, n_iter, change <= tol, 0, change)
+    while not state.converged and state.n_iter < max_iter:
+        if not _newton_step(state, X, y, w, fam, tol, names, buf):
+            break
+    return state
+
+
+def _newton_step(s: _State, X, y, w, fam, tol, names, buf) -> bool:
+    """One halving-guarded Newton step, updating ``s`` in place; False when halving fails."""
+    chol = _cholesky(_weighted_gram(X, fam.working_weights(s.mu, w), buf), names, lambda: buf)
+    delta = lapack.dpotrs(chol, X.T @ fam.score_residuals(y, s.mu, w), lower=0)[0]
+    x_delta = X @ delta
+    t = 1.0
+    with np.errstate(over="ignore", invalid="ignore"):
+        for _ in range(MAX_HALVINGS):
+            eta = s.eta + t * x_delta
+            mu = np.exp(eta)
+            dev = fam.deviance(y, mu, w)
+            if np.isfinite(dev) and dev - s.deviance <= tol * (abs(s.deviance) + 0.1):
+                break
+            t *= 0.5
+            s.n_halvings += 1
+        else:
+            return False
+    s.coef = s.coef + t * delta
+    s.eta, s.mu = eta, mu
+    s.last_change = abs(dev - s.deviance) / (abs(dev) + 0.1)
+    s.deviance = dev
+    s.n_iter += 1
+    s.converged = s.last_change <= tol
+    return True
+
+
+def _warn_if_not_converged(s: _State, tol: float, what: str = "IRLS") -> None:
+    if not s.converged:
+        warnings.warn(
+            f"{what} stopped after {s.n_iter} iteration(s) without convergence: the last relative "
+            f"deviance change was {s.last_change:.3g} > tol={tol:g}. Increase max_iter, give better "
+            "starting values or simplify the model; results may be inaccurate.",
+            ConvergenceWarning,
+            stacklevel=3,
+        )
+
+
+# ------------------------------------------------------------------------------------------ summaries
+def intercept_column(X: np.ndarray) -> bool:
+    """Whether ``X`` has a constant non-zero column (checked cheaply on a few rows first)."""
+    head = X[: min(len(X), 32)]
+    cand = np.flatnonzero((X[0] != 0) & np.all(head == X[0], axis=0))
+    return any(np.all(X[:, j] == X[0, j]) for j in cand)
+
+
+def null_deviance(fam, y, w, offset, has_intercept: bool) -> float:
+    """Deviance of the intercept-only model with the offset (``eta = offset`` without intercept)."""
+    base = np.exp(offset)
+    if not has_intercept:
+        return fam.deviance(y, base, w)
+    a = np.log((w @ y) / (w @ base))  # exact for Poisson
+    if isinstance(fam, NegativeBinomial):
+        for _ in range(50):  # Newton on the intercept with theta fixed
+            mu = base * np.exp(a)
+            step = (fam.score_residuals(y, mu, w).sum()) / fam.working_weights(mu, w).sum()
+            a += step
+            if abs(step) < 1e-13:
+                break
+    return fam.deviance(y, base * np.exp(a), w)
+
+
+def summarise(
+    *,
+    coef,
+    eta,
+    mu,
+    info_chol,
+    y,
+    w,
+    offset,
+    fam,
+    family,
+    n_iter,
+    converged,
+    n_halvings,
+    names,
+    has_intercept,
+    theta_estimated=False,
+) -> GLMFit:
+    """Assemble a :class:`GLMFit` from a converged state and the Cholesky factor of the information."""
+    p = coef.size
+    n_obs = float(w.sum())
+    df_resid = n_obs - p
+    cov_unscaled = _inverse_from_cholesky(info_chol)
+    pearson = fam.pearson_chi2(y, mu, w)
+    dispersion = pearson / df_resid if family == "quasipoisson" else 1.0
+    cov = dispersion * cov_unscaled
+    return GLMFit(
+        coef=coef, cov_unscaled=cov_unscaled, cov=cov, std_err=np.sqrt(np.diag(cov)), fitted=mu,
+        linear_predictor=eta, deviance=fam.deviance(y, mu, w),
+        null_deviance=null_deviance(fam, y, w, offset, has_intercept), pearson_chi2=pearson,
+        loglik=fam.loglik(y, mu, w), df_resid=df_resid, n_obs=n_obs, n_params=p, dispersion=dispersion,
+        n_iter=n_iter, converged=converged, family=family,
+        theta=fam.theta if isinstance(fam, NegativeBinomial) else None, theta_estimated=theta_estimated,
+        n_step_halvings=n_halvings, column_names=names,
+    )  # fmt: skip
+
+
+# ------------------------------------------------------------------------------------------ public API
+def fit_glm(
+    X,
+    y,
+    *,
+    family: FamilyName = "quasipoisson",
+    offset=None,
+    weights=None,
+    start=None,
+    theta: float | None = None,
+    theta_method: ThetaMethod = "ml",
+    tol: float = 1e-10,
+    max_iter: int = 100,
+    column_names: Sequence[str] | None = None,
+) -> GLMFit:
+    """Fit a log-link GLM for counts by IRLS.
+
+    Parameters
+    ----------
+    X : array (n, p)
+        Design matrix (include the intercept column yourself).
+    y : array (n,)
+        Counts (validated by the caller; only non-negativity is checked here).
+    family : {"poisson", "quasipoisson", "negbin"}
+        Quasi-Poisson is the Poisson fit with dispersion ``pearson_chi2 / df_resid``; "negbin" is NB2,
+        ``Var(y) = mu + mu^2 / theta``, with dispersion 1.
+    offset, weights : array (n,), optional
+        Offset added to the linear predictor; prior frequency weights (a row with weight 2 is the
+        same as two identical rows; ``n_obs`` is the weight total).
+    start : array (p,), optional
+        Starting coefficients (warm start). Default: start from ``mu = y + 0.1`` as R's ``glm`` does.
+    theta : float, optional
+        Known negative binomial shape. When None with family "negbin" it is estimated by alternating
+        IRLS for the coefficients with a one-dimensional solve for theta until the relative change of
+        theta is at most ``100 * tol`` and the IRLS has converged: ``theta_method="ml"`` maximises the
+        profile likelihood, ``"moments"`` solves ``sum((y - mu)^2 / (mu + mu^2/theta)) = n - p``.
+    tol : float
+        Convergence when ``|dev - dev_old| / (|dev| + 0.1) <= tol``.
+    max_iter : int
+        Maximum IRLS iterations (per theta round for an estimated theta).
+    column_names : sequence of str, optional
+        Used in error messages and stored on the result.
+
+    Returns
+    -------
+    GLMFit
+
+    Raises
+    ------
+    FitError
+        Non-finite input (naming the argument and first bad row), shape mismatch, no more rows than
+        coefficients, or a rank-deficient design (naming the collinear columns).
+
+    Warns
+    -----
+    ConvergenceWarning
+        When the iteration limit is reached first.
+
+    References
+    ----------
+    McCullagh & Nelder (1989), section 2.5; Venables & Ripley (2002), *Modern Applied Statistics with S*,
+    section 7.4 (negative binomial with estimated theta); Breslow (1984), *Applied Statistics* 33:38-44
+    (moment estimator of theta).
+    """
+    _validate_options(family, theta, theta_method, tol, max_iter)
+    X, y, offset, w, names = _validate(X, y, offset, weights, column_names)
+    if start is not None:
+        start = _as_vector("start", start, X.shape[1], 0.0)
+    buf = np.empty_like(X)
+    theta_estimated = family == "negbin" and theta is None
+    if family != "negbin":
+        fam = Poisson()
+        state = _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf)
+        _warn_if_not_converged(state, tol)
+    elif theta is not None:
+        fam = NegativeBinomial(float(theta))
+        state = _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf)
+        _warn_if_not_converged(state, tol)
+    else:
+        fam, state = _fit_theta(X, y, w, offset, start, theta_method, tol, max_iter, names, buf)
+    eta = X @ state.coef + offset
+    with np.errstate(over="ignore"):
+        mu = np.exp(eta)
+    chol = _cholesky(_weighted_gram(X, fam.working_weights(mu, w), buf), names, lambda: buf)
+    return summarise(
+        coef=state.coef, eta=eta, mu=mu, info_chol=chol, y=y, w=w, offset=offset, fam=fam, family=family,
+        n_iter=state.n_iter, converged=state.converged, n_halvings=state.n_halvings, names=names,
+        has_intercept=intercept_column(X), theta_estimated=theta_estimated,
+    )  # fmt: skip
+
+
+def _fit_theta(X, y, w, offset, start, method, tol, max_iter, names, buf):
+    """Alternate IRLS for the coefficients and a 1-D solve for theta until both converge."""
+    df_resid = float(w.sum()) - X.shape[1]
+
+    def estimate(mu, previous):
+        if method == "ml":
+            return theta_ml(y, mu, w, start=previous)
+        return theta_moments(y, mu, w, df_resid)
+
+    state = _irls(X, y, w, offset, Poisson(), start, tol, max_iter, names, buf)
+    theta = estimate(state.mu, None)
+    total_iter, halvings = state.n_iter, state.n_halvings
+    converged = False
+    for _ in range(MAX_THETA_ROUNDS):
+        fam = NegativeBinomial(theta)
+        state = _irls(X, y, w, offset, fam, state.coef, tol, max_iter, names, buf)
+        total_iter, halvings = total_iter + state.n_iter, halvings + state.n_halvings
+        new_theta = estimate(state.mu, theta)
+        theta_change = abs(np.log(new_theta / theta))
+        theta = new_theta
+        if theta_change <= 100 * tol and state.converged:
+            converged = True
+            break
+    fam = NegativeBinomial(theta)
+    state = _irls(X, y, w, offset, fam, state.coef, tol, max_iter, names, buf)
+    state.n_iter += total_iter
+    state.n_halvings += halvings
+    state.converged = state.converged and converged
+    _warn_if_not_converged(state, tol, what="Negative binomial fit (IRLS alternating with theta)")
+    return fam, state
