@@ -1,0 +1,50 @@
+"""airhealth: short-term health effects of air pollution from daily time series.
+
+Results are statistical associations, not proof of causation; they inform but do not replace expert
+review, local regulation or licensed public-health practice.
+"""
+
+from .datasets import load_sample
+from .errors import (
+    AirhealthError,
+    AirhealthWarning,
+    ConvergenceWarning,
+    DataError,
+    DataWarning,
+    DispersionWarning,
+    FitError,
+    SpecificationError,
+)
+from .model.fitting import fit
+from .model.lag_structures import MovingAverage, SingleDay, parse_lag
+from .model.result import FitResult
+from .model.spec import ModelSpec
+from .model.terms import Categorical, Linear, Spline
+from .prep.align import align_daily
+from .sample import load_sample_tables
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "AirhealthError",
+    "AirhealthWarning",
+    "Categorical",
+    "ConvergenceWarning",
+    "DataError",
+    "DataWarning",
+    "DispersionWarning",
+    "FitError",
+    "FitResult",
+    "Linear",
+    "ModelSpec",
+    "MovingAverage",
+    "SingleDay",
+    "SpecificationError",
+    "Spline",
+    "__version__",
+    "align_daily",
+    "fit",
+    "load_sample",
+    "load_sample_tables",
+    "parse_lag",
+]

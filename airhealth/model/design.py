@@ -1,0 +1,167 @@
+"""From a validated daily frame and a :class:`ModelSpec` to the design matrix the engine fits.
+
+Design construction is split in two so that related fits share work: the confounder block (intercept,
+time, weather, calendar and user terms) depends only on the data and the confounder options, while the
+exposure block depends on the lag structure. :func:`build_confounders` is computed once per data set and
+reused by every lag structure in a comparison.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from ..errors import DataError, SpecificationError
+from ..prep.align import prepare_daily
+from ..prep.validate import check_counts, check_not_all_missing, require_columns
+from .spec import ModelSpec
+from .terms import TermBlock
+
+__all__ = ["ConfounderBlock", "Design", "build_confounders", "build_design", "model_frame"]
+
+INTERCEPT = "(intercept)"
+
+
+@dataclass(frozen=True)
+class ConfounderBlock:
+    """Confounder design columns on the full calendar, and the terms' fitted bases."""
+
+    matrix: np.ndarray
+    column_names: tuple[str, ...]
+    blocks: tuple[TermBlock, ...]
+    complete: np.ndarray  # rows where every confounder is available
+    first_missing: np.ndarray  # index into blocks of the first term missing on the row, -1 if none
+
+
+@dataclass(frozen=True)
+class Design:
+    """Everything the engine needs for one fit, plus the bookkeeping for the result.
+
+    ``matrix`` holds only the rows used; ``used`` marks them on the full calendar.
+    """
+
+    matrix: np.ndarray
+    response: np.ndarray
+    offset: np.ndarray | None
+    column_names: tuple[str, ...]
+    exposure_slice: slice
+    calendar: pd.DatetimeIndex
+    used: np.ndarray
+    dropped: pd.DataFrame
+    confounders: ConfounderBlock
+    exposure_values: np.ndarray  # exposure columns on the full calendar
+    exposure_raw: np.ndarray  # the daily exposure series on the full calendar
+
+    @property
+    def n_confounder_columns(self) -> int:
+        return self.exposure_slice.start
+
+
+def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
+    """Validate ``data`` for ``spec`` and return a copy on a complete daily calendar.
+
+    Checks the columns exist, dates parse and are daily, the outcome holds whole non-negative counts, and
+    neither outcome nor exposure is entirely missing. The caller's frame is not modified.
+    """
+    require_columns(data, [spec.date, *spec.columns_used()], "data")
+    frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date)
+    check_not_all_missing(frame[spec.outcome], spec.outcome, "outcome")
+    check_counts(frame[spec.outcome], spec.outcome, pd.DatetimeIndex(frame[spec.date]))
+    check_not_all_missing(frame[spec.exposure], spec.exposure, "exposure")
+    if not pd.api.types.is_numeric_dtype(frame[spec.exposure]):
+        raise DataError(
+            f"exposure column {spec.exposure!r} is not numeric (dtype {frame[spec.exposure].dtype})."
+        )
+    max_lag = spec.lag.max_lag
+    if max_lag >= len(frame) - 1:
+        raise SpecificationError(
+            f"lag {spec.lag.label} reaches back {max_lag} days but the series has only {len(frame)} days."
+        )
+    return frame
+
+
+def build_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
+    """Intercept plus every confounder term of ``spec`` on the full calendar of ``frame``."""
+    n = len(frame)
+    blocks = [TermBlock(INTERCEPT, np.ones((n, 1)), (INTERCEPT,))]
+    blocks += [term.build(frame, spec.date) for term in spec.confounder_terms()]
+    matrix = np.hstack([b.columns for b in blocks])
+    first_missing = np.full(n, -1)
+    for i in range(len(blocks) - 1, -1, -1):
+        first_missing[~np.isfinite(blocks[i].columns).all(axis=1)] = i
+    names = tuple(name for b in blocks for name in b.column_names)
+    if len(set(names)) != len(names):
+        dup = next(n for n in names if names.count(n) > 1)
+        raise SpecificationError(f"two model terms produce the column {dup!r}; remove the repeated term.")
+    return ConfounderBlock(matrix, names, tuple(blocks), first_missing < 0, first_missing)
+
+
+def _drop_reasons(
+    frame: pd.DataFrame,
+    spec: ModelSpec,
+    y: np.ndarray,
+    exposure: np.ndarray,
+    conf: ConfounderBlock,
+    offset: np.ndarray | None,
+) -> np.ndarray:
+    n = len(frame)
+    reasons = np.full(n, "", dtype=object)
+    raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
+    missing_x = ~np.isfinite(exposure).all(axis=1)
+    early = np.arange(n) < spec.lag.max_lag
+    for i, block in enumerate(conf.blocks):
+        reasons[(conf.first_missing == i) & (reasons == "")] = f"{block.name} missing"
+    if offset is not None:
+        reasons[~np.isfinite(offset)] = "offset missing"
+    reasons[missing_x & early & ~np.isnan(raw)] = "lag window starts before the first day"
+    reasons[missing_x & ~early] = "exposure missing in lag window"
+    reasons[missing_x & np.isnan(raw)] = "exposure missing"
+    reasons[~np.isfinite(y)] = "outcome missing"
+    return reasons
+
+
+def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBlock | None = None) -> Design:
+    """Assemble the design for ``spec`` on a frame from :func:`model_frame`.
+
+    Rows missing the outcome, any exposure lag or any confounder are left out and listed in ``dropped``
+    with the reason (the outcome first, then the exposure, then the first confounder term missing).
+    """
+    conf = confounders if confounders is not None else build_confounders(frame, spec)
+    raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
+    exposure = spec.lag.columns(raw)
+    y = frame[spec.outcome].to_numpy(dtype=float, na_value=np.nan)
+    offset = None if spec.offset is None else frame[spec.offset].to_numpy(dtype=float, na_value=np.nan)
+    reasons = _drop_reasons(frame, spec, y, exposure, conf, offset)
+    used = reasons == ""
+    calendar = pd.DatetimeIndex(frame[spec.date])
+    dropped = pd.DataFrame({"date": calendar[~used], "reason": reasons[~used].astype(str)})
+    names = conf.column_names + tuple(spec.lag.column_names(spec.exposure))
+    p = len(names)
+    n_used = int(used.sum())
+    if n_used <= p:
+        counts = dropped["reason"].value_counts()
+        detail = "; ".join(f"{k}: {v}" for k, v in counts.head(3).items())
+        raise DataError(
+            f"too few usable days ({n_used}) for a model with {p} parameters"
+            + (f" (days dropped — {detail})" if detail else "")
+            + "; use a longer series, fewer df per year or fewer terms."
+        )
+    matrix = np.empty((n_used, p))
+    k = conf.matrix.shape[1]
+    matrix[:, :k] = conf.matrix[used]
+    matrix[:, k:] = exposure[used]
+    return Design(
+        matrix=matrix,
+        response=y[used],
+        offset=None if offset is None else offset[used],
+        column_names=names,
+        exposure_slice=slice(k, p),
+        calendar=calendar,
+        used=used,
+        dropped=dropped,
+        confounders=conf,
+        exposure_values=exposure,
+        exposure_raw=raw,
+    )

@@ -1,0 +1,248 @@
+"""The result of a fit: immutable, holding everything inference and reporting need.
+
+The exposure term's per-lag coefficients are ``C θ`` (``C`` the lag basis, ``θ`` its coefficients) with
+covariance ``C V Cᵀ``; the cumulative (overall) effect is ``wᵀθ`` with ``w = Cᵀ1`` and SE
+``sqrt(wᵀ V w)`` — for a single lag or a moving average this is simply the one exposure coefficient.
+
+References
+----------
+Peng RD, Dominici F, Louis TA (2006). Model choice in time series studies of air pollution and mortality.
+J R Stat Soc A 169:179–203 (QAIC).
+Schwartz J (2000). The distributed lag between air pollution and daily deaths. Epidemiology 11:320–326.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Literal
+
+import numpy as np
+import pandas as pd
+
+from .._choices import check_choice
+from .spec import ModelSpec
+
+__all__ = ["FitResult"]
+
+EffectScale = Literal["unit", "iqr"]
+
+
+@dataclass(frozen=True)
+class FitResult:
+    """A fitted time-series model of daily counts.
+
+    Attributes
+    ----------
+    spec : ModelSpec
+        What was fitted.
+    coef : Series
+        All coefficients (log scale), by column name.
+    cov : DataFrame
+        Their covariance, scaled by the dispersion for quasi-Poisson.
+    dispersion : float
+        Pearson χ² / residual df for quasi-Poisson; 1 otherwise.
+    deviance, loglik, qaic : float
+        Residual deviance, Poisson (or negative binomial) log-likelihood, and QAIC (quasi-Poisson; AIC for
+        the other families).
+    df_resid : int
+        Residual degrees of freedom.
+    n_days : int
+        Days used in the fit.
+    dropped : DataFrame
+        Days of the calendar left out (``date``, ``reason``).
+    fitted, observed : Series
+        Fitted means and observed counts on the days used, indexed by date.
+    exposure_columns : tuple of str
+        Names of the exposure term's coefficients.
+    exposure_iqr : float
+        Interquartile range of the daily exposure on the days used (for effects per IQR).
+    """
+
+    spec: ModelSpec
+    coef: pd.Series
+    cov: pd.DataFrame
+    dispersion: float
+    deviance: float
+    loglik: float
+    qaic: float
+    df_resid: int
+    n_days: int
+    dropped: pd.DataFrame
+    fitted: pd.Series
+    observed: pd.Series
+    exposure_columns: tuple[str, ...]
+    exposure_iqr: float
+    converged: bool
+    n_iter: int
+    theta: float | None = None
+    bases: Any = None
+
+    # -- the exposure term -------------------------------------------------------------------------
+    @property
+    def std_err(self) -> pd.Series:
+        """Standard errors of all coefficients."""
+        return pd.Series(np.sqrt(np.diag(self.cov.to_numpy())), index=self.coef.index, name="std_err")
+
+    def _exposure_block(self) -> tuple[np.ndarray, np.ndarray]:
+        cols = list(self.exposure_columns)
+        return self.coef[cols].to_numpy(), self.cov.loc[cols, cols].to_numpy()
+
+    @property
+    def lag_basis(self) -> np.ndarray:
+        return self.spec.lag.basis()
+
+    @property
+    def exposure_coef(self) -> float:
+        """Cumulative log-RR per exposure unit (the single coefficient for a single lag or mean)."""
+        theta, _ = self._exposure_block()
+        return float(self.lag_basis.sum(axis=0) @ theta)
+
+    @property
+    def exposure_se(self) -> float:
+        """Standard error of :attr:`exposure_coef`."""
+        _, v = self._exposure_block()
+        w = self.lag_basis.sum(axis=0)
+        return float(np.sqrt(w @ v @ w))
+
+    def lag_coefficients(self) -> pd.DataFrame:
+        """Per-lag log-RR per unit, ``C θ``, with SEs from ``C V Cᵀ`` (one row per lag day)."""
+        theta, v = self._exposure_block()
+        c = self.lag_basis
+        return pd.DataFrame(
+            {"lag": self.spec.lag.lags, "coef": c @ theta, "se": np.sqrt(np.einsum("ij,jk,ik->i", c, v, c))}
+        )
+
+    def _per(self, per: float | None, scale: EffectScale) -> tuple[float, str]:
+        check_choice("scale", scale, EffectScale)
+        if scale == "iqr":
+            return self.exposure_iqr, f"IQR ({self.exposure_iqr:.3g})"
+        return (10.0 if per is None else float(per)), ""
+
+    def effect(self, per: float | None = 10.0, scale: EffectScale = "unit", level: float = 0.95) -> Any:
+        """Relative risk for an exposure increase of ``per`` units (or one IQR with ``scale="iqr"``).
+
+        Returns an :class:`~airhealth.report.effects.Effect` with ``rr``, ``rr_low``, ``rr_high``,
+        ``percent_change`` and ``p_value``; for distributed lags it is the cumulative effect.
+
+        Examples
+        --------
+        >>> import airhealth
+        >>> result = airhealth.fit(airhealth.load_sample(), outcome="deaths_all", exposure="pm25",
+        ...                        temperature="temperature")
+        >>> round(result.effect(per=10).rr, 3)  # doctest: +SKIP
+        1.01
+        """
+        from ..report.effects import relative_risk
+
+        amount, label = self._per(per, scale)
+        return relative_risk(
+            self.exposure_coef,
+            self.exposure_se,
+            per=amount,
+            level=level,
+            exposure=self.spec.exposure,
+            lag=self.spec.lag.label,
+            per_label=label,
+        )
+
+    def lag_effects(self, per: float = 10.0, level: float = 0.95) -> pd.DataFrame:
+        """Per-lag relative risks for an increase of ``per`` units (``lag, coef, se, rr, rr_low, rr_high``)."""
+        from ..report.effects import relative_risk
+
+        rows = []
+        for lag, coef, se in self.lag_coefficients().itertuples(index=False):
+            e = relative_risk(coef, se, per=per, level=level)
+            rows.append(
+                {
+                    "lag": int(lag),
+                    "coef": coef,
+                    "se": se,
+                    "rr": e.rr,
+                    "rr_low": e.rr_low,
+                    "rr_high": e.rr_high,
+                }
+            )
+        return pd.DataFrame(rows)
+
+    # -- views -------------------------------------------------------------------------------------
+    def to_dict(self, per: float = 10.0, level: float = 0.95) -> dict[str, Any]:
+        """The JSON record of the command line: effect, fit statistics and, for distributed lags, per lag."""
+        e = self.effect(per=per, level=level)
+        out: dict[str, Any] = {
+            "outcome": self.spec.outcome,
+            "exposure": self.spec.exposure,
+            "lag": self.spec.lag.label,
+            "per": e.per,
+            "coef": e.coef,
+            "se": e.se,
+            "rr": e.rr,
+            "rr_low": e.rr_low,
+            "rr_high": e.rr_high,
+            "percent_change": e.percent_change,
+            "p_value": e.p_value,
+            "dispersion": self.dispersion,
+            "qaic": self.qaic,
+            "deviance": self.deviance,
+            "df_resid": self.df_resid,
+            "n_days": self.n_days,
+            "n_dropped": len(self.dropped),
+            "family": self.spec.family,
+            "converged": self.converged,
+            "level": level,
+        }
+        if self.theta is not None:
+            out["theta"] = self.theta
+        if self.spec.lag.is_distributed:
+            out["lags"] = self.lag_effects(per=per, level=level).to_dict(orient="records")
+            out["cumulative"] = {k: out[k] for k in ("coef", "se", "rr", "rr_low", "rr_high")}
+        return out
+
+    def summary(self, per: float = 10.0, level: float = 0.95) -> pd.DataFrame:
+        """One-row tidy table of the exposure effect and fit statistics."""
+        d = self.to_dict(per=per, level=level)
+        keep = [
+            "outcome",
+            "exposure",
+            "lag",
+            "per",
+            "coef",
+            "se",
+            "rr",
+            "rr_low",
+            "rr_high",
+            "percent_change",
+            "p_value",
+            "dispersion",
+            "qaic",
+            "n_days",
+        ]
+        return pd.DataFrame([{k: d[k] for k in keep}])
+
+    def drop_summary(self) -> pd.Series:
+        """Number of calendar days dropped for each reason."""
+        return self.dropped["reason"].value_counts().rename("days")
+
+    def __repr__(self) -> str:
+        e = self.effect()
+        return (
+            f"<FitResult {self.spec.outcome} ~ {self.spec.exposure} lag {self.spec.lag.label} "
+            f"({self.spec.family}): RR per 10 = {e.rr:.4f} [{e.rr_low:.4f}, {e.rr_high:.4f}], "
+            f"dispersion {self.dispersion:.3f}, {self.n_days} days>"
+        )
+
+    def _repr_html_(self) -> str:
+        from ..report.tables import result_html
+
+        return result_html(self)
+
+    def plot_fit(self, ax: Any = None) -> Any:
+        """Observed daily counts and fitted means over time; returns the Axes."""
+        from ..report.plots import plot_observed_fitted
+
+        return plot_observed_fitted(self, ax=ax)
+
+    def plot_lags(self, per: float = 10.0, ax: Any = None) -> Any:
+        """Per-lag relative risks with intervals; returns the Axes."""
+        from ..report.plots import plot_lag_effects
+
+        return plot_lag_effects(self, per=per, ax=ax)

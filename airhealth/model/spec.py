@@ -1,0 +1,192 @@
+"""The model specification: a small, immutable, validated value saying what to fit.
+
+Every front end (``airhealth.fit``, ``airhealth.compare``, the command line) builds a :class:`ModelSpec`
+and hands it to the same engine, so defaults and their documentation live here and nowhere else.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from typing import Any, Literal
+
+from .._choices import check_choice
+from ..errors import SpecificationError
+from .lag_structures import LagStructure, parse_lag
+from .terms import DayOfWeek, FourierSeason, Linear, PublicHolidays, Spline, Term, TimeSpline
+
+__all__ = ["Family", "ModelSpec", "Seasonality"]
+
+Family = Literal["quasipoisson", "poisson", "negbin"]
+Seasonality = Literal["spline", "fourier"]
+ThetaMethod = Literal["ml", "moments"]
+
+
+@dataclass(frozen=True)
+class ModelSpec:
+    r"""What to fit: outcome, exposure and lag, and the confounder model.
+
+    The default model is the standard time-series model of daily counts
+
+    .. math::
+
+        \log E[Y_t] = \alpha + \beta\,x_t^{(\mathrm{lag})} + s(t) + s(T_t) + s(\bar T_{t-1..t-3})
+        + \mathrm{dow}_t\ [+\ \mathrm{holiday}_t]\ [+\ s(H_t)]
+
+    fitted as a quasi-Poisson GLM, where the smooths are natural cubic splines with
+    ``round(trend_df_per_year × years)`` df for time and ``temperature_df`` / ``temperature_lag_df`` df for
+    temperature and its mean over lags 1–3.
+
+    Parameters
+    ----------
+    outcome : str
+        Column of daily counts.
+    exposure : str
+        Column of the daily pollutant level (e.g. µg/m³).
+    lag : str or LagStructure
+        ``"0"``, ``"2"`` (single day), ``"0-1"`` (moving average), ``"dl0-5"``, ``"dl0-7:poly3"``,
+        ``"dl0-21:spline4"`` (distributed lags) or a lag-structure object.
+    date : str
+        Date column.
+    temperature : str or None
+        Daily mean temperature column; ``None`` for no temperature control.
+    temperature_df, temperature_lag_df : int
+        df of the splines of same-day temperature and of mean temperature over ``temperature_lags``.
+    temperature_lags : tuple of int or None
+        Lags averaged for the second temperature term (default ``(1, 3)``); ``None`` drops that term.
+    humidity : str or None
+        Relative humidity column, entered as a spline with ``humidity_df`` df.
+    seasonality : {"spline", "fourier"}
+        Seasonal and long-term control: a natural spline of time, or Fourier pairs plus a linear trend.
+    trend_df_per_year : float
+        df per year of the time spline (default 7).
+    fourier_pairs : int
+        Number of sine/cosine pairs per year when ``seasonality="fourier"``.
+    day_of_week : bool
+        Include day-of-week indicators.
+    holidays : str or None
+        ISO 3166 country code for a public-holiday indicator (e.g. ``"GB"``).
+    holiday_subdivision : str or None
+        Optional subdivision code for the holiday calendar.
+    confounders : sequence of str or Term
+        Further terms; a string is a column entered linearly, or use ``Spline(column, df)``,
+        ``Linear(column)``, ``Categorical(column)``.
+    family : {"quasipoisson", "poisson", "negbin"}
+        Error model; quasi-Poisson estimates the dispersion as Pearson χ² / residual df.
+    theta_method : {"ml", "moments"}
+        How the negative binomial θ is estimated.
+    offset : str or None
+        Column added to the linear predictor with coefficient 1 (e.g. log population).
+    tol : float
+        Convergence tolerance on the relative change in deviance (default 1e-10; strict, see Dominici
+        et al. 2002).
+    max_iter : int
+        Maximum IRLS iterations.
+
+    References
+    ----------
+    Bhaskaran K, et al. (2013). Time series regression studies in environmental epidemiology.
+    Int J Epidemiol 42:1187–1195.
+    Peng RD, Dominici F, Louis TA (2006). Model choice in time series studies of air pollution and
+    mortality. J R Stat Soc A 169:179–203.
+    Dominici F, McDermott A, Zeger SL, Samet JM (2002). On the use of generalized additive models in
+    time-series studies of air pollution and health. Am J Epidemiol 156:193–203.
+    """
+
+    outcome: str
+    exposure: str
+    lag: Any = "0-1"
+    date: str = "date"
+    temperature: str | None = None
+    temperature_df: int = 6
+    temperature_lags: tuple[int, int] | None = (1, 3)
+    temperature_lag_df: int = 6
+    humidity: str | None = None
+    humidity_df: int = 3
+    seasonality: Seasonality = "spline"
+    trend_df_per_year: float = 7.0
+    fourier_pairs: int = 4
+    day_of_week: bool = True
+    holidays: str | None = None
+    holiday_subdivision: str | None = None
+    confounders: tuple[Any, ...] = field(default_factory=tuple)
+    family: Family = "quasipoisson"
+    theta_method: ThetaMethod = "ml"
+    offset: str | None = None
+    tol: float = 1e-10
+    max_iter: int = 100
+
+    def __post_init__(self) -> None:
+        for name in ("outcome", "exposure", "date"):
+            if not isinstance(getattr(self, name), str) or not getattr(self, name):
+                raise SpecificationError(f"{name} must be a column name, got {getattr(self, name)!r}.")
+        object.__setattr__(self, "lag", parse_lag(self.lag))
+        check_choice("seasonality", self.seasonality, Seasonality)
+        check_choice("family", self.family, Family)
+        check_choice("theta_method", self.theta_method, ThetaMethod)
+        for name in ("temperature_df", "temperature_lag_df", "humidity_df", "max_iter"):
+            value = getattr(self, name)
+            if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+                raise SpecificationError(f"{name} must be a whole number >= 1, got {value!r}.")
+        if self.temperature_lags is not None:
+            object.__setattr__(self, "temperature_lags", tuple(self.temperature_lags))
+        if not (0 < self.tol < 1e-3):
+            raise SpecificationError(f"tol must be between 0 and 1e-3, got {self.tol!r}.")
+        terms = tuple(Linear(c) if isinstance(c, str) else c for c in self.confounders)
+        for term in terms:
+            if not isinstance(term, Term):
+                raise SpecificationError(
+                    f"confounder {term!r} is not a column name or a term (Spline, Linear, Categorical)."
+                )
+        object.__setattr__(self, "confounders", terms)
+        TimeSpline(self.trend_df_per_year)  # validates the value
+        if self.exposure == self.outcome:
+            raise SpecificationError(f"outcome and exposure are the same column, {self.outcome!r}.")
+
+    @classmethod
+    def from_options(cls, **options: Any) -> ModelSpec:
+        """Build a spec from keyword options, naming any unknown option and listing the valid ones."""
+        valid = {f.name for f in dataclasses.fields(cls)}
+        unknown = sorted(set(options) - valid)
+        if unknown:
+            raise SpecificationError(
+                f"unknown model option {unknown[0]!r}; valid options are: {', '.join(sorted(valid))}."
+            )
+        return cls(**options)
+
+    def replace(self, **changes: Any) -> ModelSpec:
+        """A copy with some fields changed (validated again)."""
+        return dataclasses.replace(self, **changes)
+
+    @property
+    def lag_structure(self) -> LagStructure:
+        return self.lag
+
+    def confounder_terms(self) -> tuple[Term, ...]:
+        """The confounder terms in design order (the intercept is added by the design builder)."""
+        terms: list[Term] = []
+        if self.seasonality == "spline":
+            terms.append(TimeSpline(self.trend_df_per_year))
+        else:
+            terms.append(FourierSeason(self.fourier_pairs))
+        if self.temperature is not None:
+            terms.append(Spline(self.temperature, self.temperature_df))
+            if self.temperature_lags is not None:
+                terms.append(Spline(self.temperature, self.temperature_lag_df, lags=self.temperature_lags))
+        if self.humidity is not None:
+            terms.append(Spline(self.humidity, self.humidity_df))
+        if self.day_of_week:
+            terms.append(DayOfWeek())
+        if self.holidays is not None:
+            terms.append(PublicHolidays(self.holidays, self.holiday_subdivision))
+        terms.extend(self.confounders)
+        return tuple(terms)
+
+    def columns_used(self) -> tuple[str, ...]:
+        """Every data column the model reads (outcome, exposure, confounders, offset)."""
+        cols = [self.outcome, self.exposure]
+        for term in self.confounder_terms():
+            cols.extend(term.inputs)
+        if self.offset:
+            cols.append(self.offset)
+        return tuple(dict.fromkeys(cols))

@@ -1,0 +1,148 @@
+"""Checks on user tables: columns present, dates parseable and daily, counts valid.
+
+Every check raises :class:`~airhealth.errors.DataError` with a message that names the column and the first
+offending dates or rows, and says what to do.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+
+import numpy as np
+import pandas as pd
+
+from ..errors import DataError
+
+__all__ = [
+    "check_counts",
+    "check_daily_dates",
+    "check_not_all_missing",
+    "parse_dates",
+    "require_columns",
+]
+
+_SHOW = 5
+
+
+def _listing(values: Sequence[object], total: int | None = None) -> str:
+    shown = ", ".join(str(v) for v in list(values)[:_SHOW])
+    total = len(values) if total is None else total
+    return shown + (f" (and {total - _SHOW} more)" if total > _SHOW else "")
+
+
+def _fmt_dates(dates: Iterable[pd.Timestamp]) -> list[str]:
+    return [pd.Timestamp(d).strftime("%Y-%m-%d") for d in dates]
+
+
+def require_columns(frame: pd.DataFrame, columns: Iterable[str | None], what: str = "data") -> None:
+    """Raise if any named column is absent from ``frame``; ``None`` entries are ignored."""
+    if not isinstance(frame, pd.DataFrame):
+        raise DataError(f"{what} must be a pandas DataFrame, got {type(frame).__name__}.")
+    missing = [c for c in columns if c is not None and c not in frame.columns]
+    if missing:
+        available = _listing([str(c) for c in frame.columns])
+        raise DataError(
+            f"column {missing[0]!r} does not exist in {what}; available columns: {available}. "
+            "Check the spelling or rename the column."
+        )
+
+
+def parse_dates(frame: pd.DataFrame, date: str, what: str = "data") -> pd.DatetimeIndex:
+    """Parse the ``date`` column of ``frame`` into a timezone-naive ``DatetimeIndex``.
+
+    Raises
+    ------
+    DataError
+        If the column is missing, holds missing values, or holds values that are not dates; the message
+        names the first bad rows and their values.
+    """
+    require_columns(frame, [date], what)
+    raw = frame[date]
+    if raw.isna().any():
+        rows = list(np.flatnonzero(raw.isna().to_numpy()))
+        raise DataError(
+            f"column {date!r} in {what} has missing dates at row(s) {_listing(rows)}; every row needs a date."
+        )
+    if pd.api.types.is_datetime64_any_dtype(raw):
+        parsed = pd.to_datetime(raw)
+    else:
+        parsed = pd.to_datetime(raw, errors="coerce", format="mixed")
+        bad = parsed.isna().to_numpy()
+        if bad.any():
+            rows = np.flatnonzero(bad)
+            examples = [f"row {r}: {raw.iloc[r]!r}" for r in rows[:_SHOW]]
+            more = f" (and {len(rows) - _SHOW} more)" if len(rows) > _SHOW else ""
+            raise DataError(
+                f"column {date!r} in {what} has values that are not dates: {', '.join(examples)}{more}. "
+                "Use ISO dates such as 2015-03-31."
+            )
+    index = pd.DatetimeIndex(parsed)
+    if index.tz is not None:
+        index = index.tz_localize(None)
+    return index
+
+
+def check_daily_dates(dates: pd.DatetimeIndex, date: str = "date", what: str = "data") -> None:
+    """Require one row per calendar day: midnight timestamps, no duplicates, daily steps (gaps allowed).
+
+    A gap (a step of several whole days) is legal: the calendar is completed later, with a warning.
+    Sub-daily timestamps or a series whose typical step is not one day are errors.
+    """
+    dup = dates[dates.duplicated()]
+    if len(dup):
+        raise DataError(
+            f"column {date!r} in {what} has duplicated dates: {_listing(_fmt_dates(dup.unique()))}. "
+            "Keep one row per day (aggregate or remove the duplicates)."
+        )
+    off_midnight = dates != dates.normalize()
+    if off_midnight.any():
+        first = dates[off_midnight][:_SHOW]
+        raise DataError(
+            f"column {date!r} in {what} is not daily: it has times of day, e.g. {', '.join(map(str, first))}. "
+            "Aggregate sub-daily data to daily values first (see airhealth.prep.hourly)."
+        )
+    if len(dates) > 2:
+        steps = np.diff(np.sort(dates.to_numpy())).astype("timedelta64[D]").astype(np.int64)
+        if np.median(steps) != 1:
+            raise DataError(
+                f"column {date!r} in {what} is not a daily series: the typical step between dates is "
+                f"{int(np.median(steps))} days. airhealth models daily data; supply one row per day."
+            )
+
+
+def check_counts(values: pd.Series, column: str, dates: pd.DatetimeIndex | None = None) -> None:
+    """Require non-negative whole numbers (missing values allowed) in a count column."""
+    if not (pd.api.types.is_numeric_dtype(values) or values.isna().all()):
+        raise DataError(
+            f"outcome column {column!r} is not numeric (dtype {values.dtype}); it must hold daily counts."
+        )
+    v = values.to_numpy(dtype=float, na_value=np.nan)
+    where = dates if dates is not None else pd.RangeIndex(len(v))
+
+    def _at(mask: np.ndarray) -> str:
+        idx = np.flatnonzero(mask)
+        labels = _fmt_dates(where[idx]) if dates is not None else [f"row {i}" for i in idx]
+        return _listing([f"{lab} ({v[i]:g})" for lab, i in zip(labels, idx, strict=False)], len(idx))
+
+    finite = np.isfinite(v)
+    if np.isinf(v).any():
+        raise DataError(f"outcome column {column!r} has infinite values at {_at(np.isinf(v))}.")
+    negative = finite & (v < 0)
+    if negative.any():
+        raise DataError(
+            f"outcome column {column!r} has negative counts at {_at(negative)}; counts must be >= 0."
+        )
+    fractional = finite & (v != np.round(v))
+    if fractional.any():
+        raise DataError(
+            f"outcome column {column!r} has non-integer counts at {_at(fractional)}; "
+            "the model needs whole daily counts (rates belong in an offset)."
+        )
+
+
+def check_not_all_missing(values: pd.Series, column: str, role: str) -> None:
+    """Raise if a column needed as ``role`` (exposure, outcome, ...) has no non-missing value."""
+    if values.isna().all():
+        raise DataError(
+            f"{role} column {column!r} is entirely missing; check the column or the merge that produced it."
+        )
