@@ -29,6 +29,9 @@ def atomic_path(path: str | os.PathLike[str]) -> Iterator[Path]:
     tmp = Path(tmp_name)
     try:
         yield tmp
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # mkstemp creates 0600; give the usual permissions
         os.replace(tmp, target)
     except BaseException:
         tmp.unlink(missing_ok=True)
