@@ -263,7 +263,7 @@ class DayOfWeek(Term):
         return "day of week"
 
     def build(self, frame: pd.DataFrame, date: str) -> TermBlock:
-        dow = pd.DatetimeIndex(frame[date]).dayofweek.to_numpy()
+        dow = pd.DatetimeIndex(frame[date]).day_of_week.to_numpy()
         cols = (dow[:, None] == np.arange(1, 7)[None, :]).astype(float)
         return TermBlock(self.name, cols, tuple(f"dow[{d}]" for d in WEEKDAY_NAMES[1:]))
 

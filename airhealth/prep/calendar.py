@@ -51,7 +51,7 @@ def _runs(days: pd.DatetimeIndex) -> list[tuple[pd.Timestamp, pd.Timestamp]]:
 def day_of_week(dates: pd.DatetimeIndex | pd.Series) -> pd.Categorical:
     """Day of week as an ordered categorical Mon..Sun."""
     idx = pd.DatetimeIndex(dates)
-    return pd.Categorical.from_codes(idx.dayofweek, categories=list(WEEKDAY_NAMES), ordered=True)
+    return pd.Categorical.from_codes(idx.day_of_week, categories=list(WEEKDAY_NAMES), ordered=True)
 
 
 def holiday_indicator(

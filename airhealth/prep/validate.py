@@ -40,7 +40,7 @@ def require_columns(frame: pd.DataFrame, columns: Iterable[str | None], what: st
         raise DataError(f"{what} must be a pandas DataFrame, got {type(frame).__name__}.")
     missing = [c for c in columns if c is not None and c not in frame.columns]
     if missing:
-        available = _listing([str(c) for c in frame.columns])
+        available = ", ".join(str(c) for c in frame.columns[:30]) + (" ..." if len(frame.columns) > 30 else "")
         raise DataError(
             f"column {missing[0]!r} does not exist in {what}; available columns: {available}. "
             "Check the spelling or rename the column."
