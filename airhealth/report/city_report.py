@@ -41,6 +41,19 @@ def _model_text(spec: Any, n_calendar: int) -> str:
     return "; ".join(parts) + ". Relative risks are per 10 µg/m³ with 95% Wald intervals."
 
 
+def _forest_figures(table: pd.DataFrame) -> list[Figure]:
+    """One forest plot per outcome, rows labelled by pollutant and lag."""
+    figures = []
+    for outcome, rows in table.groupby("outcome", sort=False):
+        labels = [f"{r.exposure} · lag {r.lag}" for r in rows.itertuples()]
+        ax = plot_effects(rows, labels=labels, per_label="10 µg/m³")
+        ax.set_title(str(outcome))
+        figures.append(
+            Figure(f"{outcome}: relative risks per 10 µg/m³ with 95% intervals", ax.figure, f"effects_forest_{outcome}")
+        )
+    return figures
+
+
 def city_sections(
     data: pd.DataFrame,
     outcomes: Sequence[str],
@@ -72,7 +85,7 @@ def city_sections(
                     "moving average of the days shown).",
                 ),
                 Table("Estimates (full precision)", table, "effects_full"),
-                Figure("Relative risks per 10 µg/m³ with 95% intervals", plot_effects(table).figure, "effects_forest"),
+                *_forest_figures(table),
             ],
         ),
         Section(
