@@ -1,0 +1,40 @@
+"""The README and CI script agree, and the README example is real code."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def _bash_blocks(text: str) -> list[str]:
+    return re.findall(r"```bash\n(.*?)```", text, flags=re.S)
+
+
+def test_ci_runs_the_readme_test_command() -> None:
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    test_commands = [b.strip() for b in _bash_blocks(readme) if "pytest" in b]
+    assert test_commands, "README has no test command"
+    ci = (ROOT / ".ci" / "run").read_text(encoding="utf-8")
+    assert test_commands[0] in ci.splitlines()
+
+
+def test_readme_demo_command_runs_the_demo() -> None:
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    assert any("airhealth demo" in b for b in _bash_blocks(readme))
+
+
+def test_readme_first_paragraph_states_the_job() -> None:
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    first = readme.split("\n\n")[1]
+    for phrase in ("air pollution", "relative risks per 10 µg/m³", "quasi-Poisson"):
+        assert phrase in first.replace("\n", " ")
+
+
+def test_readme_and_reports_carry_the_caution() -> None:
+    from airhealth.report.document import CAUTION
+
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    assert "not proof of causation" in readme
+    assert "not proof of causation" in CAUTION
