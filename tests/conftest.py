@@ -1,0 +1,30 @@
+"""Shared test fixtures: the Norhaven sample data and access to Rscript."""
+
+from __future__ import annotations
+
+import shutil
+
+import pandas as pd
+import pytest
+
+import airhealth
+
+
+@pytest.fixture(scope="session")
+def _sample_once() -> pd.DataFrame:
+    return airhealth.load_sample()
+
+
+@pytest.fixture
+def sample(_sample_once: pd.DataFrame) -> pd.DataFrame:
+    """The aligned Norhaven sample (a fresh deep copy per test, so tests cannot leak changes)."""
+    return _sample_once.copy(deep=True)
+
+
+@pytest.fixture(scope="session")
+def rscript() -> str:
+    """Path of Rscript; skips the test when base R is not installed."""
+    path = shutil.which("Rscript")
+    if path is None:
+        pytest.skip("Rscript is not on PATH: live cross-checks against base R skipped (frozen values still tested)")
+    return path
