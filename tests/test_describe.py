@@ -70,3 +70,40 @@ def test_table_one_hand_example_and_errors():
         table_one(frame, ["x", "t"])
     with pytest.raises(SpecificationError, match="method='kendall'"):
         correlation_matrix(frame, ["x"], method="kendall")
+
+
+def test_data_quality_section_blocks_and_plots():
+    import matplotlib.pyplot as plt  # only to check that pyplot's global state is left alone
+
+    from airhealth.report.data_quality_section import data_quality_section, hourly_quality_section
+    from airhealth.report.document import Figure, Section, Table
+    from airhealth.report.exposure_plots import plot_exposure_series
+
+    daily = AIR.assign(date=pd.to_datetime({"year": 1973, "month": AIR["Month"], "day": AIR["Day"]}))
+    before = plt.get_fignums()
+    section = data_quality_section(daily, COLUMNS, exposures=["Ozone"], correlation_method="spearman")
+    assert isinstance(section, Section)
+    tables = [b for b in section.blocks if isinstance(b, Table)]
+    figures = [b for b in section.blocks if isinstance(b, Figure)]
+    assert [t.name for t in tables] == ["table_one", "correlations_spearman"]
+    assert tables[0].frame.set_index("variable").loc["Ozone", "n"] == 116
+    assert len(figures) == 2 and plt.get_fignums() == before
+    # ax given: drawn there and returned
+    fig = plt.figure()
+    try:
+        ax = fig.add_subplot()
+        assert plot_exposure_series(daily, "Temp", ax=ax) is ax and len(ax.lines) == 2
+    finally:
+        plt.close(fig)
+
+    from airhealth.prep.hourly import aggregate_daily
+    from airhealth.prep.hourly_input import clean_hourly
+
+    hours = pd.date_range("2022-01-01", periods=24 * 40, freq="h")
+    hourly = pd.DataFrame({"time": hours, "site": "A", "v": np.where(np.arange(len(hours)) < 30, np.nan, 1.0)})
+    clean = clean_hourly(hourly, time="time", value="v", monitor="site")
+    quality = hourly_quality_section(clean, aggregate_daily(clean, name="v"), value="v")
+    names = [b.name for b in quality.blocks if isinstance(b, Table)]
+    assert names == ["hourly_coverage", "days_lost", "longest_gaps"]
+    lost = quality.blocks[1].frame
+    assert lost.to_dict("records") == [{"monitor": "A", "reason": "no data", "days": 1, "share": 0.025}]
