@@ -103,7 +103,7 @@ def hourly_quality_section(
     blocks: list = [
         Table("Hours with a value, per monitor and year", coverage.round(3), name="hourly_coverage"),
         Table("Days lost to each completeness rule", lost.round(3), name="days_lost", note=rule_note),
-        Table(f"Longest gaps (up to {n_gaps} per monitor)", gaps.round(2), name="longest_gaps"),
+        Table(f"Longest gaps (up to {n_gaps} per monitor)", gaps.round({"days": 2}), name="longest_gaps"),
         Figure("Share of hours present by month", plot_coverage(clean).figure, name="hourly_coverage"),
         Figure(
             "Daily values per monitor",
