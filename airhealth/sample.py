@@ -25,6 +25,7 @@ __all__ = [
     "SAMPLE_SEED",
     "SAMPLE_START",
     "SAMPLE_TRUE_EFFECTS",
+    "load_sample_hourly",
     "load_sample_tables",
     "sample_path",
 ]
@@ -39,6 +40,7 @@ SAMPLE_FILES: dict[str, str] = {
     "counts": "norhaven_counts.csv",
     "pollution": "norhaven_pollution.csv",
     "weather": "norhaven_weather.csv",
+    "hourly_no2": "norhaven_hourly_no2.csv",
 }
 
 #: True pollutant effects in the sample tables (same object as ``airhealth.simulate.TRUE_EFFECTS``).
@@ -88,9 +90,7 @@ def sample_path(name: str) -> Path:
         raise DataError(f"sample table {name!r} does not exist; use one of {valid}.")
     path = _data_directory() / file_name
     if not path.is_file():
-        raise DataError(
-            f"sample file {path} is missing; reinstall airhealth or run sample_data/generate_sample.py."
-        )
+        raise DataError(f"sample file {path} is missing; reinstall airhealth or run sample_data/generate_sample.py.")
     return path
 
 
@@ -120,3 +120,13 @@ def load_sample_tables() -> dict[str, pd.DataFrame]:
         frame["date"] = frame["date"].astype("datetime64[ns]")
         tables[key] = frame
     return tables
+
+
+def load_sample_hourly() -> pd.DataFrame:
+    """Invented hourly NO2 (ppb) at Norhaven's three monitors, 2022–2023, with outages.
+
+    Columns ``time`` (start of the hour, local standard time, text ``YYYY-MM-DD HH:MM``), ``monitor`` and
+    ``no2_ppb``, as written by ``sample_data/generate_hourly.py``; feed it to
+    :func:`airhealth.prep.hourly_input.clean_hourly`.
+    """
+    return pd.read_csv(sample_path("hourly_no2"))

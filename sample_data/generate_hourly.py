@@ -23,6 +23,7 @@ from airhealth._io import write_with
 
 SEED = 20240605
 OUT = Path(__file__).with_name("norhaven_hourly_no2.csv")
+PACKAGE_COPY = Path(__file__).resolve().parents[1] / "airhealth" / "data" / OUT.name
 # monitor id: (log mean level, rush-hour amplitude, own-noise SD)
 MONITORS = {"NHC": (2.65, 0.45, 0.25), "NHH": (3.05, 0.60, 0.30), "NHP": (2.10, 0.30, 0.30)}
 OUTAGES = {  # (first day, days) of multi-day failures, rows absent
@@ -79,8 +80,9 @@ def simulate(seed: int = SEED) -> pd.DataFrame:
 
 def main() -> None:
     data = simulate()
-    write_with(OUT, lambda tmp: data.to_csv(tmp, index=False, date_format="%Y-%m-%d %H:%M"))
-    print(f"wrote {OUT} ({len(data)} rows, {OUT.stat().st_size / 1e6:.2f} MB)")
+    for path in (OUT, PACKAGE_COPY):
+        write_with(path, lambda tmp: data.to_csv(tmp, index=False, date_format="%Y-%m-%d %H:%M"))
+        print(f"wrote {path} ({len(data)} rows, {path.stat().st_size / 1e6:.2f} MB)")
 
 
 if __name__ == "__main__":

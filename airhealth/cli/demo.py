@@ -32,6 +32,19 @@ def register(sub: Any) -> None:
     p.set_defaults(func=run)
 
 
+def hourly_section() -> Any:
+    """The monitoring-data section of the demo: Norhaven's hourly NO2 at three monitors, EU 24-h rule."""
+    from ..prep.hourly import aggregate_daily, validity_rule
+    from ..prep.hourly_input import clean_hourly
+    from ..report.data_quality_section import hourly_quality_section
+    from ..sample import load_sample_hourly
+
+    clean = clean_hourly(load_sample_hourly(), time="time", value="no2_ppb", monitor="monitor")
+    daily = aggregate_daily(clean, statistic="mean", convention="eu", name="no2_ppb")
+    rule = validity_rule("mean", "eu")
+    return hourly_quality_section(clean, daily, value="no2_ppb", rule_note=rule.source)
+
+
 def run(args: argparse.Namespace) -> int:
     """Run the demo; returns the exit code."""
     import matplotlib
@@ -51,6 +64,7 @@ def run(args: argparse.Namespace) -> int:
         temperature="temperature",
         title="Norhaven (invented city): short-term effects of air pollution, 2010–2023",
         small_count_threshold=args.suppress_below,
+        extra_sections=[hourly_section()],
     )
     import pandas as pd
 

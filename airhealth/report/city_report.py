@@ -144,9 +144,11 @@ def write_city_report(
     title: str = "Short-term effects of air pollution",
     small_count_threshold: int | None = None,
     show_progress: bool = True,
+    extra_sections: Sequence[Section] = (),
     **model_options: Any,
 ) -> tuple[Path, pd.DataFrame]:
     """Fit, build and write the one-city report; returns the path of ``index.html`` and the effects table."""
     sections, table = city_sections(data, outcomes, exposures, lags, show_progress=show_progress, **model_options)
+    sections = [*sections, *extra_sections]
     path = write_html_report(sections, out_dir, title=title, small_count_threshold=small_count_threshold)
     return path, table
