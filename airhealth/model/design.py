@@ -9,6 +9,7 @@ reused by every lag structure in a comparison.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -53,6 +54,7 @@ class Design:
     confounders: ConfounderBlock
     exposure_values: np.ndarray  # exposure columns on the full calendar
     exposure_raw: np.ndarray  # the daily exposure series on the full calendar
+    lag: Any = None  # the lag structure as fitted (a cross-basis bound to the exposure), if it differs
 
     @property
     def n_confounder_columns(self) -> int:
@@ -130,14 +132,16 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     """
     conf = confounders if confounders is not None else build_confounders(frame, spec)
     raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
-    exposure = spec.lag.columns(raw)
+    # an exposure-response term (crossbasis.CrossBasis) learns its knots from the whole exposure series
+    lag = spec.lag.bind(raw, spec.exposure) if hasattr(spec.lag, "bind") else spec.lag
+    exposure = lag.columns(raw)
     y = frame[spec.outcome].to_numpy(dtype=float, na_value=np.nan)
     offset = None if spec.offset is None else frame[spec.offset].to_numpy(dtype=float, na_value=np.nan)
     reasons = _drop_reasons(frame, spec, y, exposure, conf, offset)
     used = reasons == ""
     calendar = pd.DatetimeIndex(frame[spec.date])
     dropped = pd.DataFrame({"date": calendar[~used], "reason": reasons[~used].astype(str)})
-    names = conf.column_names + tuple(spec.lag.column_names(spec.exposure))
+    names = conf.column_names + tuple(lag.column_names(spec.exposure))
     p = len(names)
     n_used = int(used.sum())
     if n_used <= p:
@@ -164,4 +168,5 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         confounders=conf,
         exposure_values=exposure,
         exposure_raw=raw,
+        lag=None if lag is spec.lag else lag,
     )

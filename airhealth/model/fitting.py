@@ -67,6 +67,8 @@ def _warn_suspicious(design: Design, spec: ModelSpec, glm: GLMFit) -> None:
 
 def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
     """Package an engine fit and its design into a :class:`FitResult`."""
+    if design.lag is not None:  # keep the lag structure as fitted (e.g. a cross-basis with its knots)
+        spec = spec.replace(lag=design.lag)
     names = list(design.column_names)
     dates = design.calendar[design.used]
     as_entered = design.exposure_values.shape[1] == 1 and not spec.lag.is_distributed

@@ -223,6 +223,12 @@ class FitResult:
         return self.dropped["reason"].value_counts().rename("days")
 
     def __repr__(self) -> str:
+        if getattr(self.spec.lag, "is_nonlinear", False):  # no per-unit effect (crossbasis.CrossBasis)
+            return (
+                f"<FitResult {self.spec.outcome} ~ {self.spec.exposure} [{self.spec.lag.label}] "
+                f"({self.spec.family}): non-linear exposure-response, dispersion {self.dispersion:.3f}, "
+                f"{self.n_days} days>"
+            )
         e = self.effect()
         return (
             f"<FitResult {self.spec.outcome} ~ {self.spec.exposure} lag {self.spec.lag.label} "
@@ -230,7 +236,9 @@ class FitResult:
             f"dispersion {self.dispersion:.3f}, {self.n_days} days>"
         )
 
-    def _repr_html_(self) -> str:
+    def _repr_html_(self) -> str | None:
+        if getattr(self.spec.lag, "is_nonlinear", False):
+            return None  # notebooks fall back to the text repr
         from ..report.tables import result_html
 
         return result_html(self)
