@@ -42,6 +42,8 @@ ThetaMethod = Literal["ml", "moments"]
 RANK_TOL = 1e-11
 MAX_HALVINGS = 40
 MAX_THETA_ROUNDS = 100
+#: Refresh the information matrix when a step's predicted decrease exceeds this fraction of the last.
+REFRESH_RATIO = 0.05
 
 
 @dataclass(frozen=True)
@@ -105,16 +107,19 @@ class GLMFit:
 
 @dataclass
 class _State:
-    """Where an IRLS run ended."""
+    """Where an IRLS run is (or ended)."""
 
     coef: np.ndarray
     eta: np.ndarray
     mu: np.ndarray
     deviance: float
-    n_iter: int
-    converged: bool
-    n_halvings: int
-    last_change: float
+    n_iter: int = 0
+    converged: bool = False
+    n_halvings: int = 0
+    last_change: float = np.inf
+    chol: np.ndarray | None = None  # Cholesky factor in use (upper)
+    fresh: bool = False  # whether `chol` is the exact information at the current coefficients
+    n_factorisations: int = 0
 
 
 # ----------------------------------------------------------------------------------------- validation
@@ -125,8 +130,7 @@ def _finite_or_raise(name: str, a: np.ndarray) -> None:
         row = int(np.flatnonzero(bad)[0])
         where = f"row {row}" if a.ndim == 1 else f"row {row}, column {int(np.flatnonzero(~ok[row])[0])}"
         raise FitError(
-            f"{name} has a non-finite value (NaN or infinite) at {where}; remove or impute such rows "
-            "before fitting."
+            f"{name} has a non-finite value (NaN or infinite) at {where}; remove or impute such rows before fitting."
         )
 
 
@@ -259,53 +263,86 @@ def _eval(fam, X, coef, offset, y, w):
 
 
 def _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf) -> _State:
-    """Newton-form IRLS with step halving; returns the final state (no warning issued here)."""
+    """IRLS in Newton form with lazily refreshed information; see :func:`fit_glm` for the scheme.
 
-    def weighted_x():
-        return buf
-
+    On return ``s.chol`` is the exact information factor at the returned coefficients' predecessor and
+    the coefficients have had one polishing Newton step (when converged). No warning is issued here.
+    """
     if start is None:
         mu0 = y + 0.1
         eta0 = np.log(mu0)
         ww = fam.working_weights(mu0, w)
-        chol = _cholesky(_weighted_gram(X, ww, buf), names, weighted_x)
+        chol = _cholesky(_weighted_gram(X, ww, buf), names, lambda: buf)
         rhs = X.T @ (ww * (eta0 - offset) + fam.score_residuals(y, mu0, w))
         coef = lapack.dpotrs(chol, rhs, lower=0)[0]
         eta, mu, dev = _eval(fam, X, coef, offset, y, w)
         if not np.isfinite(dev):
             raise FitError("The first IRLS step gave non-finite fitted values; supply starting coefficients.")
         dev_old = fam.deviance(y, mu0, w)
-        n_iter, change = 1, abs(dev - dev_old) / (abs(dev) + 0.1)
+        s = _State(coef, eta, mu, dev, n_iter=1, chol=chol, n_factorisations=1)
+        s.last_change = abs(dev - dev_old) / (abs(dev) + 0.1)
     else:
         coef = np.array(start, dtype=float)
         eta, mu, dev = _eval(fam, X, coef, offset, y, w)
         if not np.isfinite(dev):
-            raise FitError(
-                "The starting coefficients give non-finite fitted values; use other starting values."
-            )
-        n_iter, change = 0, np.inf
-    state = _State(coef, eta, mu, dev, n_iter, change <= tol, 0, change)
-    while not state.converged and state.n_iter < max_iter:
-        if not _newton_step(state, X, y, w, fam, tol, names, buf):
-            break
-    return state
+            raise FitError("The starting coefficients give non-finite fitted values; use other starting values.")
+        s = _State(coef, eta, mu, dev)
+    g = _iterate(s, X, y, w, fam, tol, max_iter, names, buf)
+    if not s.fresh:
+        _refresh(s, X, w, fam, names, buf)
+    if s.converged:  # polish: one exact Newton step with the exact information
+        s.coef = s.coef + lapack.dpotrs(s.chol, g, lower=0)[0]
+        s.eta, s.mu, s.deviance = _eval(fam, X, s.coef, offset, y, w)
+    return s
 
 
-def _newton_step(s: _State, X, y, w, fam, tol, names, buf) -> bool:
-    """One halving-guarded Newton step, updating ``s`` in place; False when halving fails."""
-    chol = _cholesky(_weighted_gram(X, fam.working_weights(s.mu, w), buf), names, lambda: buf)
-    delta = lapack.dpotrs(chol, X.T @ fam.score_residuals(y, s.mu, w), lower=0)[0]
+def _refresh(s: _State, X, w, fam, names, buf) -> None:
+    s.chol = _cholesky(_weighted_gram(X, fam.working_weights(s.mu, w), buf), names, lambda: buf)
+    s.fresh = True
+    s.n_factorisations += 1
+
+
+def _iterate(s: _State, X, y, w, fam, tol, max_iter, names, buf) -> np.ndarray:
+    """Run steps until convergence or ``max_iter``; return the score at the final coefficients."""
+    q_prev = np.inf
+    while True:
+        if s.chol is None:
+            _refresh(s, X, w, fam, names, buf)
+        g = X.T @ fam.score_residuals(y, s.mu, w)
+        delta = lapack.dpotrs(s.chol, g, lower=0)[0]
+        q = float(delta @ g)  # predicted deviance decrease (exact for a fresh factor)
+        if s.last_change <= tol and q <= tol * tol * (abs(s.deviance) + 0.1):
+            s.converged = True
+            return g
+        if s.n_iter >= max_iter:
+            return g
+        if not _line_search(s, X, y, w, fam, delta, tol):
+            if s.fresh:
+                return g  # no descent even along the exact Newton direction: stop, not converged
+            _refresh(s, X, w, fam, names, buf)  # stale factor: refresh and retry
+            continue
+        s.fresh = False
+        if q > REFRESH_RATIO * q_prev:  # slow progress with this factor: use the exact one next
+            s.chol = None
+        q_prev = q
+
+
+def _line_search(s: _State, X, y, w, fam, delta, tol) -> bool:
+    """Take ``delta`` (halved while the deviance rises or is not finite); False if that fails.
+
+    With a stale factor a rise is reported at once (False) so the caller can refresh the factor.
+    """
     x_delta = X @ delta
     t = 1.0
     with np.errstate(over="ignore", invalid="ignore"):
-        for _ in range(MAX_HALVINGS):
+        for _ in range(MAX_HALVINGS if s.fresh else 1):
             eta = s.eta + t * x_delta
             mu = np.exp(eta)
             dev = fam.deviance(y, mu, w)
             if np.isfinite(dev) and dev - s.deviance <= tol * (abs(s.deviance) + 0.1):
                 break
             t *= 0.5
-            s.n_halvings += 1
+            s.n_halvings += int(s.fresh)
         else:
             return False
     s.coef = s.coef + t * delta
@@ -313,7 +350,6 @@ def _newton_step(s: _State, X, y, w, fam, tol, names, buf) -> bool:
     s.last_change = abs(dev - s.deviance) / (abs(dev) + 0.1)
     s.deviance = dev
     s.n_iter += 1
-    s.converged = s.last_change <= tol
     return True
 
 
@@ -469,12 +505,9 @@ def fit_glm(
         _warn_if_not_converged(state, tol)
     else:
         fam, state = _fit_theta(X, y, w, offset, start, theta_method, tol, max_iter, names, buf)
-    eta = X @ state.coef + offset
-    with np.errstate(over="ignore"):
-        mu = np.exp(eta)
-    chol = _cholesky(_weighted_gram(X, fam.working_weights(mu, w), buf), names, lambda: buf)
     return summarise(
-        coef=state.coef, eta=eta, mu=mu, info_chol=chol, y=y, w=w, offset=offset, fam=fam, family=family,
+        coef=state.coef, eta=state.eta, mu=state.mu, info_chol=state.chol, y=y, w=w, offset=offset,
+        fam=fam, family=family,
         n_iter=state.n_iter, converged=state.converged, n_halvings=state.n_halvings, names=names,
         has_intercept=intercept_column(X), theta_estimated=theta_estimated,
     )  # fmt: skip

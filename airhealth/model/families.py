@@ -122,9 +122,7 @@ def _theta_score(log_theta: float, y: np.ndarray, mu: np.ndarray, w: np.ndarray)
     return float(t * d1), float(t * d1 + t * t * d2)
 
 
-def theta_ml(
-    y: np.ndarray, mu: np.ndarray, w: np.ndarray, start: float | None = None, tol: float = 1e-12
-) -> float:
+def theta_ml(y: np.ndarray, mu: np.ndarray, w: np.ndarray, start: float | None = None, tol: float = 1e-12) -> float:
     """Maximum-likelihood NB2 shape ``theta`` for fixed means ``mu``.
 
     Newton's method on ``log(theta)`` started from the moment estimate ``n / sum(w (y/mu - 1)^2)``
