@@ -40,8 +40,10 @@ SAMPLE_FILES: dict[str, str] = {
     "counts": "norhaven_counts.csv",
     "pollution": "norhaven_pollution.csv",
     "weather": "norhaven_weather.csv",
-    "hourly_no2": "norhaven_hourly_no2.csv",
 }
+
+#: Hourly sample tables (written by ``sample_data/generate_hourly.py``).
+HOURLY_FILES: dict[str, str] = {"hourly_no2": "norhaven_hourly_no2.csv"}
 
 #: True pollutant effects in the sample tables (same object as ``airhealth.simulate.TRUE_EFFECTS``).
 SAMPLE_TRUE_EFFECTS = TRUE_EFFECTS
@@ -71,7 +73,7 @@ def sample_path(name: str) -> Path:
     Parameters
     ----------
     name : str
-        ``"counts"``, ``"pollution"`` or ``"weather"``, or the file name itself
+        ``"counts"``, ``"pollution"``, ``"weather"`` or ``"hourly_no2"``, or the file name itself
         (for example ``"norhaven_counts.csv"``).
 
     Returns
@@ -84,9 +86,10 @@ def sample_path(name: str) -> Path:
     DataError
         If ``name`` is not one of the shipped tables, or the file is missing from the installation.
     """
-    file_name = SAMPLE_FILES.get(name, name)
-    if file_name not in SAMPLE_FILES.values():
-        valid = ", ".join(repr(k) for k in SAMPLE_FILES)
+    known = {**SAMPLE_FILES, **HOURLY_FILES}
+    file_name = known.get(name, name)
+    if file_name not in known.values():
+        valid = ", ".join(repr(k) for k in known)
         raise DataError(f"sample table {name!r} does not exist; use one of {valid}.")
     path = _data_directory() / file_name
     if not path.is_file():
