@@ -90,7 +90,7 @@ def relative_risk(
     --------
     >>> e = relative_risk(0.001, 0.0004, per=10)
     >>> round(e.rr, 6), round(e.rr_low, 6), round(e.rr_high, 6)
-    (1.01005, 1.002091, 1.018072)
+    (1.01005, 1.002162, 1.018)
     """
     if not np.isfinite(per) or per <= 0:
         raise SpecificationError(f"per must be a positive number of exposure units, got {per!r}.")
