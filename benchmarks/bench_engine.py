@@ -8,7 +8,10 @@ Run with ``/work/venv/bin/python benchmarks/bench_engine.py [--repeats N]``. Pri
 * a 12-structure lag grid through :func:`airhealth.model.grid_engine.fit_with_exposure`, against 12
   statsmodels fits and 12 cold ``fit_glm`` fits,
 
-and the ratios between them, plus what threadpoolctl reports about the BLAS in use. The data are
+and the ratios between them, plus what threadpoolctl reports about the BLAS in use. By default everything
+runs with one BLAS thread (``--default-threads`` keeps the library's own setting): on small shared machines
+a second BLAS thread does not speed up these ``n x p^2`` products and slows everything down badly when the
+cores are busy. The data are
 invented (the fictional city of Norhaven): smooth seasonal counts with mean about 30, over-dispersed by
 a gamma multiplier, and a log-normal particulate series with 3% missing days.
 """
@@ -26,6 +29,7 @@ import statsmodels.api as sm
 from scipy.linalg import cho_factor, cho_solve
 from threadpoolctl import threadpool_info
 
+from airhealth._threads import single_threaded_blas
 from airhealth.model.engine import fit_glm
 from airhealth.model.grid_engine import fit_confounders, fit_with_exposure
 
@@ -101,7 +105,20 @@ def median_time(fn, repeats: int) -> float:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeats", type=int, default=7)
+    parser.add_argument(
+        "--default-threads",
+        action="store_true",
+        help="keep the BLAS thread count as found (default: one BLAS thread, see airhealth._threads)",
+    )
     args = parser.parse_args()
+    if args.default_threads:
+        run(args)
+    else:
+        with single_threaded_blas():
+            run(args)
+
+
+def run(args) -> None:
     Z, pm, y = norhaven_design()
     structures = lag_structures(pm)
     X = np.column_stack([Z, np.nan_to_num(lag(pm, 1))])[1:]

@@ -20,6 +20,7 @@ mortality. *J R Stat Soc A* 169:179-203 (QAIC for quasi-Poisson models).
 
 from __future__ import annotations
 
+import threading
 import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -122,8 +123,28 @@ class _State:
     n_factorisations: int = 0
 
 
+_WORKSPACE = threading.local()
+
+
+def workspace(key: str, shape: tuple[int, int]) -> np.ndarray:
+    """A reusable per-thread ``float64`` buffer of ``shape`` (contents undefined).
+
+    Fresh multi-megabyte arrays are served by the operating system page by page and the page faults
+    cost more than a ``syrk`` on them, so the ``n x p`` work buffers are kept (one per key and thread;
+    the largest size requested so far).
+    """
+    size = int(shape[0]) * int(shape[1])
+    flat = getattr(_WORKSPACE, key, None)
+    if flat is None or flat.size < size:
+        flat = np.empty(size)
+        setattr(_WORKSPACE, key, flat)
+    return flat[:size].reshape(shape)
+
+
 # ----------------------------------------------------------------------------------------- validation
 def _finite_or_raise(name: str, a: np.ndarray) -> None:
+    if np.isfinite(a.sum()):  # a finite sum implies every element is finite (no temporary array)
+        return
     ok = np.isfinite(a)
     if not ok.all():
         bad = ~ok if a.ndim == 1 else ~ok.all(axis=1)
@@ -493,7 +514,7 @@ def fit_glm(
     X, y, offset, w, names = _validate(X, y, offset, weights, column_names)
     if start is not None:
         start = _as_vector("start", start, X.shape[1], 0.0)
-    buf = np.empty_like(X)
+    buf = workspace("design", X.shape)
     theta_estimated = family == "negbin" and theta is None
     if family != "negbin":
         fam = Poisson()

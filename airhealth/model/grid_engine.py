@@ -51,6 +51,7 @@ from .engine import (
     fit_glm,
     intercept_column,
     summarise,
+    workspace,
 )
 from .families import NegativeBinomial, Poisson
 
@@ -127,7 +128,7 @@ def fit_confounders(
     w = np.ones(n) if weights is None else np.asarray(weights, dtype=float)
     fam = NegativeBinomial(fit.theta) if family == "negbin" else Poisson()
     w0 = fam.working_weights(fit.fitted, w)
-    upper = _weighted_gram(Zc, w0, np.empty_like(Zc))
+    upper = _weighted_gram(Zc, w0, workspace("design", Zc.shape))
     info = np.triu(upper) + np.triu(upper, 1).T
     return ConfounderFit(
         fit=fit, Z=Zc, y=np.asarray(y, dtype=float), offset=off, weights=w, working_weights=w0, info=info,
@@ -186,7 +187,7 @@ def _approximate_hessian(base: ConfounderFit, Ef: np.ndarray, rows: np.ndarray) 
             D = Z[excluded] * np.sqrt(w0[excluded])[:, None]
             A -= blas.dsyrk(1.0, D.T, trans=0, lower=0)  # upper triangle is what dpotrf reads
     else:
-        A = _weighted_gram(Z, w0 * rows, np.empty_like(Z))
+        A = _weighted_gram(Z, w0 * rows, workspace("grid", Z.shape))
     WE = (w0 * rows)[:, None] * Ef
     pc, k = A.shape[0], Ef.shape[1]
     H = np.empty((pc + k, pc + k), order="F")
@@ -272,7 +273,7 @@ def _finish(base, coef, Ef, rows, pw, fam, n_iter, names) -> GLMFit:
         mu_all = np.exp(eta_all)
     # rows outside `rows` have zero weight, so the full-row product equals the restricted one
     sw = np.sqrt(fam.working_weights(mu_all, pw))
-    buf = np.empty((Z.shape[0], coef.size))
+    buf = workspace("grid", (Z.shape[0], coef.size))
     np.multiply(Z, sw[:, None], out=buf[:, :pc])
     np.multiply(Ef, sw[:, None], out=buf[:, pc:])
     info = blas.dsyrk(1.0, buf.T, trans=0, lower=0)
