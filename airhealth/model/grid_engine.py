@@ -46,13 +46,13 @@ from .engine import (
     GLMFit,
     ThetaMethod,
     _cholesky,
-    _finite_or_raise,
     _weighted_gram,
     fit_glm,
     intercept_column,
     summarise,
     workspace,
 )
+from .engine_checks import finite_or_raise
 from .families import NegativeBinomial, Poisson
 
 __all__ = ["ConfounderFit", "fit_confounders", "fit_many", "fit_with_exposure"]
@@ -150,7 +150,7 @@ def _exposure_inputs(base: ConfounderFit, E, rows, column_names):
     if rows.dtype != bool or rows.shape != (n,):
         raise FitError(f"rows must be a boolean mask of length {n}; got dtype {rows.dtype}, shape {rows.shape}.")
     Ef = np.where(rows[:, None], E, 0.0)
-    _finite_or_raise("E (on the rows marked usable)", Ef)
+    finite_or_raise("E (on the rows marked usable)", Ef)
     pc, k = base.Z.shape[1], E.shape[1]
     if column_names is not None:
         enames = tuple(str(c) for c in column_names)
