@@ -16,7 +16,7 @@ import pandas as pd
 
 from ..errors import DataError, SpecificationError
 from ..prep.align import prepare_daily
-from ..prep.validate import check_counts, check_not_all_missing, require_columns
+from ..prep.validate import check_counts, check_finite, check_not_all_missing, require_columns
 from .spec import ModelSpec
 from .terms import TermBlock
 
@@ -76,6 +76,7 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
         raise DataError(
             f"exposure column {spec.exposure!r} is not numeric (dtype {frame[spec.exposure].dtype})."
         )
+    check_finite(frame, spec.columns_used(), pd.DatetimeIndex(frame[spec.date]))
     max_lag = spec.lag.max_lag
     if max_lag >= len(frame) - 1:
         raise SpecificationError(

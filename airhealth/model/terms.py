@@ -132,6 +132,8 @@ class Spline(Term):
 
     def build(self, frame: pd.DataFrame, date: str) -> TermBlock:
         x = _series(frame, self.column, self.lags)
+        if not np.isfinite(x).any():
+            raise DataError(f"column {self.column!r} is entirely missing; it cannot enter the model as a spline.")
         if np.unique(x[np.isfinite(x)]).size <= self.df and self.knots is None:
             raise DataError(
                 f"column {self.column!r} has too few distinct values for a spline with {self.df} df; "

@@ -6,6 +6,7 @@ offending dates or rows, and says what to do.
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Iterable, Sequence
 
 import numpy as np
@@ -16,6 +17,7 @@ from ..errors import DataError
 __all__ = [
     "check_counts",
     "check_daily_dates",
+    "check_finite",
     "check_not_all_missing",
     "parse_dates",
     "require_columns",
@@ -66,7 +68,7 @@ def parse_dates(frame: pd.DataFrame, date: str, what: str = "data") -> pd.Dateti
     if pd.api.types.is_datetime64_any_dtype(raw):
         parsed = pd.to_datetime(raw)
     else:
-        parsed = pd.to_datetime(raw, errors="coerce", format="mixed")
+        parsed = _parse_one_format(raw)
         bad = parsed.isna().to_numpy()
         if bad.any():
             rows = np.flatnonzero(bad)
@@ -74,12 +76,44 @@ def parse_dates(frame: pd.DataFrame, date: str, what: str = "data") -> pd.Dateti
             more = f" (and {len(rows) - _SHOW} more)" if len(rows) > _SHOW else ""
             raise DataError(
                 f"column {date!r} in {what} has values that are not dates: {', '.join(examples)}{more}. "
-                "Use ISO dates such as 2015-03-31."
+                "Use ISO dates such as 2015-03-31, in one format for the whole column."
             )
     index = pd.DatetimeIndex(parsed)
     if index.tz is not None:
         index = index.tz_localize(None)
     return index
+
+
+def _parse_one_format(raw: pd.Series) -> pd.Series:
+    """Parse dates as ISO 8601, else in the one format pandas infers from the first value.
+
+    Every value must share that format. (Element-wise "mixed" parsing would read 02/01/2010 as
+    February 1 but 13/01/2010 as January 13, silently reordering day-first dates.) Unparseable values
+    become NaT for the caller to report.
+    """
+    iso = pd.to_datetime(raw, errors="coerce", format="ISO8601")
+    if iso.notna().all():
+        return iso
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)  # "could not infer format": reported as bad rows
+        inferred = pd.to_datetime(raw, errors="coerce")
+    return inferred if inferred.notna().sum() > iso.notna().sum() else iso
+
+
+def check_finite(frame: pd.DataFrame, columns: Iterable[str], dates: pd.DatetimeIndex, what: str = "data") -> None:
+    """Raise if a numeric column holds infinite values (missing values are allowed and handled later)."""
+    for column in columns:
+        values = frame[column]
+        if not pd.api.types.is_numeric_dtype(values) or pd.api.types.is_bool_dtype(values):
+            continue
+        v = values.to_numpy(dtype=float, na_value=np.nan)
+        infinite = np.isinf(v)
+        if infinite.any():
+            at = _listing(_fmt_dates(dates[np.flatnonzero(infinite)]), int(infinite.sum()))
+            raise DataError(
+                f"column {column!r} in {what} has infinite values on {at}; "
+                "replace them by a valid number or leave the day missing (NaN)."
+            )
 
 
 def check_daily_dates(dates: pd.DatetimeIndex, date: str = "date", what: str = "data") -> None:
