@@ -52,6 +52,8 @@ __all__ = [
     "parse_distributed_lag",
 ]
 
+DEFAULT_SPLINE_DF = 4  # df of a spline lag when neither df nor knots are given
+
 
 def _whole(value: object) -> bool:
     return isinstance(value, int | np.integer) and not isinstance(value, bool)
@@ -164,7 +166,8 @@ class SplineLag(DistributedLag):
     first, last : int
         Lag range in days (``0 <= first < last``).
     df : int or None
-        Number of parameters (basis columns, constant included): ``2 <= df <= number of lags``. ``df - 2``
+        Number of parameters (basis columns, constant included): ``2 <= df <= number of lags``; default 4
+        (when no knots are given). ``df - 2``
         interior knots are placed equally spaced over ``first..last`` (or on the log scale, below).
     log_knots : bool
         Space the interior knots equally on the scale ``log(1 + lag - first)`` (denser at short lags).
@@ -181,7 +184,7 @@ class SplineLag(DistributedLag):
 
     first: int = 0
     last: int = 21
-    df: int | None = 4
+    df: int | None = None
     log_knots: bool = False
     knots: tuple[float, ...] | None = None
 
@@ -193,6 +196,8 @@ class SplineLag(DistributedLag):
         if self.knots is not None:
             self._check_knots()
             return
+        if self.df is None:
+            object.__setattr__(self, "df", DEFAULT_SPLINE_DF)
         if not _whole(self.df) or self.df < 2:  # type: ignore[operator]
             raise SpecificationError(
                 f"spline lag over {self.first}-{self.last}: df must be a whole number >= 2 "
