@@ -15,6 +15,7 @@ from .errors import (
     FitError,
     SpecificationError,
 )
+from .model.compare import compare
 from .model.fitting import fit
 from .model.lag_structures import MovingAverage, SingleDay, parse_lag
 from .model.result import FitResult
@@ -43,6 +44,7 @@ __all__ = [
     "Spline",
     "__version__",
     "align_daily",
+    "compare",
     "fit",
     "load_sample",
     "load_sample_tables",
