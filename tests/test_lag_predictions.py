@@ -1,0 +1,219 @@
+"""Predictions from fitted lag terms: per-lag and cumulative effects with B V Bᵀ intervals, exposure–response
+curves against a reference, and the exposure of lowest cumulative risk."""
+
+from __future__ import annotations
+
+import json
+import warnings
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from airhealth.errors import DataWarning, SpecificationError
+from airhealth.model.crossbasis import CrossBasis, CrossBasisTerm, LinearResponse, SplineResponse
+from airhealth.model.fitting import fit
+from airhealth.model.lag_predictions import (
+    exposure_response,
+    find_lag_term,
+    lag_response,
+    minimum_risk_exposure,
+)
+from airhealth.simulate import MINIMUM_MORTALITY_TEMPERATURE
+
+Z95 = 1.959963984540054
+TEMPERATURE_TERM = CrossBasisTerm("temperature", SplineResponse(df=4), "dl0-21:spline4")
+
+
+@pytest.fixture(scope="module")
+def dl_fit(_sample_once):
+    return fit(_sample_once, "deaths_all", "pm25", lag="dl0-21:spline4", temperature="temperature")
+
+
+@pytest.fixture(scope="module")
+def temperature_confounder_fit(_sample_once):
+    return fit(_sample_once, "deaths_all", "pm25", lag="dl0-5", confounders=[TEMPERATURE_TERM])
+
+
+@pytest.fixture(scope="module")
+def temperature_exposure_fit(_sample_once):
+    lag = CrossBasis(SplineResponse(df=4), "dl0-21:spline4")
+    return fit(_sample_once, "deaths_all", "temperature", lag=lag)
+
+
+# --------------------------------------------------------------------------- linear distributed lags
+
+
+def test_linear_cumulative_and_per_lag_effects_match_the_result(dl_fit):
+    cum = exposure_response(dl_fit, at=[10.0], reference=0.0).iloc[0]
+    e = dl_fit.effect(per=10)
+    assert cum["rr"] == pytest.approx(e.rr, rel=1e-12)
+    assert cum["rr_low"] == pytest.approx(e.rr_low, rel=1e-12)
+    assert cum["se"] == pytest.approx(10 * e.se, rel=1e-12)
+    per_lag = exposure_response(dl_fit, at=[10.0], per_lag=True)
+    table = dl_fit.lag_effects(per=10)
+    np.testing.assert_allclose(per_lag["rr"], table["rr"], rtol=1e-12)
+    np.testing.assert_allclose(per_lag["rr_high"], table["rr_high"], rtol=1e-12)
+    assert per_lag["lag"].tolist() == list(range(22))
+    pd.testing.assert_frame_equal(lag_response(dl_fit, per=10), table)
+
+
+def test_cumulative_se_is_the_b_v_bt_form(dl_fit):
+    # Delta method for a linear combination (exact here): var(1ᵀ C θ) = (Cᵀ1)ᵀ V (Cᵀ1).
+    cols = list(dl_fit.exposure_columns)
+    v = dl_fit.cov.loc[cols, cols].to_numpy()
+    c = dl_fit.spec.lag.basis()
+    w = c.sum(axis=0)
+    row = exposure_response(dl_fit, at=[1.0], reference=0.0).iloc[0]
+    assert row["se"] == pytest.approx(np.sqrt(w @ v @ w), rel=1e-12)
+    assert row["rr_high"] == pytest.approx(np.exp(row["coef"] + Z95 * row["se"]), rel=1e-12)
+    per_lag = exposure_response(dl_fit, at=[1.0], reference=0.0, per_lag=True)
+    np.testing.assert_allclose(per_lag["se"], np.sqrt(np.diag(c @ v @ c.T)), rtol=1e-12)
+    assert per_lag["coef"].sum() == pytest.approx(row["coef"], rel=1e-12)
+
+
+def test_json_record_of_a_distributed_lag(dl_fit):
+    record = json.loads(json.dumps(dl_fit.to_dict(per=10)))
+    assert len(record["lags"]) == 22
+    assert set(record["lags"][0]) == {"lag", "coef", "se", "rr", "rr_low", "rr_high"}
+    assert set(record["cumulative"]) == {"coef", "se", "rr", "rr_low", "rr_high"}
+    for key in ("coef", "se", "rr", "rr_low", "rr_high"):
+        assert record[key] == record["cumulative"][key]
+    assert record["rr"] == pytest.approx(np.exp(10 * sum(row["coef"] for row in record["lags"])), rel=1e-9)
+
+
+def test_linear_term_without_a_recorded_range_needs_explicit_values(dl_fit):
+    with pytest.raises(SpecificationError, match=r"does not record the observed exposure range"):
+        minimum_risk_exposure(dl_fit)
+    with pytest.raises(SpecificationError, match=r"does not record the observed exposure range"):
+        exposure_response(dl_fit)  # no at= and no recorded range to make a grid from
+
+
+# ------------------------------------------------------------------------------- non-linear terms
+
+
+def test_non_linear_per_lag_effects_add_up_to_the_cumulative_one(temperature_exposure_fit):
+    at = [-5.0, 0.0, 25.0]
+    cum = exposure_response(temperature_exposure_fit, at=at, reference=19.0)
+    per_lag = exposure_response(temperature_exposure_fit, at=at, reference=19.0, per_lag=True)
+    assert len(per_lag) == 3 * 22
+    sums = per_lag.groupby("exposure")["coef"].sum()
+    np.testing.assert_allclose(sums.loc[at].to_numpy(), cum["coef"].to_numpy(), rtol=1e-12)
+
+
+def test_non_linear_cumulative_se_by_hand(temperature_exposure_fit):
+    # b = (f(x) - f(r)) ⊗ Cᵀ1, var = b V bᵀ (Gasparrini, Armstrong & Kenward 2010).
+    res = temperature_exposure_fit
+    cb = res.spec.lag
+    f = cb.response.spline.evaluate(np.array([25.0, 19.0]))
+    b = np.kron(f[0] - f[1], cb.lag.basis().sum(axis=0))
+    cols = list(res.exposure_columns)
+    theta, v = res.coef[cols].to_numpy(), res.cov.loc[cols, cols].to_numpy()
+    row = exposure_response(res, at=[25.0], reference=19.0).iloc[0]
+    assert row["coef"] == pytest.approx(b @ theta, rel=1e-12)
+    assert row["se"] == pytest.approx(np.sqrt(b @ v @ b), rel=1e-12)
+    at_ref = exposure_response(res, at=[19.0], reference=19.0).iloc[0]
+    assert at_ref["coef"] == 0 and at_ref["se"] == 0 and at_ref["rr"] == 1
+
+
+def test_default_reference_is_the_minimum_and_the_curve_lies_above_it(temperature_exposure_fit):
+    curve = exposure_response(temperature_exposure_fit)
+    assert len(curve) == 100
+    assert (curve["coef"] >= -1e-12).all()
+    mmt = minimum_risk_exposure(temperature_exposure_fit)
+    assert curve["exposure"].min() == pytest.approx(-9.4) and curve["exposure"].max() == pytest.approx(27.1)
+    assert mmt.low <= mmt.exposure <= mmt.high
+    assert "not significantly above" in mmt.note
+
+
+@pytest.mark.parametrize("fixture", ["temperature_confounder_fit", "temperature_exposure_fit"])
+def test_minimum_mortality_temperature_of_the_sample(request, fixture):
+    # The Norhaven simulator's documented truth (airhealth.simulate.MINIMUM_MORTALITY_TEMPERATURE = 19 °C):
+    # heat above 19 °C at lags 0-1, cold below 19 °C over lags 0-13. Tolerance 1.5 °C: a 4-df spline and
+    # 14 years of data place the minimum to about a degree (the band of flat risk is several degrees wide).
+    res = request.getfixturevalue(fixture)
+    term = "temperature" if fixture == "temperature_confounder_fit" else None
+    mmt = minimum_risk_exposure(res, term=term)
+    assert mmt.exposure == pytest.approx(MINIMUM_MORTALITY_TEMPERATURE, abs=1.5)
+    assert not mmt.at_boundary
+    assert 60 < mmt.percentile < 95
+    assert mmt.low < MINIMUM_MORTALITY_TEMPERATURE < mmt.high
+    # cold is harmful: -5 °C against the minimum, cumulated over 22 days, raises deaths
+    cold = exposure_response(res, at=[-5.0], reference=mmt.exposure, term=term).iloc[0]
+    assert cold["rr_low"] > 1.1
+
+
+def test_minimum_within_a_narrower_range(temperature_exposure_fit):
+    mmt = minimum_risk_exposure(temperature_exposure_fit, within=(0.0, 10.0))
+    assert mmt.exposure == pytest.approx(10.0)  # risk falls towards 19 °C, so the edge of 0-10 °C
+    assert mmt.at_boundary and "edge of the range" in mmt.note
+    with pytest.raises(SpecificationError, match=r"range limit 40 is outside the observed range"):
+        minimum_risk_exposure(temperature_exposure_fit, within=(0.0, 40.0))
+
+
+def test_simulated_u_shape_minimum_is_found():
+    # Invented data: log rate = 0.004 (T - 16)² on the same day and 0.002 (T - 16)² the next day; true
+    # minimum 16 °C. Tolerance 1 °C for 6 years of ~40 deaths a day.
+    rng = np.random.default_rng(11)
+    n = 6 * 365
+    day = np.arange(n + 1)
+    temp = np.round(11 - 8 * np.cos(2 * np.pi * (day - 20) / 365.25) + 3 * rng.standard_normal(n + 1), 1)
+    effect = 0.004 * (temp[1:] - 16) ** 2 + 0.002 * (temp[:-1] - 16) ** 2
+    y = rng.poisson(40 * np.exp(effect - effect.mean()))
+    frame = pd.DataFrame({"date": pd.date_range("2012-01-01", periods=n), "deaths": y, "t": temp[1:]})
+    res = fit(frame, "deaths", "t", lag=CrossBasis(SplineResponse(df=4), "dl0-3"), trend_df_per_year=2)
+    assert minimum_risk_exposure(res).exposure == pytest.approx(16.0, abs=1.0)
+
+
+def test_lag_response_of_a_non_linear_term(temperature_confounder_fit):
+    heat = lag_response(temperature_confounder_fit, at=26.0, reference=19.0, term="temperature")
+    assert list(heat.columns) == ["lag", "coef", "se", "rr", "rr_low", "rr_high"]
+    assert len(heat) == 22
+    assert heat["rr"].iloc[0] > heat["rr"].iloc[10]  # heat acts at short lags
+    with pytest.raises(SpecificationError, match=r"give the exposure value"):
+        lag_response(temperature_confounder_fit, term="temperature")
+
+
+# ---------------------------------------------------------------------------------------- bad input
+
+
+def test_reference_outside_the_exposure_range_is_refused(temperature_confounder_fit):
+    with pytest.raises(SpecificationError, match=r"reference value 40 is outside the observed range of 'temperature'"):
+        exposure_response(temperature_confounder_fit, at=[25.0], reference=40.0, term="temperature")
+    with pytest.raises(SpecificationError, match=r"reference exposure must be a finite number"):
+        exposure_response(temperature_confounder_fit, at=[25.0], reference=float("nan"), term="temperature")
+
+
+def test_exposure_values_outside_the_range_warn(temperature_confounder_fit):
+    with pytest.warns(DataWarning, match=r"outside the observed range of 'temperature'.*extrapolation"):
+        exposure_response(temperature_confounder_fit, at=[35.0], reference=19.0, term="temperature")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        exposure_response(temperature_confounder_fit, at=[25.0], reference=19.0, term="temperature")
+
+
+def test_unknown_term_lists_the_cross_basis_terms(temperature_confounder_fit):
+    with pytest.raises(SpecificationError, match=r"no cross-basis terms matching 'humidity'.*temperature\[spline"):
+        find_lag_term(temperature_confounder_fit, "humidity")
+    assert find_lag_term(temperature_confounder_fit, TEMPERATURE_TERM).exposure == "temperature"
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "words"),
+    [
+        ({"at": []}, "at must be one or more finite exposure values"),
+        ({"at": [np.nan]}, "at must be one or more finite exposure values"),
+        ({"at": [10.0], "level": 1.5}, "confidence level"),
+    ],
+)
+def test_bad_prediction_arguments(temperature_exposure_fit, kwargs, words):
+    with pytest.raises(SpecificationError, match=words):
+        exposure_response(temperature_exposure_fit, **kwargs)
+
+
+def test_linear_cross_basis_records_the_range_for_minimum_and_reference(sample):
+    res = fit(sample, "deaths_all", "pm25", lag=CrossBasis(LinearResponse(), "dl0-5"), temperature="temperature")
+    low = res.spec.lag.response.summary.low
+    assert minimum_risk_exposure(res).exposure == pytest.approx(low if res.exposure_coef > 0 else 70.2)
+    with pytest.raises(SpecificationError, match=r"reference value 500 is outside the observed range of 'pm25'"):
+        exposure_response(res, at=[10.0], reference=500.0)
