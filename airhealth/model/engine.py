@@ -40,7 +40,7 @@ from .engine_checks import (
 )
 from .families import NegativeBinomial, Poisson, theta_ml, theta_moments
 
-__all__ = ["FamilyName", "GLMFit", "ThetaMethod", "fit_glm"]
+__all__ = ["FamilyName", "GLMFit", "ThetaMethod", "fit_glm", "information_criterion"]
 
 MAX_HALVINGS = 40
 MAX_THETA_ROUNDS = 100
@@ -102,9 +102,14 @@ class GLMFit:
         Poisson: ``-2 loglik + 2 n_params``. Negative binomial: ``-2 loglik + 2 (n_params + 1)`` when
         ``theta`` was estimated (theta counts as a parameter), ``+ 2 n_params`` when it was supplied.
         """
-        if self.family == "quasipoisson":
-            return -2.0 * self.loglik / self.dispersion + 2.0 * self.n_params
-        return -2.0 * self.loglik + 2.0 * (self.n_params + int(self.theta_estimated))
+        return information_criterion(self.family, self.loglik, self.dispersion, self.n_params, self.theta_estimated)
+
+
+def information_criterion(family: str, loglik: float, dispersion: float, n_params: int, theta_estimated: bool) -> float:
+    """QAIC (quasi-Poisson) or AIC (Poisson, negative binomial); see :attr:`GLMFit.qaic`."""
+    if family == "quasipoisson":
+        return -2.0 * loglik / dispersion + 2.0 * n_params
+    return -2.0 * loglik + 2.0 * (n_params + int(theta_estimated))
 
 
 @dataclass
