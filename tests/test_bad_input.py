@@ -244,6 +244,9 @@ def test_bad_lag_strings_are_named(three_years, lag, message):
     ("option", "value", "message"),
     [
         ("trend_df_per_year", 0, r"trend_df_per_year must be > 0, got 0"),
+        ("trend_df_per_year", "7", r"trend_df_per_year must be a number > 0, got '7'"),
+        ("temperature_lags", 5, r"temperature_lags must be a pair \(first, last\) such as \(1, 3\), or None; got 5"),
+        ("temperature_lags", (3, 1), r"term lags must be a day >= 0 or a pair \(first, last\), got \(3, 1\)"),
         ("temperature_df", "6", r"temperature_df must be a whole number >= 1, got '6'"),
         ("humidity_df", 0, r"humidity_df must be a whole number >= 1, got 0"),
         ("tol", 0.1, r"tol must be between 0 and 1e-3"),
@@ -320,3 +323,11 @@ def test_fit_with_a_gap_equals_the_fit_on_the_filled_calendar(with_gap, three_ye
         b = fit(filled)
     assert a.exposure_coef == pytest.approx(b.exposure_coef, rel=1e-12)
     assert a.n_days == b.n_days
+
+
+def test_a_single_confounder_name_is_one_confounder_not_its_letters(three_years):
+    data = three_years.assign(flu=(np.arange(len(three_years)) % 50 == 0).astype(float))
+    one = fit(data, confounders="flu")
+    listed = fit(data, confounders=["flu"])
+    assert one.exposure_coef == listed.exposure_coef
+    assert "flu" in one.coef.index

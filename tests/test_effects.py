@@ -118,6 +118,7 @@ def test_p_value_and_interval_agree():
         ({"se": float("inf")}, "standard error"),
         ({"level": 1.0}, "confidence level"),
         ({"level": 95}, "confidence level"),
+        ({"level": "0.95"}, "confidence level"),
     ],
 )
 def test_relative_risk_bad_arguments_are_named(kwargs, message):

@@ -129,10 +129,16 @@ class ModelSpec:
             if isinstance(value, bool) or not isinstance(value, int) or value < 1:
                 raise SpecificationError(f"{name} must be a whole number >= 1, got {value!r}.")
         if self.temperature_lags is not None:
-            object.__setattr__(self, "temperature_lags", tuple(self.temperature_lags))
+            lags = self.temperature_lags
+            if isinstance(lags, str) or not hasattr(lags, "__len__") or len(lags) != 2:
+                raise SpecificationError(
+                    f"temperature_lags must be a pair (first, last) such as (1, 3), or None; got {lags!r}."
+                )
+            object.__setattr__(self, "temperature_lags", tuple(lags))
         if not (0 < self.tol < 1e-3):
             raise SpecificationError(f"tol must be between 0 and 1e-3, got {self.tol!r}.")
-        terms = tuple(Linear(c) if isinstance(c, str) else c for c in self.confounders)
+        given = (self.confounders,) if isinstance(self.confounders, str | Term) else self.confounders
+        terms = tuple(Linear(c) if isinstance(c, str) else c for c in given)
         for term in terms:
             if not isinstance(term, Term):
                 raise SpecificationError(

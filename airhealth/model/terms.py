@@ -201,6 +201,8 @@ class TimeSpline(Term):
     df_per_year: float = 7.0
 
     def __post_init__(self) -> None:
+        if isinstance(self.df_per_year, bool) or not isinstance(self.df_per_year, int | float | np.number):
+            raise SpecificationError(f"trend_df_per_year must be a number > 0, got {self.df_per_year!r}.")
         if not np.isfinite(self.df_per_year) or self.df_per_year <= 0:
             raise SpecificationError(f"trend_df_per_year must be > 0, got {self.df_per_year!r}.")
 

@@ -28,7 +28,7 @@ __all__ = ["Effect", "relative_risk", "risk_ratio_2x2"]
 
 
 def _z(level: float) -> float:
-    if not 0 < level < 1:
+    if isinstance(level, bool) or not isinstance(level, int | float | np.number) or not 0 < level < 1:
         raise SpecificationError(f"confidence level must be between 0 and 1, got {level!r}.")
     return float(stats.norm.ppf(0.5 + level / 2))
 
