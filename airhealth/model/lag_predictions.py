@@ -146,8 +146,9 @@ def _values(lt: LagTerm, at: Any) -> np.ndarray:
     return values
 
 
-def _table(coef: np.ndarray, se: np.ndarray, z: float, **index: np.ndarray) -> pd.DataFrame:
+def _table(coef: np.ndarray, se: np.ndarray, z: float, reference: float, **index: np.ndarray) -> pd.DataFrame:
     out = pd.DataFrame({k: v.ravel() for k, v in index.items()})
+    out.attrs["reference"] = reference
     out["coef"], out["se"] = coef.ravel(), se.ravel()
     out["rr"] = np.exp(out["coef"])
     out["rr_low"] = np.exp(out["coef"] - z * out["se"])
@@ -185,7 +186,8 @@ def exposure_response(
     Returns
     -------
     DataFrame
-        Columns ``exposure`` [, ``lag``], ``coef`` (log RR), ``se``, ``rr``, ``rr_low``, ``rr_high``.
+        Columns ``exposure`` [, ``lag``], ``coef`` (log RR), ``se``, ``rr``, ``rr_low``, ``rr_high``;
+        the reference used is in ``attrs["reference"]``.
 
     Examples
     --------
@@ -203,9 +205,9 @@ def exposure_response(
         rows = lt.basis.contrast_rows(values, ref, cumulative=False)
         coef, se = lt.predict(rows)
         lags = np.broadcast_to(lt.basis.lags, coef.shape)
-        return _table(coef, se, z, exposure=np.broadcast_to(values[:, None], coef.shape), lag=lags)
+        return _table(coef, se, z, ref, exposure=np.broadcast_to(values[:, None], coef.shape), lag=lags)
     coef, se = lt.predict(lt.basis.contrast_rows(values, ref, cumulative=True))
-    return _table(coef, se, z, exposure=values)
+    return _table(coef, se, z, ref, exposure=values)
 
 
 def lag_response(

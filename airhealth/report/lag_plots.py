@@ -1,0 +1,168 @@
+"""Figures of lag terms: the lag–response curve, the cumulative exposure–response curve over the exposure
+distribution, and the exposure–lag–response surface.
+
+Every function takes ``ax=None``, draws on it (or on a new figure not registered with pyplot) and returns
+the Axes, so callers can style them further. Intervals are the Wald intervals of
+:mod:`airhealth.model.lag_predictions`.
+
+References
+----------
+Gasparrini A, Armstrong B, Kenward MG (2010). Distributed lag non-linear models. Statistics in Medicine
+29:2224–2234 (the three views of an exposure–lag–response association).
+"""
+
+from __future__ import annotations
+
+from typing import Any, Literal
+
+import numpy as np
+
+from .._choices import check_choice
+from ..model.lag_predictions import exposure_response, find_lag_term, lag_response, minimum_risk_exposure
+from .plots import new_axes
+
+__all__ = ["plot_exposure_lag_surface", "plot_exposure_response", "plot_lag_response"]
+
+SurfaceKind = Literal["contour", "surface"]
+BAND = {"color": "C0", "alpha": 0.25, "lw": 0}
+
+
+def _reference_line(ax: Any) -> None:
+    ax.axhline(1.0, color="0.4", lw=0.8, ls="--")
+
+
+def plot_lag_response(
+    result: Any,
+    at: float | None = None,
+    reference: float | None = None,
+    per: float = 10.0,
+    term: Any = None,
+    level: float = 0.95,
+    ax: Any = None,
+) -> Any:
+    """Relative risk by lag with its interval band.
+
+    For a linear exposure term (``at=None``) the RR per ``per`` units at each lag; for a non-linear term
+    (or with ``at``) the RR of exposure ``at`` against ``reference`` at each lag.
+    """
+    ax = new_axes(ax, (6.5, 3.5))
+    table = lag_response(result, at=at, reference=reference, per=per, term=term, level=level)
+    lags = table["lag"].to_numpy()
+    ax.fill_between(lags, table["rr_low"], table["rr_high"], **BAND, label=f"{level:.0%} CI")
+    ax.plot(lags, table["rr"], "-o" if len(lags) <= 8 else "-", color="C0", ms=4, label="RR")
+    _reference_line(ax)
+    lt = find_lag_term(result, term)
+    if at is None:
+        ax.set_ylabel(f"RR per {per:g} units")
+    else:
+        ref = table.attrs.get("reference", reference)
+        ax.set_ylabel(f"RR at {at:g} vs {ref:g}" if ref is not None else f"RR at {at:g}")
+    ax.set_xlabel("lag (days)")
+    ax.set_title(f"{result.spec.outcome} ~ {lt.exposure}: lag-response ({lt.basis.lag.label})")
+    return ax
+
+
+def _draw_distribution(ax: Any, lt: Any, exposure_values: Any) -> None:
+    """Histogram of the exposure on a twin axis, in the bottom fifth of the panel."""
+    if exposure_values is not None:
+        v = np.asarray(exposure_values, dtype=float)
+        counts, edges = np.histogram(v[np.isfinite(v)], bins=40)
+    elif lt.summary is not None:
+        counts, edges = np.asarray(lt.summary.counts), np.asarray(lt.summary.edges)
+    else:
+        return
+    hist = ax.twinx()
+    hist.bar(edges[:-1], counts, width=np.diff(edges), align="edge", color="0.75", lw=0, zorder=0)
+    hist.set_ylim(0, counts.max() * 5)
+    hist.set_yticks([])
+    hist.set_ylabel("")
+    ax.set_zorder(hist.get_zorder() + 1)
+    ax.patch.set_visible(False)
+
+
+def plot_exposure_response(
+    result: Any,
+    reference: float | None = None,
+    at: Any = None,
+    term: Any = None,
+    level: float = 0.95,
+    show_distribution: bool = True,
+    show_minimum: bool = True,
+    exposure_values: Any = None,
+    ax: Any = None,
+) -> Any:
+    """Cumulative (over all lags) relative risk against ``reference`` across the exposure range.
+
+    The exposure distribution is drawn as a light histogram along the bottom (from the fitted term, or from
+    ``exposure_values``); for non-linear terms the exposure of lowest cumulative risk is marked.
+    """
+    ax = new_axes(ax, (6.5, 4.0))
+    lt = find_lag_term(result, term)
+    curve = exposure_response(result, at=at, reference=reference, term=term, level=level)
+    x = curve["exposure"].to_numpy()
+    ax.fill_between(x, curve["rr_low"], curve["rr_high"], **BAND, label=f"{level:.0%} CI")
+    ax.plot(x, curve["rr"], "-", color="C0", label="cumulative RR")
+    _reference_line(ax)
+    if show_distribution:
+        _draw_distribution(ax, lt, exposure_values)
+    if show_minimum and not lt.basis.response.is_linear and lt.summary is not None:
+        mmt = minimum_risk_exposure(result, term=term, level=level)
+        ax.axvline(mmt.exposure, color="C3", lw=0.9, ls=":", label=f"lowest risk {mmt.exposure:.3g}")
+    ax.set_xlabel(lt.exposure)
+    ax.set_ylabel(f"RR, all lags ({lt.basis.lag.label})")
+    ax.set_title(f"{result.spec.outcome} ~ {lt.exposure}: cumulative exposure-response")
+    ax.legend(loc="upper center", frameon=False, fontsize="small")
+    return ax
+
+
+def plot_exposure_lag_surface(
+    result: Any,
+    reference: float | None = None,
+    term: Any = None,
+    kind: SurfaceKind = "contour",
+    n_exposure: int = 60,
+    ax: Any = None,
+) -> Any:
+    """Relative risk over exposure (rows) and lag (columns) against ``reference``.
+
+    ``kind="contour"`` draws filled contours (diverging colours centred on RR = 1, with a colour bar);
+    ``kind="surface"`` a 3-D surface (pass a 3-D Axes or let the function create one).
+    """
+    check_choice("kind", kind, SurfaceKind)
+    lt = find_lag_term(result, term)
+    table = exposure_response(result, at=_surface_grid(lt, n_exposure), reference=reference, per_lag=True, term=term)
+    lags = np.asarray(lt.basis.lags)
+    exposure = table["exposure"].to_numpy().reshape(-1, lags.size)[:, 0]
+    rr = table["rr"].to_numpy().reshape(exposure.size, lags.size)
+    if kind == "surface":
+        if ax is None:
+            from matplotlib.figure import Figure
+
+            ax = Figure(figsize=(7, 5), layout="constrained").add_subplot(projection="3d")
+        grid_lag, grid_x = np.meshgrid(lags, exposure)
+        ax.plot_surface(grid_lag, grid_x, rr, cmap="RdBu_r", linewidth=0, antialiased=True)
+        ax.set_zlabel("RR")
+    else:
+        from matplotlib.colors import TwoSlopeNorm
+
+        ax = new_axes(ax, (7, 4.5))
+        spread = max(float(np.max(np.abs(np.log(rr)))), 1e-6)
+        norm = TwoSlopeNorm(vcenter=1.0, vmin=np.exp(-spread), vmax=np.exp(spread))
+        filled = ax.contourf(lags, exposure, rr, levels=21, cmap="RdBu_r", norm=norm)
+        ax.contour(lags, exposure, rr, levels=[1.0], colors="0.3", linewidths=0.8)
+        ax.figure.colorbar(filled, ax=ax, label="RR")
+    ax.set_xlabel("lag (days)")
+    ax.set_ylabel(lt.exposure)
+    ax.set_title(f"{result.spec.outcome} ~ {lt.exposure}: exposure-lag-response")
+    return ax
+
+
+def _surface_grid(lt: Any, n: int) -> np.ndarray:
+    if lt.summary is None:
+        from ..errors import SpecificationError
+
+        raise SpecificationError(
+            "the surface needs the observed exposure range; fit with a cross-basis "
+            "(airhealth.model.crossbasis.CrossBasis), which records it."
+        )
+    return np.linspace(lt.summary.low, lt.summary.high, n)
