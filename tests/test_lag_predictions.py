@@ -217,3 +217,72 @@ def test_linear_cross_basis_records_the_range_for_minimum_and_reference(sample):
     assert minimum_risk_exposure(res).exposure == pytest.approx(low if res.exposure_coef > 0 else 70.2)
     with pytest.raises(SpecificationError, match=r"reference value 500 is outside the observed range of 'pm25'"):
         exposure_response(res, at=[10.0], reference=500.0)
+
+
+# ------------------------------------------------------------------------------- plots and section
+
+
+def test_lag_response_plot_draws_the_band_and_curve(dl_fit):
+    from matplotlib.axes import Axes
+
+    from airhealth.report.lag_plots import plot_lag_response
+
+    ax = plot_lag_response(dl_fit, per=10)
+    assert isinstance(ax, Axes)
+    line = ax.get_lines()[0]
+    np.testing.assert_allclose(line.get_ydata(), dl_fit.lag_effects(per=10)["rr"], rtol=1e-12)
+    assert len(ax.collections) == 1  # the interval band
+    assert ax.get_xlabel() == "lag (days)"
+
+
+def test_exposure_response_plot_marks_the_minimum_and_shows_the_distribution(temperature_confounder_fit):
+    from matplotlib.figure import Figure
+
+    from airhealth.report.lag_plots import plot_exposure_response
+
+    fig = Figure()
+    ax = fig.add_subplot()
+    out = plot_exposure_response(temperature_confounder_fit, term="temperature", ax=ax)
+    assert out is ax
+    mmt = minimum_risk_exposure(temperature_confounder_fit, term="temperature")
+    curve, band, minimum = ax.get_lines()[0], ax.collections[0], ax.get_lines()[2]
+    assert curve.get_ydata().min() == pytest.approx(1.0, abs=1e-4)  # 100-point curve vs 400-point search
+    assert minimum.get_xdata()[0] == pytest.approx(mmt.exposure)
+    assert band is not None
+    histogram = [a for a in fig.axes if a is not ax]
+    assert len(histogram) == 1
+    counts = find_lag_term(temperature_confounder_fit, "temperature").summary.counts
+    assert sum(p.get_height() for p in histogram[0].patches) == sum(counts) == 5113
+
+
+def test_surface_plots(temperature_exposure_fit):
+    from airhealth.report.lag_plots import plot_exposure_lag_surface
+
+    ax = plot_exposure_lag_surface(temperature_exposure_fit, reference=19.0, n_exposure=30)
+    assert ax.get_ylabel() == "temperature" and len(ax.figure.axes) == 2  # contour and colour bar
+    ax3d = plot_exposure_lag_surface(temperature_exposure_fit, reference=19.0, kind="surface", n_exposure=20)
+    assert ax3d.name == "3d"
+    with pytest.raises(SpecificationError, match="kind"):
+        plot_exposure_lag_surface(temperature_exposure_fit, kind="mesh")
+
+
+def test_lag_structure_section(sample):
+    from airhealth.report.document import Figure, Section, Table, Text
+    from airhealth.report.lag_section import lag_structure_section
+
+    section = lag_structure_section(sample, "deaths_all", "pm25", temperature="temperature")
+    assert isinstance(section, Section) and section.title == "Lag structures"
+    tables = {b.name: b for b in section.blocks if isinstance(b, Table)}
+    figures = [b.name for b in section.blocks if isinstance(b, Figure)]
+    comparison = tables["lag_structures"].frame
+    assert comparison["lag"].tolist() == ["0", "1", "2", "3", "4", "5", "dl0-5", "dl0-21:spline4"]
+    assert (comparison["kind"] == "distributed lag (cumulative)").sum() == 2
+    assert set(tables["lag_effects"].frame["lag_structure"]) == {"dl0-5", "dl0-21:spline4"}
+    assert figures == [
+        "lag_response_dl0_5",
+        "lag_response_dl0_21_spline4",
+        "temperature_exposure_response",
+        "temperature_exposure_lag_surface",
+    ]
+    text = " ".join(b.text for b in section.blocks if isinstance(b, Text))
+    assert "lowest at temperature 18." in text
