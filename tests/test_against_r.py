@@ -30,6 +30,8 @@ import json
 import subprocess
 from pathlib import Path
 
+import numpy as np
+import pandas as pd
 import pytest
 
 import airhealth
@@ -144,3 +146,18 @@ def test_frozen_reference_is_up_to_date(live):
         for key in ("coef", "se", "dispersion", "deviance", "se_final_mu"):
             assert new[key] == pytest.approx(old[key], rel=1e-9), (new["name"], key)
         assert new["n_used"] == old["n_used"]
+
+
+def test_spline_knots_come_from_the_whole_period_before_rows_are_dropped(fits, sample):
+    # As splines::ns inside glm's model.frame: quantiles of all non-missing values of the calendar (here
+    # the mean temperature of lags 1-3), not only of the days left after dropping days with a missing
+    # exposure.
+    basis = fits["main"].bases["spline(temperature[mean lags 1-3])"]
+    temperature = sample["temperature"]
+    mean13 = ((temperature.shift(1) + temperature.shift(2) + temperature.shift(3)) / 3).to_numpy()
+    full = mean13[np.isfinite(mean13)]
+    probs = np.arange(1, 6) / 6
+    np.testing.assert_allclose(basis.interior_knots, np.quantile(full, probs), rtol=1e-12)
+    np.testing.assert_allclose(basis.boundary_knots, (full.min(), full.max()), rtol=1e-12)
+    used = pd.Series(mean13, index=sample["date"]).loc[fits["main"].observed.index].to_numpy()
+    assert not np.allclose(basis.interior_knots, np.quantile(used, probs), rtol=1e-9, atol=0)
