@@ -210,3 +210,101 @@ def test_stalled_fast_path_falls_back_to_the_exact_plain_fit(data, monkeypatch):
     assert calls == [1]
     plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows])
     assert_same_fit(fast, plain)
+
+
+# ------------------------------------------------------------------------- exposure block only
+def assert_same_exposure_block(fast, plain, k):
+    """ExposureFit against the exposure block of a full fit (same tolerances as assert_same_fit)."""
+    theta, se = plain.coef[-k:], plain.std_err[-k:]
+    np.testing.assert_array_less(np.abs(fast.coef - theta), RTOL * (np.abs(theta) + se))
+    np.testing.assert_allclose(fast.std_err, se, rtol=RTOL)
+    sd = np.sqrt(np.diag(plain.cov[-k:, -k:]))
+    assert np.abs((fast.cov - plain.cov[-k:, -k:]) / np.outer(sd, sd)).max() < RTOL
+    for name in ("dispersion", "deviance", "loglik", "pearson_chi2", "qaic"):
+        assert getattr(fast, name) == pytest.approx(getattr(plain, name), rel=RTOL), name
+    assert fast.n_obs == plain.n_obs and fast.n_params == plain.n_params and fast.df_resid == plain.df_resid
+
+
+@pytest.mark.parametrize("family", ["quasipoisson", "poisson"])
+def test_exposure_only_equals_plain_fit(data, family, monkeypatch):
+    Z, pm, y, offset = data
+    base = grid_engine.fit_confounders(Z, y, family=family, offset=offset)
+
+    def no_fallback(*args, **kwargs):
+        raise AssertionError("the exposure-only path fell back to the plain fit")
+
+    monkeypatch.setattr(grid_engine, "_plain", no_fallback)
+    monkeypatch.setattr(grid_engine, "_exact_projection", no_fallback)  # refinement must converge
+    checked = 0
+    for E in exposures(pm).values():
+        for rows in masks(E).values():
+            fast = grid_engine.fit_exposure_only(base, E, rows)
+            plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], family=family, offset=offset[rows])
+            assert_same_exposure_block(fast, plain, E.shape[1])
+            assert fast.converged and not fast.exact_product and fast.family == family
+            checked += 1
+    assert checked == 12
+
+
+def test_exposure_only_with_weights_and_fixed_theta(data):
+    Z, pm, y, _ = data
+    w = np.random.default_rng(8).integers(1, 3, N).astype(float)
+    E = exposures(pm)["free0-3"]
+    rows = masks(E)["block"]
+    base = fit_confounders(Z, y, weights=w)
+    plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], weights=w[rows])
+    assert_same_exposure_block(grid_engine.fit_exposure_only(base, E, rows), plain, 4)
+    base_nb = fit_confounders(Z, y, family="negbin", theta=10.0)
+    plain_nb = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], family="negbin", theta=10.0)
+    assert_same_exposure_block(grid_engine.fit_exposure_only(base_nb, E, rows), plain_nb, 4)
+
+
+def test_exposure_only_stalled_refinement_uses_the_exact_product(data, monkeypatch):
+    Z, pm, y, _ = data
+    base = fit_confounders(Z, y)
+    E = exposures(pm)["mean0-3"]
+    rows = masks(E)["usable"]
+    monkeypatch.setattr(grid_engine, "REFINE_RTOL", 0.0)  # never reached: the refinement must stall
+    monkeypatch.setattr(grid_engine, "_refined", lambda *a: False)
+    monkeypatch.setattr(grid_engine, "_plain", None)  # the fixed-Hessian path itself must take the exact product
+    fast = grid_engine.fit_exposure_only(base, E, rows)
+    assert fast.exact_product
+    plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows])
+    assert_same_exposure_block(fast, plain, 1)
+
+
+def test_exposure_only_fallbacks_keep_the_answer_and_the_errors(data):
+    Z, pm, y, _ = data
+    names = [f"z{j}" for j in range(Z.shape[1])]
+    base = fit_confounders(Z, y, column_names=names)
+    E = exposures(pm)["lag2"]
+    rows = masks(E)["usable"]
+    one_step = grid_engine.fit_exposure_only(base, E, rows, max_iter=1)  # cannot converge: plain path
+    plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows])
+    assert_same_exposure_block(one_step, plain, 1)
+    assert one_step.exact_product
+    with pytest.raises(FitError, match=r"rank-deficient") as info:
+        grid_engine.fit_exposure_only(base, (Z[:, 1] + 2 * Z[:, 2])[:, None], column_names=["pm10"])
+    assert "'pm10'" in str(info.value)
+    base_nb = fit_confounders(Z, y, family="negbin")  # estimated theta: always the plain path
+    nb = grid_engine.fit_exposure_only(base_nb, E, rows)
+    ref = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], family="negbin")
+    assert nb.theta == pytest.approx(ref.theta, rel=1e-7) and nb.theta_estimated
+    assert nb.coef[0] == pytest.approx(ref.coef[-1], rel=1e-6)
+
+
+def test_two_pool_workers_report_one_blas_thread_each():
+    from concurrent.futures import ProcessPoolExecutor
+
+    with ProcessPoolExecutor(max_workers=2, initializer=worker_initializer) as pool:
+        futures = [pool.submit(_pid_and_threads) for _ in range(4)]
+        answers = [f.result(timeout=120) for f in futures]
+    assert len(answers) == 4 and all(counts and set(counts) == {1} for _, counts in answers)
+
+
+def _pid_and_threads():
+    import os
+    import time
+
+    time.sleep(0.2)  # keep the worker busy so the other worker takes the next task
+    return os.getpid(), blas_threads()

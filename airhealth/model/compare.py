@@ -164,12 +164,13 @@ def compare_results(
         keep = _common([d.used for d in designs], grid)
         designs = [_restrict(d, keep) for d in designs]
     pairs = list(zip(grid.specs, designs, strict=True))
+    shown = progress(pairs, label="lag structures", enabled=show_progress)
     if not grid.shared:
-        return [result_from_fit(d, s, fit_design(d, s)) for s, d in progress(pairs, label="lag structures", enabled=show_progress)]  # fmt: skip
+        return [result_from_fit(design, spec, fit_design(design, spec)) for spec, design in shown]
     with single_threaded_blas():
         base, rows = _confounder_fit(grid)
         results = []
-        for spec, design in progress(pairs, label="lag structures", enabled=show_progress):
+        for spec, design in shown:
             names = design.column_names[design.exposure_slice]
             glm = fit_with_exposure(base, design.exposure_values[rows], design.used[rows], column_names=names)
             results.append(result_from_fit(design, spec, glm))
@@ -244,8 +245,8 @@ def compare(
     rows_out = []
     with single_threaded_blas():
         base, rows = _confounder_fit(grid)
-        items = zip(grid.specs, structures, strict=True)
-        for spec, (exposure, used) in progress(items, total=len(grid.specs), label="lag structures", enabled=show_progress):  # fmt: skip
+        items = list(zip(grid.specs, structures, strict=True))
+        for spec, (exposure, used) in progress(items, label="lag structures", enabled=show_progress):
             fit = fit_exposure_only(base, exposure[rows], used[rows])
             rows_out.append(_row(spec, fit, int(used.sum()), per, level))
     return pd.DataFrame(rows_out, columns=COMPARE_COLUMNS)
