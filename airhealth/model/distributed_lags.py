@@ -278,8 +278,8 @@ def parse_distributed_lag(text: str) -> DistributedLag:
     UnconstrainedLag(first=0, last=5)
     >>> parse_distributed_lag("dl0-7:poly3")
     PolynomialLag(first=0, last=7, degree=3)
-    >>> parse_distributed_lag("dl0-21:spline4:log").interior_knots
-    (1.802039330655387, 6.846325990854938)
+    >>> [round(k, 3) for k in parse_distributed_lag("dl0-21:spline4:log").interior_knots]
+    [1.802, 6.851]
     """
     if not isinstance(text, str):
         raise SpecificationError(f"a distributed lag must be a string such as {_FORMS}; got {text!r}.")
