@@ -67,7 +67,6 @@ DOWNDATE_MAX_FRACTION = 0.3
 REFINE_RTOL = 1e-13
 REFINE_STALL = 0.5
 REFINE_MAX_STEPS = 30
-GEMV_MAX_COLUMNS = 8
 
 
 @dataclass(frozen=True)
@@ -405,7 +404,10 @@ def _joint_iteration(base: ConfounderFit, Ef, pw, chol, fam, tol, max_iter):
     k = Ef.shape[1]
     coef = np.concatenate([base.coef, np.zeros(k)])
     G = lapack.dpotrs(chol0, _b0(chol, pc), lower=0)[0]  # A0^-1 B0, the start
-    P = _times(Z, np.column_stack([coef[:pc], G]))
+    # work arrays in Fortran order, so each column is contiguous and filled by one BLAS gemv
+    n = Z.shape[0]
+    P, M, ZtM = (np.empty((m, 1 + k), order="F") for m in (n, n, pc))
+    _fill(P, Z, coef[:pc], G)
     previous, polished = np.inf, False
     deviance = _deviance_function(fam, y, pw)
     with np.errstate(over="ignore", invalid="ignore"):
@@ -415,14 +417,16 @@ def _joint_iteration(base: ConfounderFit, Ef, pw, chol, fam, tol, max_iter):
         for n_iter in range(1, max_iter + 1):
             wt = fam.working_weights(mu, pw)
             R = Ef - P[:, 1:]
-            M = np.column_stack([fam.score_residuals(y, mu, pw), wt[:, None] * R])
-            ZtM = _times(Z.T, M)
+            M[:, 0] = fam.score_residuals(y, mu, pw)
+            np.multiply(wt[:, None], R, out=M[:, 1:])
+            for j in range(1 + k):
+                np.dot(Z.T, M[:, j], out=ZtM[:, j])
             g = np.concatenate([ZtM[:, 0], Ef.T @ M[:, 0]])
             step = lapack.dpotrs(chol, g, lower=0)[0]
             correction = lapack.dpotrs(chol0, ZtM[:, 1:], lower=0)[0]
             coef = coef + step
             G = G + correction
-            P = _times(Z, np.column_stack([coef[:pc], G]))
+            _fill(P, Z, coef[:pc], G)
             eta = P[:, 0] + Ef @ coef[pc:] + base.offset
             mu = np.exp(eta)
             dev_new = deviance(eta, mu)
@@ -438,6 +442,14 @@ def _joint_iteration(base: ConfounderFit, Ef, pw, chol, fam, tol, max_iter):
                 polished = True  # one more step after the criterion is met polishes the coefficients
             previous = size
     return coef, G, P[:, 1:], mu, max_iter, "failed"
+
+
+def _fill(P: np.ndarray, Z: np.ndarray, v: np.ndarray, G: np.ndarray) -> None:
+    """``P = Z [v, G]`` column by column (BLAS gemv; ``gemm`` with 2-8 right-hand columns was measured
+    2x slower per column than ``gemv`` on these shapes)."""
+    np.dot(Z, v, out=P[:, 0])
+    for j in range(G.shape[1]):
+        np.dot(Z, G[:, j], out=P[:, j + 1])
 
 
 def _refined(correction: np.ndarray, G: np.ndarray, Ef: np.ndarray, R: np.ndarray, wt: np.ndarray) -> bool:
@@ -464,14 +476,6 @@ def _deviance_function(fam, y: np.ndarray, w: np.ndarray):
     constant = float(w @ (special.xlogy(y, y) - y))
     wy = w * y
     return lambda eta, mu: 2.0 * (constant - float(wy @ eta) + float(w @ mu))
-
-
-def _times(A: np.ndarray, V: np.ndarray) -> np.ndarray:
-    """``A @ V`` for a few columns ``V`` as matrix-vector products (BLAS ``gemm`` with 2-8 right-hand
-    columns was measured 2x slower per column than ``gemv`` on these shapes)."""
-    if V.shape[1] > GEMV_MAX_COLUMNS:
-        return A @ V
-    return np.column_stack([A @ V[:, j] for j in range(V.shape[1])])
 
 
 def _schur(Ef: np.ndarray, ZG: np.ndarray, wt: np.ndarray) -> np.ndarray:

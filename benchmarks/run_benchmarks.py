@@ -1,0 +1,261 @@
+"""All engine benchmarks of issue 4 in one run, with a summary table of goal against measured.
+
+Run with ``/work/venv/bin/python benchmarks/run_benchmarks.py [--repeats N] [--cities 50,100,200]``.
+Not part of the test run. The data are the invented Norhaven sample (``airhealth.load_sample()``, 14 years)
+and cities invented by ``airhealth.simulate.simulate_city``. Every figure is the median of repeated runs
+(the machine is shared, so single timings are noisy); airhealth and the reference run one after another
+in the same process on the same design matrix, so their ratio is less affected by load than either time.
+
+By default everything runs with one BLAS thread (as airhealth's grid and sweep functions do; see
+docs/engine.md); ``--default-threads`` keeps the BLAS library's own setting. R's ``glm.fit`` is timed
+inside R (``system.time`` over repeats, same design written to a binary file) when Rscript is on PATH.
+"""
+
+from __future__ import annotations
+
+import argparse
+import gc
+import json
+import os
+import resource
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+import tracemalloc
+import warnings
+from pathlib import Path
+
+import numpy as np
+import statsmodels.api as sm
+
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent))  # this checkout of airhealth
+sys.path.insert(0, str(Path(__file__).resolve().parent))  # bench_engine
+from bench_engine import median_time, plain_irls
+
+import airhealth
+from airhealth._threads import single_threaded_blas
+from airhealth.model.compare import compare
+from airhealth.model.design import build_confounders, build_design, model_frame
+from airhealth.model.engine import fit_glm
+from airhealth.model.spec import ModelSpec
+from airhealth.model.splines import NaturalSplineBasis
+from airhealth.model.sweep import sweep
+from airhealth.simulate import simulate_city
+
+GRID = ["0", "1", "2", "3", "4", "5", "6", "7", "0-1", "0-2", "0-3", "0-5"]
+DF_VALUES = [4, 5, 6, 7, 8, 9, 10, 11, 12]
+OPTIONS = {"outcome": "deaths_all", "exposure": "pm25", "temperature": "temperature"}
+
+R_SCRIPT = r"""
+args <- commandArgs(trailingOnly = TRUE)
+n <- as.integer(args[2]); p <- as.integer(args[3]); repeats <- as.integer(args[4])
+con <- file(args[1], "rb"); X <- matrix(readBin(con, "double", n * p), n, p); y <- readBin(con, "double", n)
+close(con)
+ctl <- glm.control(epsilon = 1e-10, maxit = 100)
+fit <- glm.fit(X, y, family = quasipoisson(), control = ctl)
+times <- replicate(repeats, system.time(glm.fit(X, y, family = quasipoisson(), control = ctl))[["elapsed"]])
+cat(median(times), fit$coefficients[p], "\n")
+"""
+
+
+def design_for(data, **options):
+    spec = ModelSpec.from_options(**{**OPTIONS, **options})
+    return build_design(model_frame(data, spec), spec)
+
+
+def statsmodels_fit(X, y):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return sm.GLM(y, X, family=sm.families.Poisson()).fit(scale="X2", tol=1e-10)
+
+
+def r_glm_fit(X, y, repeats):
+    """Median seconds per ``glm.fit`` measured inside R, or None without Rscript."""
+    rscript = shutil.which("Rscript")
+    if rscript is None:
+        return None
+    with tempfile.TemporaryDirectory() as tmp:
+        data, script = Path(tmp) / "design.bin", Path(tmp) / "time_glm.R"
+        with open(data, "wb") as f:
+            f.write(np.asfortranarray(X).tobytes(order="F"))
+            f.write(np.ascontiguousarray(y, dtype=float).tobytes())
+        script.write_text(R_SCRIPT)
+        out = subprocess.run(
+            [rscript, str(script), str(data), str(X.shape[0]), str(X.shape[1]), str(repeats)],
+            capture_output=True, text=True, timeout=600, check=True,
+        )  # fmt: skip
+    seconds, last_coef = out.stdout.split()
+    return float(seconds), float(last_coef)
+
+
+def bench_single(data, r, results):
+    d = design_for(data, lag="0-1")
+    X, y = d.matrix, d.response
+    t_ours = median_time(lambda: fit_glm(X, y), r)
+    t_plain = median_time(lambda: plain_irls(X, y), r)
+    t_sm = median_time(lambda: statsmodels_fit(X, y), max(3, r // 2))
+    ours = fit_glm(X, y)
+    print(f"single fit {X.shape}: airhealth {t_ours * 1e3:.1f} ms, plain Cholesky IRLS {t_plain * 1e3:.1f} ms, "
+          f"statsmodels {t_sm * 1e3:.1f} ms")  # fmt: skip
+    results["single: statsmodels / airhealth"] = (">= 15x", t_sm / t_ours)
+    results["single: airhealth / plain IRLS"] = ("<= 1.3", t_ours / t_plain)
+    rr = r_glm_fit(X, y, max(5, r))
+    if rr is not None:
+        agree = abs(rr[1] - ours.coef[-1]) / ours.std_err[-1]
+        print(f"  R glm.fit {rr[0] * 1e3:.1f} ms (last coefficient differs by {agree:.1e} SE)")
+        results["single: R glm.fit / airhealth"] = ("(reported)", rr[0] / t_ours)
+    return t_ours
+
+
+def bench_grid(data, r, results):
+    designs = [design_for(data, lag=lag) for lag in GRID]
+    t_ours = median_time(lambda: compare(data, GRID, **OPTIONS), r)
+    t_sm = median_time(lambda: [statsmodels_fit(d.matrix, d.response) for d in designs], 3)
+    table = compare(data, GRID, **OPTIONS)
+    worst = max(
+        abs(row.coef - statsmodels_fit(d.matrix, d.response).params[-1]) / row.se
+        for row, d in zip(table.itertuples(), designs[:3], strict=False)
+    )
+    print(f"12-structure grid: airhealth.compare {t_ours * 1e3:.1f} ms (incl. validation and designs), "
+          f"12 statsmodels fits {t_sm * 1e3:.1f} ms (designs prebuilt); |diff| <= {worst:.1e} SE")  # fmt: skip
+    results["grid of 12: statsmodels / compare"] = (">= 30x", t_sm / t_ours)
+
+
+def bench_sweep(data, r, results):
+    designs = [design_for(data, lag="0-1", trend_df_per_year=v) for v in DF_VALUES]
+    t_ours = median_time(lambda: sweep(data, "trend_df_per_year", DF_VALUES, lag="0-1", **OPTIONS), max(3, r // 2))
+    t_sm = median_time(lambda: [statsmodels_fit(d.matrix, d.response) for d in designs], 3)
+    print(f"9-value df sweep: airhealth.sweep {t_ours * 1e3:.1f} ms, 9 statsmodels fits {t_sm * 1e3:.1f} ms")
+    results["df sweep of 9: statsmodels / sweep"] = ("(reported)", t_sm / t_ours)
+
+
+def bench_distributed(data, r, results):
+    d = design_for(data, lag="dl0-5")
+    X, y = d.matrix, d.response
+    t_ours = median_time(lambda: fit_glm(X, y), r)
+    t_sm = median_time(lambda: statsmodels_fit(X, y), 3)
+    t_full = median_time(lambda: airhealth.fit(data, lag="dl0-5", **OPTIONS), max(3, r // 2))
+    print(f"distributed lag dl0-5 {X.shape}: airhealth {t_ours * 1e3:.1f} ms (airhealth.fit from the data "
+          f"{t_full * 1e3:.1f} ms), statsmodels {t_sm * 1e3:.1f} ms")  # fmt: skip
+    results["dl0-5: statsmodels / airhealth"] = ("(reported)", t_sm / t_ours)
+    rr = r_glm_fit(X, y, 5)
+    if rr is not None:
+        results["dl0-5: R glm.fit / airhealth"] = ("(reported)", rr[0] / t_ours)
+
+
+def bench_design(data, r, results, t_fit):
+    t = np.arange(5000.0)
+    t_basis = median_time(lambda: NaturalSplineBasis.from_values(t, df=98).evaluate(t), r)
+    spec = ModelSpec.from_options(lag="0-1", **OPTIONS)
+    frame = model_frame(data, spec)
+    t_frame = median_time(lambda: model_frame(data, spec), r)
+    t_conf = median_time(lambda: build_confounders(frame, spec), r)
+    t_design = median_time(lambda: build_design(model_frame(data, spec), spec), r)
+    print(f"natural spline basis, 5,000 days x 98 df: {t_basis * 1e3:.2f} ms")
+    print(f"design: validation {t_frame * 1e3:.1f} ms + confounders {t_conf * 1e3:.1f} ms; whole design "
+          f"{t_design * 1e3:.1f} ms = {100 * t_design / t_fit:.0f}% of a fit ({t_fit * 1e3:.1f} ms)")  # fmt: skip
+    results["spline basis 5,000 days (ms)"] = ("< 5", t_basis * 1e3)
+    results["design construction / fit (%)"] = ("< 20", 100 * t_design / t_fit)
+
+
+def one_city(i: int):
+    rng = np.random.default_rng(1000 + i)
+    tables = simulate_city(
+        rng, "2012-01-01", "2023-12-31", name=f"City {i}", pollution_scale=float(rng.uniform(0.6, 1.6)),
+        temperature_offset=float(rng.normal(0, 4)),
+    )  # fmt: skip
+    return airhealth.align_daily(tables["counts"], tables["pollution"], tables["weather"])
+
+
+def run_cities(counts: list[int]) -> dict:
+    """Cities one after another in this process, keeping only the estimates (a small table per city).
+
+    Returns the time and peak resident memory at each checkpoint, then the Python heap (tracemalloc)
+    over 10 more cities: its peak shows what one city needs, its current size what is kept.
+    """
+    estimates, checkpoints = [], []
+    t_sim = t_fit = 0.0
+    for i in range(max(counts)):
+        t0 = time.perf_counter()
+        data = one_city(i)
+        t1 = time.perf_counter()
+        table = compare(data, GRID, **OPTIONS)
+        t_fit += time.perf_counter() - t1
+        t_sim += t1 - t0
+        estimates.append(table[["lag", "coef", "se", "qaic", "n_days"]].assign(city=i))
+        del data, table
+        if i + 1 in counts:
+            peak_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024  # KiB on Linux
+            checkpoints.append((i + 1, t_sim + t_fit, t_fit, peak_rss))
+    gc.collect()
+    tracemalloc.start()
+    for i in range(10):
+        estimates.append(compare(one_city(10_000 + i), GRID, **OPTIONS)[["lag", "coef", "se"]])
+    current, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    return {"checkpoints": checkpoints, "heap_current": current / 2**20, "heap_peak": peak / 2**20}
+
+
+def bench_cities(counts: list[int], default_threads: bool, results) -> None:
+    """The many-city run in a fresh process, so its peak memory is its own."""
+    command = [sys.executable, __file__, "--cities-only", ",".join(map(str, counts))]
+    if default_threads:
+        command.append("--default-threads")
+    out = subprocess.run(command, capture_output=True, text=True, check=True, timeout=3600)
+    report = json.loads(out.stdout.strip().splitlines()[-1])
+    for n, total, fit, rss in report["checkpoints"]:
+        print(f"{n:4d} cities x 12 years x 12 structures: {total:6.1f} s in all ({fit:6.1f} s in compare, the"
+              f" rest simulating); peak RSS of the process {rss:5.0f} MiB")  # fmt: skip
+    print(f"  Python heap over 10 more cities: peak {report['heap_peak']:.1f} MiB, "
+          f"{report['heap_current']:.2f} MiB still held (the estimates)")  # fmt: skip
+    n, total, _, rss = report["checkpoints"][-1]
+    results[f"{n} cities x 12 y x 12-grid (s, incl. simulation)"] = ("< 30", total)
+    results[f"{n} cities: peak RSS (MiB)"] = ("< 1024", rss)
+    first = report["checkpoints"][0]
+    results[f"peak RSS growth {first[0]} -> {n} cities (MiB)"] = ("~0 (flat)", rss - first[3])
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--repeats", type=int, default=9)
+    parser.add_argument("--cities", default="50,100,200", help="checkpoints for the many-city run")
+    parser.add_argument("--default-threads", action="store_true", help="keep the BLAS library's thread count")
+    parser.add_argument("--cities-only", metavar="COUNTS", help=argparse.SUPPRESS)  # the child process
+    args = parser.parse_args()
+    if args.cities_only:
+        counts = sorted(int(c) for c in args.cities_only.split(","))
+        if args.default_threads:
+            print(json.dumps(run_cities(counts)))
+        else:
+            with single_threaded_blas():
+                print(json.dumps(run_cities(counts)))
+        return
+    counts = sorted(int(c) for c in args.cities.split(","))
+    print(f"airhealth {airhealth.__version__}; {os.cpu_count()} CPUs; load average {os.getloadavg()[0]:.1f}; "
+          f"medians of {args.repeats} repeats unless stated")  # fmt: skip
+    results: dict[str, tuple[str, float]] = {}
+    data = airhealth.load_sample()
+    if args.default_threads:
+        run(data, args.repeats, results)
+    else:
+        with single_threaded_blas():
+            run(data, args.repeats, results)
+    bench_cities(counts, args.default_threads, results)
+    print(f"\nload average at the end {os.getloadavg()[0]:.1f}\n")
+    print(f"{'figure':55s} {'goal':>12s} {'measured':>10s}")
+    for name, (goal, value) in results.items():
+        print(f"{name:55s} {goal:>12s} {value:10.2f}")
+
+
+def run(data, r, results) -> None:
+    t_fit = bench_single(data, r, results)
+    bench_grid(data, r, results)
+    bench_sweep(data, r, results)
+    bench_distributed(data, r, results)
+    bench_design(data, r, results, t_fit)
+
+
+if __name__ == "__main__":
+    main()
