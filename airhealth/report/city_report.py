@@ -84,7 +84,7 @@ def city_sections(
                     note="Each row is a separate model for one outcome, pollutant and lag (single day or "
                     "moving average of the days shown).",
                 ),
-                Table("Estimates (full precision)", table, "effects_full"),
+                Table("Estimates at full precision", table, "effects_full", display=False),
                 *_forest_figures(table),
             ],
         ),

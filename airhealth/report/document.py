@@ -41,6 +41,7 @@ class Table:
     name: str
     note: str | None = None
     count_columns: tuple[str, ...] = ()
+    display: bool = True  # False: written as CSV and linked, not shown in the page
 
 
 @dataclass(frozen=True)

@@ -34,9 +34,14 @@ th:first-child,td:first-child{text-align:left}thead th{background:#f2f4f7}
 
 def _table_html(block: Table, threshold: int | None) -> tuple[str, pd.DataFrame]:
     frame = suppress_small_counts(block.frame, block.count_columns, threshold)
+    link = f"<p class='note'><a href='tables/{block.name}.csv'>{block.name}.csv</a></p>"
+    if not block.display:
+        return (
+            f"<p class='note'>{html.escape(block.title)}: <a href='tables/{block.name}.csv'>{block.name}.csv</a></p>",
+            frame,
+        )
     body = frame.to_html(index=False, border=0, na_rep="", float_format=lambda v: f"{v:.4g}", escape=True)
     note = f"<p class='note'>{html.escape(block.note)}</p>" if block.note else ""
-    link = f"<p class='note'><a href='tables/{block.name}.csv'>{block.name}.csv</a></p>"
     return f"<h3>{html.escape(block.title)}</h3>{body}{note}{link}", frame
 
 
