@@ -16,7 +16,10 @@ from .errors import (
     SpecificationError,
 )
 from .model.compare import compare
+from .model.crossbasis import CrossBasis, CrossBasisTerm, LinearResponse, SplineResponse, ThresholdResponse
+from .model.distributed_lags import PolynomialLag, SplineLag, UnconstrainedLag
 from .model.fitting import fit
+from .model.lag_predictions import exposure_response, lag_response, minimum_risk_exposure
 from .model.lag_structures import MovingAverage, SingleDay, parse_lag
 from .model.result import FitResult
 from .model.spec import ModelSpec
@@ -31,22 +34,33 @@ __all__ = [
     "AirhealthWarning",
     "Categorical",
     "ConvergenceWarning",
+    "CrossBasis",
+    "CrossBasisTerm",
     "DataError",
     "DataWarning",
     "DispersionWarning",
     "FitError",
     "FitResult",
     "Linear",
+    "LinearResponse",
     "ModelSpec",
     "MovingAverage",
+    "PolynomialLag",
     "SingleDay",
     "SpecificationError",
     "Spline",
+    "SplineLag",
+    "SplineResponse",
+    "ThresholdResponse",
+    "UnconstrainedLag",
     "__version__",
     "align_daily",
     "compare",
+    "exposure_response",
     "fit",
+    "lag_response",
     "load_sample",
     "load_sample_tables",
+    "minimum_risk_exposure",
     "parse_lag",
 ]
