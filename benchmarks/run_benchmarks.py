@@ -169,6 +169,18 @@ def one_city(i: int):
     return airhealth.align_daily(tables["counts"], tables["pollution"], tables["weather"])
 
 
+def peak_resident_mib() -> float:
+    """Peak resident memory of this process (``VmHWM``; ``ru_maxrss`` survives ``exec`` from the parent,
+    so it would report the parent's peak)."""
+    try:
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("VmHWM:"):
+                return int(line.split()[1]) / 1024
+    except OSError:
+        pass
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024  # KiB on Linux
+
+
 def run_cities(counts: list[int]) -> dict:
     """Cities one after another in this process, keeping only the estimates (a small table per city).
 
@@ -187,7 +199,7 @@ def run_cities(counts: list[int]) -> dict:
         estimates.append(table[["lag", "coef", "se", "qaic", "n_days"]].assign(city=i))
         del data, table
         if i + 1 in counts:
-            peak_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024  # KiB on Linux
+            peak_rss = peak_resident_mib()
             checkpoints.append((i + 1, t_sim + t_fit, t_fit, peak_rss))
     gc.collect()
     tracemalloc.start()
