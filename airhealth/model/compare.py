@@ -78,12 +78,14 @@ def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any
     return _Grid(specs, frame, confounders, shared)
 
 
-def _structure(grid: _Grid, spec: ModelSpec) -> tuple[np.ndarray, np.ndarray]:
+def _column(frame: pd.DataFrame, name: str | None) -> np.ndarray | None:
+    return None if name is None else frame[name].to_numpy(dtype=float, na_value=np.nan)
+
+
+def _structure(grid: _Grid, spec: ModelSpec, raw, y, offset) -> tuple[np.ndarray, np.ndarray]:
     """Exposure columns (full calendar) and the usable-day mask, by the design builder's drop rules."""
     frame, conf = grid.frame, grid.confounders
-    exposure = spec.lag.columns(frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan))
-    y = frame[spec.outcome].to_numpy(dtype=float, na_value=np.nan)
-    offset = None if spec.offset is None else frame[spec.offset].to_numpy(dtype=float, na_value=np.nan)
+    exposure = spec.lag.columns(raw)
     used = _drop_reasons(frame, spec, y, exposure, conf, offset) == ""
     if used.sum() <= conf.matrix.shape[1] + exposure.shape[1]:
         build_design(frame, spec, conf)  # raises the design builder's error naming the reasons
@@ -238,7 +240,13 @@ def compare(
         results = compare_results(data, lags, show_progress=show_progress, common_days=common_days, **model_options)
         table = pd.DataFrame([r.to_dict(per=per, level=level) for r in results])
         return table[COMPARE_COLUMNS].reset_index(drop=True)
-    structures = [_structure(grid, spec) for spec in grid.specs]
+    first = grid.specs[0]  # outcome, exposure and offset are the same for every structure
+    columns = (
+        _column(grid.frame, first.exposure),
+        _column(grid.frame, first.outcome),
+        _column(grid.frame, first.offset),
+    )
+    structures = [_structure(grid, spec, *columns) for spec in grid.specs]
     if common_days:
         keep = _common([used for _, used in structures], grid)
         structures = [(exposure, keep) for exposure, _ in structures]
