@@ -22,6 +22,12 @@ model is fitted once (:func:`fit_confounders`) and each exposure model (:func:`f
 5. At convergence the exact information matrix is formed once (so standard errors are exact) and one
    exact Newton step with it polishes the coefficients to full precision.
 
+:func:`fit_exposure_only` returns only what a lag grid reports (exposure coefficients, their covariance
+block, dispersion, deviance, log-likelihood, QAIC) and skips step 5: the covariance block is the inverse
+Schur complement ``dispersion * (C - B.T A^-1 B)^-1`` with ``A^-1 B`` found by iterative refinement
+preconditioned with the fixed Hessian's confounder factor, in the same loop as the coefficients
+(method and accuracy argument in docs/engine.md).
+
 The negative binomial family with estimated theta always uses the plain path.
 
 References
@@ -516,8 +522,8 @@ def fit_exposure_only(
 ) -> ExposureFit:
     """Fit ``y ~ Z + E`` on ``rows`` and return only the exposure block, with exact inference.
 
-    The coefficients come from the fixed-Hessian iteration of :func:`fit_with_exposure` (plus one more
-    step in place of its exact Newton polish). The covariance of the exposure coefficients is the
+    The coefficients come from the fixed-Hessian iteration of :func:`fit_with_exposure` (stopped by the
+    same strict criterion, without its exact Newton polish). The covariance of the exposure coefficients is the
     inverse Schur complement ``dispersion * (C - B.T A^-1 B)^-1`` with ``A = Z.T W Z``, ``B = Z.T W E``,
     ``C = E.T W E`` at the converged weights ``W``; ``A^-1 B`` is found by iterative refinement
     preconditioned with the confounder fit's factor, so the ``n pc^2`` product ``Z.T W Z`` is never
