@@ -20,7 +20,7 @@ import math
 from dataclasses import asdict, dataclass
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from ..errors import SpecificationError
 
@@ -30,7 +30,7 @@ __all__ = ["Effect", "relative_risk", "risk_ratio_2x2"]
 def _z(level: float) -> float:
     if isinstance(level, bool) or not isinstance(level, int | float | np.number) or not 0 < level < 1:
         raise SpecificationError(f"confidence level must be between 0 and 1, got {level!r}.")
-    return float(stats.norm.ppf(0.5 + level / 2))
+    return float(special.ndtri(0.5 + level / 2))
 
 
 @dataclass(frozen=True)
@@ -99,7 +99,7 @@ def relative_risk(
     z = _z(level)
     rr = math.exp(per * coef)
     low, high = math.exp(per * (coef - z * se)), math.exp(per * (coef + z * se))
-    p = float(2 * stats.norm.sf(abs(coef) / se)) if se > 0 else float("nan")
+    p = float(2 * special.ndtr(-abs(coef) / se)) if se > 0 else float("nan")
     return Effect(
         exposure=exposure,
         lag=lag,
