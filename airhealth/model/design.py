@@ -8,6 +8,7 @@ reused by every lag structure in a comparison.
 
 from __future__ import annotations
 
+from collections import OrderedDict
 from dataclasses import dataclass
 from typing import Any
 
@@ -85,6 +86,43 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
     return frame
 
 
+_CACHE: OrderedDict[tuple[Any, ...], ConfounderBlock] = OrderedDict()
+_CACHE_SIZE = 4
+
+
+def _cache_key(frame: pd.DataFrame, spec: ModelSpec) -> tuple[Any, ...] | None:
+    """Key of a confounder block: the terms and a content hash of the columns they read."""
+    terms = spec.confounder_terms()
+    columns = [spec.date, *dict.fromkeys(c for t in terms for c in t.inputs)]
+    try:
+        digest = int(pd.util.hash_pandas_object(frame[columns], index=False).to_numpy().sum())
+        key = (terms, tuple(columns), len(frame), digest)
+        hash(key)
+    except TypeError:  # a term that cannot be hashed: no caching
+        return None
+    return key
+
+
+def cached_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
+    """:func:`build_confounders`, reusing the block of a recent call on the same data and terms.
+
+    Repeated fits on one data set (other exposures, lags or outcomes) share the confounder block. The key
+    includes a content hash of every column the terms read, so changed data never reuse a stale block; a
+    few recent blocks are kept (read-only).
+    """
+    key = _cache_key(frame, spec)
+    if key is not None and key in _CACHE:
+        _CACHE.move_to_end(key)
+        return _CACHE[key]
+    block = build_confounders(frame, spec)
+    if key is not None:
+        block.matrix.flags.writeable = False
+        _CACHE[key] = block
+        while len(_CACHE) > _CACHE_SIZE:
+            _CACHE.popitem(last=False)
+    return block
+
+
 def build_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
     """Intercept plus every confounder term of ``spec`` on the full calendar of ``frame``."""
     n = len(frame)
@@ -131,7 +169,7 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     Rows missing the outcome, any exposure lag or any confounder are left out and listed in ``dropped``
     with the reason (the outcome first, then the exposure, then the first confounder term missing).
     """
-    conf = confounders if confounders is not None else build_confounders(frame, spec)
+    conf = confounders if confounders is not None else cached_confounders(frame, spec)
     raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
     # an exposure-response term (crossbasis.CrossBasis) learns its knots from the whole exposure series
     lag = spec.lag.bind(raw, spec.exposure) if hasattr(spec.lag, "bind") else spec.lag
