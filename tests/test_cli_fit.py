@@ -10,6 +10,7 @@ import pytest
 
 import airhealth
 from airhealth.cli.main import main
+from airhealth.report.city_report import count_summary
 
 REQUIRED_KEYS = {
     "exposure",
@@ -131,7 +132,16 @@ def test_demo_writes_report_tables_and_figures(demo_dir: Path) -> None:
 
 
 def test_demo_suppresses_small_counts(demo_dir: Path) -> None:
-    dropped = pd.read_csv(demo_dir / "tables" / "dropped_days.csv", dtype=str)
-    values = dropped["days"].tolist()
-    assert all(v == "<5" or int(v) >= 5 for v in values)
-    assert "<5" in values  # the sample has reasons with 1-2 days
+    """Health counts below the threshold (5) are shown as '<5' in the page and the CSV; others are kept."""
+    shown = pd.read_csv(demo_dir / "tables" / "daily_counts.csv", dtype=str).set_index("outcome")
+    raw = count_summary(airhealth.load_sample(), list(shown.index)).set_index("outcome")
+    for outcome in shown.index:
+        for col in ("total", "min", "p25", "median", "p75", "max"):
+            value = raw.loc[outcome, col]
+            expected = "<5" if 0 < value < 5 else None
+            if expected:
+                assert shown.loc[outcome, col] == expected
+            else:
+                assert float(shown.loc[outcome, col]) == pytest.approx(value)
+    assert (raw[["min"]].to_numpy() < 5).any(), "the sample should have small daily minima to suppress"
+    assert "&lt;5" in (demo_dir / "index.html").read_text(encoding="utf-8")

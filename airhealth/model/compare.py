@@ -9,7 +9,7 @@ same estimates as a separate :func:`airhealth.fit` to rounding. The days each st
 design builder's drop rules (:mod:`airhealth.model.design`), so they are those of the single fit.
 
 Negative binomial models (theta is re-estimated for every structure) and exposure-response terms that
-learn from the data (cross-bases) use the plain path: one design and one :func:`fit_design` per structure.
+learn from the data (exposure-lag bases) use the plain path: one design and one :func:`fit_design` per structure.
 
 The grid runs with one BLAS thread (:func:`~airhealth._threads.single_threaded_blas`): on the 2-core
 machine it was measured on, a second BLAS thread did not speed up these products and made them several
@@ -122,7 +122,7 @@ def _confounder_fit(grid: _Grid) -> tuple[ConfounderFit, np.ndarray]:
 
 def _row(spec: ModelSpec, fit: ExposureFit, n_days: int, per: float, level: float) -> dict[str, Any]:
     """The tidy record of one structure, computed as :meth:`FitResult.to_dict` does."""
-    from ..report.effects import relative_risk  # as FitResult.effect does
+    from .effects import relative_risk  # as FitResult.effect does
 
     w = spec.lag.basis().sum(axis=0)
     e = relative_risk(float(w @ fit.coef), float(np.sqrt(w @ fit.cov @ w)), per=per, level=level)

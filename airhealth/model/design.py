@@ -25,6 +25,13 @@ __all__ = ["ConfounderBlock", "Design", "build_confounders", "build_design", "mo
 
 INTERCEPT = "(intercept)"
 
+#: Reasons a calendar day is left out of a fit (``Design.dropped``); confounder terms add "<term> missing".
+OUTCOME_MISSING = "outcome missing"
+EXPOSURE_MISSING = "exposure missing"
+EXPOSURE_IN_WINDOW = "exposure missing in lag window"
+LAG_BEFORE_START = "lag window starts before the first day"
+EXPOSURE_REASONS = (EXPOSURE_MISSING, EXPOSURE_IN_WINDOW, LAG_BEFORE_START)
+
 
 @dataclass(frozen=True)
 class ConfounderBlock:
@@ -55,7 +62,7 @@ class Design:
     confounders: ConfounderBlock
     exposure_values: np.ndarray  # exposure columns on the full calendar
     exposure_raw: np.ndarray  # the daily exposure series on the full calendar
-    lag: Any = None  # the lag structure as fitted (a cross-basis bound to the exposure), if it differs
+    lag: Any = None  # the lag structure as fitted (an exposure-lag basis bound to the exposure), if it differs
 
     @property
     def n_confounder_columns(self) -> int:
@@ -74,9 +81,7 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
     check_counts(frame[spec.outcome], spec.outcome, pd.DatetimeIndex(frame[spec.date]))
     check_not_all_missing(frame[spec.exposure], spec.exposure, "exposure")
     if not pd.api.types.is_numeric_dtype(frame[spec.exposure]):
-        raise DataError(
-            f"exposure column {spec.exposure!r} is not numeric (dtype {frame[spec.exposure].dtype})."
-        )
+        raise DataError(f"exposure column {spec.exposure!r} is not numeric (dtype {frame[spec.exposure].dtype}).")
     check_finite(frame, spec.columns_used(), pd.DatetimeIndex(frame[spec.date]))
     max_lag = spec.lag.max_lag
     if max_lag >= len(frame) - 1:
@@ -156,11 +161,46 @@ def _drop_reasons(
         reasons[(conf.first_missing == i) & (reasons == "")] = f"{block.name} missing"
     if offset is not None:
         reasons[~np.isfinite(offset)] = "offset missing"
-    reasons[missing_x & early & ~np.isnan(raw)] = "lag window starts before the first day"
-    reasons[missing_x & ~early] = "exposure missing in lag window"
-    reasons[missing_x & np.isnan(raw)] = "exposure missing"
-    reasons[~np.isfinite(y)] = "outcome missing"
+    reasons[missing_x & early & ~np.isnan(raw)] = LAG_BEFORE_START
+    reasons[missing_x & ~early] = EXPOSURE_IN_WINDOW
+    reasons[missing_x & np.isnan(raw)] = EXPOSURE_MISSING
+    reasons[~np.isfinite(y)] = OUTCOME_MISSING
     return reasons
+
+
+def _longest_unused_run(calendar: pd.DatetimeIndex, used: np.ndarray) -> tuple[pd.Timestamp, pd.Timestamp, int]:
+    edges = np.diff(np.r_[0, (~used).astype(np.int8), 0])
+    starts, ends = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
+    i = int(np.argmax(ends - starts))
+    return calendar[starts[i]], calendar[ends[i] - 1], int(ends[i] - starts[i])
+
+
+def _check_supported_columns(
+    matrix: np.ndarray,
+    names: tuple[str, ...],
+    conf: ConfounderBlock,
+    calendar: pd.DatetimeIndex,
+    used: np.ndarray,
+    dropped: pd.DataFrame,
+) -> None:
+    """Raise if confounder columns are zero on every usable day (a long run of unusable days).
+
+    Spline columns whose support lies inside a long gap (e.g. months without exposure data) cannot be
+    estimated; the engine would report them as collinear, which a user cannot act on.
+    """
+    k = conf.matrix.shape[1]
+    empty = np.flatnonzero(~np.any(matrix[:, 1:k] != 0, axis=0)) + 1
+    if not empty.size:
+        return
+    first, last, length = _longest_unused_run(calendar, used)
+    gap = dropped[(dropped["date"] >= first) & (dropped["date"] <= last)]["reason"].value_counts()
+    why = ", ".join(f"{r}: {c}" for r, c in gap.head(3).items())
+    shown = ", ".join(repr(names[j]) for j in empty[:4]) + (f" and {empty.size - 4} more" if empty.size > 4 else "")
+    raise DataError(
+        f"{empty.size} confounder column(s) ({shown}) are zero on every usable day: the {length} days from "
+        f"{first:%Y-%m-%d} to {last:%Y-%m-%d} cannot be used ({why}). Restrict the data to the period with "
+        "complete data, or lower trend_df_per_year."
+    )
 
 
 def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBlock | None = None) -> Design:
@@ -171,7 +211,7 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     """
     conf = confounders if confounders is not None else cached_confounders(frame, spec)
     raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
-    # an exposure-response term (crossbasis.CrossBasis) learns its knots from the whole exposure series
+    # an exposure-response term (exposure_lag.ExposureLagBasis) learns its knots from the whole exposure series
     lag = spec.lag.bind(raw, spec.exposure) if hasattr(spec.lag, "bind") else spec.lag
     exposure = lag.columns(raw)
     y = frame[spec.outcome].to_numpy(dtype=float, na_value=np.nan)
@@ -190,11 +230,18 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
             f"too few usable days ({n_used}) for a model with {p} parameters"
             + (f" (days dropped — {detail})" if detail else "")
             + "; use a longer series, fewer df per year or fewer terms."
+            + (
+                " Lags over several days need consecutive exposure days: with intermittent monitoring (e.g. "
+                "every third day) use single-day lags or MovingAverage(first, last, min_count=1)."
+                if (dropped["reason"] == EXPOSURE_IN_WINDOW).any()
+                else ""
+            )
         )
     matrix = np.empty((n_used, p))
     k = conf.matrix.shape[1]
     matrix[:, :k] = conf.matrix[used]
     matrix[:, k:] = exposure[used]
+    _check_supported_columns(matrix, names, conf, calendar, used, dropped)
     return Design(
         matrix=matrix,
         response=y[used],

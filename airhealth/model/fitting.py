@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import DataWarning, DispersionWarning
-from .design import Design, build_design, model_frame
+from .design import EXPOSURE_MISSING, EXPOSURE_REASONS, Design, build_design, model_frame
 from .engine import GLMFit, fit_glm
 from .result import FitResult
 from .spec import ModelSpec
@@ -49,10 +49,15 @@ def _warn_suspicious(design: Design, spec: ModelSpec, glm: GLMFit) -> None:
             DataWarning,
             stacklevel=4,
         )
-    n_missing = int((design.dropped["reason"] == "exposure missing").sum())
-    if n_missing > MISSING_EXPOSURE_WARN * len(design.calendar):
+    reasons = design.dropped["reason"]
+    n_lost = int(reasons.isin(EXPOSURE_REASONS).sum())
+    n_days = len(design.calendar)
+    if n_lost > MISSING_EXPOSURE_WARN * n_days:
+        n_missing = int((reasons == EXPOSURE_MISSING).sum())
         warnings.warn(
-            f"exposure {spec.exposure!r} is missing on {n_missing} of {len(design.calendar)} days.",
+            f"exposure {spec.exposure!r} (lag {spec.lag.label}) leaves {n_lost} of {n_days} days unusable "
+            f"({n_missing} days with no value, the rest with a missing day in the lag window); the fit uses "
+            f"{int(design.used.sum())} days. Consider a shorter lag window or MovingAverage(min_count=...).",
             DataWarning,
             stacklevel=4,
         )
@@ -67,12 +72,11 @@ def _warn_suspicious(design: Design, spec: ModelSpec, glm: GLMFit) -> None:
 
 def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
     """Package an engine fit and its design into a :class:`FitResult`."""
-    if design.lag is not None:  # keep the lag structure as fitted (e.g. a cross-basis with its knots)
+    if design.lag is not None:  # keep the lag structure as fitted (e.g. an exposure-lag basis with its knots)
         spec = spec.replace(lag=design.lag)
     names = list(design.column_names)
     dates = design.calendar[design.used]
-    as_entered = design.exposure_values.shape[1] == 1 and not spec.lag.is_distributed
-    exposure = design.exposure_values[design.used, 0] if as_entered else design.exposure_raw[design.used]
+    exposure = design.exposure_raw[design.used]
     q1, q3 = np.nanpercentile(exposure, [25, 75])
     return FitResult(
         spec=spec,

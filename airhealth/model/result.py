@@ -20,6 +20,8 @@ import numpy as np
 import pandas as pd
 
 from .._choices import check_choice
+from ..errors import SpecificationError
+from .effects import relative_risk
 from .spec import ModelSpec
 
 __all__ = ["FitResult"]
@@ -55,7 +57,8 @@ class FitResult:
     exposure_columns : tuple of str
         Names of the exposure term's coefficients.
     exposure_iqr : float
-        Interquartile range of the daily exposure on the days used (for effects per IQR).
+        Interquartile range of the daily exposure (not its lagged or averaged form) on the days used, for
+        effects per IQR; the same increment for every lag structure fitted on the same days.
     """
 
     spec: ModelSpec
@@ -115,13 +118,17 @@ class FitResult:
     def _per(self, per: float | None, scale: EffectScale) -> tuple[float, str]:
         check_choice("scale", scale, EffectScale)
         if scale == "iqr":
+            if per is not None:
+                raise SpecificationError("give either per=... or scale='iqr', not both.")
             return self.exposure_iqr, f"IQR ({self.exposure_iqr:.3g})"
         return (10.0 if per is None else float(per)), ""
 
-    def effect(self, per: float | None = 10.0, scale: EffectScale = "unit", level: float = 0.95) -> Any:
-        """Relative risk for an exposure increase of ``per`` units (or one IQR with ``scale="iqr"``).
+    def effect(self, per: float | None = None, scale: EffectScale = "unit", level: float = 0.95) -> Any:
+        """Relative risk for an exposure increase of ``per`` units (default 10), or one IQR with ``scale="iqr"``.
 
-        Returns an :class:`~airhealth.report.effects.Effect` with ``rr``, ``rr_low``, ``rr_high``,
+        The IQR is that of the daily exposure over the days used, the same for every lag structure.
+
+        Returns an :class:`~airhealth.model.effects.Effect` with ``rr``, ``rr_low``, ``rr_high``,
         ``percent_change`` and ``p_value``; for distributed lags it is the cumulative effect.
 
         Examples
@@ -132,8 +139,6 @@ class FitResult:
         >>> round(result.effect(per=10).rr, 3)  # doctest: +SKIP
         1.01
         """
-        from ..report.effects import relative_risk
-
         amount, label = self._per(per, scale)
         return relative_risk(
             self.exposure_coef,
@@ -147,8 +152,6 @@ class FitResult:
 
     def lag_effects(self, per: float = 10.0, level: float = 0.95) -> pd.DataFrame:
         """Per-lag relative risks for an increase of ``per`` units (``lag, coef, se, rr, rr_low, rr_high``)."""
-        from ..report.effects import relative_risk
-
         rows = []
         for lag, coef, se in self.lag_coefficients().itertuples(index=False):
             e = relative_risk(coef, se, per=per, level=level)
@@ -182,6 +185,7 @@ class FitResult:
             "p_value": e.p_value,
             "dispersion": self.dispersion,
             "qaic": self.qaic,
+            "exposure_iqr": self.exposure_iqr,
             "deviance": self.deviance,
             "df_resid": self.df_resid,
             "n_days": self.n_days,
@@ -223,7 +227,7 @@ class FitResult:
         return self.dropped["reason"].value_counts().rename("days")
 
     def __repr__(self) -> str:
-        if getattr(self.spec.lag, "is_nonlinear", False):  # no per-unit effect (crossbasis.CrossBasis)
+        if getattr(self.spec.lag, "is_nonlinear", False):  # no per-unit effect (exposure_lag.ExposureLagBasis)
             return (
                 f"<FitResult {self.spec.outcome} ~ {self.spec.exposure} [{self.spec.lag.label}] "
                 f"({self.spec.family}): non-linear exposure-response, dispersion {self.dispersion:.3f}, "

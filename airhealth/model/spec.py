@@ -148,6 +148,19 @@ class ModelSpec:
         TimeSpline(self.trend_df_per_year)  # validates the value
         if self.exposure == self.outcome:
             raise SpecificationError(f"outcome and exposure are the same column, {self.outcome!r}.")
+        self._check_roles()
+
+    def _check_roles(self) -> None:
+        """The exposure and outcome must not also enter the model as confounders."""
+        roles = {"temperature": self.temperature, "humidity": self.humidity, "offset": self.offset}
+        roles.update({f"confounder {t.name}": c for t in self.confounders for c in t.inputs})
+        for role, column in roles.items():
+            for name, what in ((self.exposure, "exposure"), (self.outcome, "outcome")):
+                if column == name:
+                    hint = " (for temperature as the exposure, set temperature=None)" if role == "temperature" else ""
+                    raise SpecificationError(
+                        f"column {name!r} is both the {what} and the {role}; a column can enter the model once{hint}."
+                    )
 
     @classmethod
     def from_options(cls, **options: Any) -> ModelSpec:

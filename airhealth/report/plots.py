@@ -32,9 +32,7 @@ def plot_observed_fitted(result: Any, ax: Any = None) -> Any:
     return ax
 
 
-def plot_effects(
-    table: Any, labels: Sequence[str] | None = None, ax: Any = None, per_label: str = "10 units"
-) -> Any:
+def plot_effects(table: Any, labels: Sequence[str] | None = None, ax: Any = None, per_label: str = "10 units") -> Any:
     """Relative risks with intervals, one row per line of an effects table (a forest-style plot)."""
     n = len(table)
     ax = new_axes(ax, (6.5, 0.35 * n + 1.2))

@@ -88,7 +88,6 @@ def result_html(result: Any) -> str:
         ("converged", f"{result.converged} ({result.n_iter} iterations)"),
     ]
     body = "".join(
-        f"<tr><th style='text-align:left'>{html.escape(k)}</th><td>{html.escape(str(v))}</td></tr>"
-        for k, v in rows
+        f"<tr><th style='text-align:left'>{html.escape(k)}</th><td>{html.escape(str(v))}</td></tr>" for k, v in rows
     )
     return f"<table><caption>airhealth fit</caption><tbody>{body}</tbody></table>"
