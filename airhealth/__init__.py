@@ -16,8 +16,8 @@ from .errors import (
     SpecificationError,
 )
 from .model.compare import compare
-from .model.crossbasis import CrossBasis, CrossBasisTerm, LinearResponse, SplineResponse, ThresholdResponse
 from .model.distributed_lags import PolynomialLag, SplineLag, UnconstrainedLag
+from .model.exposure_lag import ExposureLagBasis, ExposureLagTerm, LinearResponse, SplineResponse, ThresholdResponse
 from .model.fitting import fit
 from .model.lag_predictions import exposure_response, lag_response, minimum_risk_exposure
 from .model.lag_structures import MovingAverage, SingleDay, parse_lag
@@ -34,11 +34,11 @@ __all__ = [
     "AirhealthWarning",
     "Categorical",
     "ConvergenceWarning",
-    "CrossBasis",
-    "CrossBasisTerm",
     "DataError",
     "DataWarning",
     "DispersionWarning",
+    "ExposureLagBasis",
+    "ExposureLagTerm",
     "FitError",
     "FitResult",
     "Linear",

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 
 from airhealth.errors import DataWarning, SpecificationError
-from airhealth.model.crossbasis import CrossBasis, CrossBasisTerm, LinearResponse, SplineResponse
+from airhealth.model.exposure_lag import ExposureLagBasis, ExposureLagTerm, LinearResponse, SplineResponse
 from airhealth.model.fitting import fit
 from airhealth.model.lag_predictions import (
     exposure_response,
@@ -22,7 +22,7 @@ from airhealth.model.lag_predictions import (
 from airhealth.simulate import MINIMUM_MORTALITY_TEMPERATURE
 
 Z95 = 1.959963984540054
-TEMPERATURE_TERM = CrossBasisTerm("temperature", SplineResponse(df=4), "dl0-21:spline4")
+TEMPERATURE_TERM = ExposureLagTerm("temperature", SplineResponse(df=4), "dl0-21:spline4")
 
 
 @pytest.fixture(scope="module")
@@ -37,7 +37,7 @@ def temperature_confounder_fit(_sample_once):
 
 @pytest.fixture(scope="module")
 def temperature_exposure_fit(_sample_once):
-    lag = CrossBasis(SplineResponse(df=4), "dl0-21:spline4")
+    lag = ExposureLagBasis(SplineResponse(df=4), "dl0-21:spline4")
     return fit(_sample_once, "deaths_all", "temperature", lag=lag)
 
 
@@ -45,12 +45,12 @@ def temperature_exposure_fit(_sample_once):
 
 
 def test_linear_cumulative_and_per_lag_effects_match_the_result(dl_fit):
-    cum = exposure_response(dl_fit, at=[10.0], reference=0.0).iloc[0]
+    cum = exposure_response(dl_fit, values=[10.0], reference=0.0).iloc[0]
     e = dl_fit.effect(per=10)
     assert cum["rr"] == pytest.approx(e.rr, rel=1e-12)
     assert cum["rr_low"] == pytest.approx(e.rr_low, rel=1e-12)
     assert cum["se"] == pytest.approx(10 * e.se, rel=1e-12)
-    per_lag = exposure_response(dl_fit, at=[10.0], per_lag=True)
+    per_lag = exposure_response(dl_fit, values=[10.0], per_lag=True)
     table = dl_fit.lag_effects(per=10)
     np.testing.assert_allclose(per_lag["rr"], table["rr"], rtol=1e-12)
     np.testing.assert_allclose(per_lag["rr_high"], table["rr_high"], rtol=1e-12)
@@ -64,10 +64,10 @@ def test_cumulative_se_is_the_b_v_bt_form(dl_fit):
     v = dl_fit.cov.loc[cols, cols].to_numpy()
     c = dl_fit.spec.lag.basis()
     w = c.sum(axis=0)
-    row = exposure_response(dl_fit, at=[1.0], reference=0.0).iloc[0]
+    row = exposure_response(dl_fit, values=[1.0], reference=0.0).iloc[0]
     assert row["se"] == pytest.approx(np.sqrt(w @ v @ w), rel=1e-12)
     assert row["rr_high"] == pytest.approx(np.exp(row["coef"] + Z95 * row["se"]), rel=1e-12)
-    per_lag = exposure_response(dl_fit, at=[1.0], reference=0.0, per_lag=True)
+    per_lag = exposure_response(dl_fit, values=[1.0], reference=0.0, per_lag=True)
     np.testing.assert_allclose(per_lag["se"], np.sqrt(np.diag(c @ v @ c.T)), rtol=1e-12)
     assert per_lag["coef"].sum() == pytest.approx(row["coef"], rel=1e-12)
 
@@ -86,19 +86,19 @@ def test_linear_term_without_a_recorded_range_needs_explicit_values(dl_fit):
     with pytest.raises(SpecificationError, match=r"does not record the observed exposure range"):
         minimum_risk_exposure(dl_fit)
     with pytest.raises(SpecificationError, match=r"does not record the observed exposure range"):
-        exposure_response(dl_fit)  # no at= and no recorded range to make a grid from
+        exposure_response(dl_fit)  # no values= and no recorded range to make a grid from
 
 
 # ------------------------------------------------------------------------------- non-linear terms
 
 
 def test_non_linear_per_lag_effects_add_up_to_the_cumulative_one(temperature_exposure_fit):
-    at = [-5.0, 0.0, 25.0]
-    cum = exposure_response(temperature_exposure_fit, at=at, reference=19.0)
-    per_lag = exposure_response(temperature_exposure_fit, at=at, reference=19.0, per_lag=True)
+    values = [-5.0, 0.0, 25.0]
+    cum = exposure_response(temperature_exposure_fit, values=values, reference=19.0)
+    per_lag = exposure_response(temperature_exposure_fit, values=values, reference=19.0, per_lag=True)
     assert len(per_lag) == 3 * 22
     sums = per_lag.groupby("exposure")["coef"].sum()
-    np.testing.assert_allclose(sums.loc[at].to_numpy(), cum["coef"].to_numpy(), rtol=1e-12)
+    np.testing.assert_allclose(sums.loc[values].to_numpy(), cum["coef"].to_numpy(), rtol=1e-12)
 
 
 def test_non_linear_cumulative_se_by_hand(temperature_exposure_fit):
@@ -109,10 +109,10 @@ def test_non_linear_cumulative_se_by_hand(temperature_exposure_fit):
     b = np.kron(f[0] - f[1], cb.lag.basis().sum(axis=0))
     cols = list(res.exposure_columns)
     theta, v = res.coef[cols].to_numpy(), res.cov.loc[cols, cols].to_numpy()
-    row = exposure_response(res, at=[25.0], reference=19.0).iloc[0]
+    row = exposure_response(res, values=[25.0], reference=19.0).iloc[0]
     assert row["coef"] == pytest.approx(b @ theta, rel=1e-12)
     assert row["se"] == pytest.approx(np.sqrt(b @ v @ b), rel=1e-12)
-    at_ref = exposure_response(res, at=[19.0], reference=19.0).iloc[0]
+    at_ref = exposure_response(res, values=[19.0], reference=19.0).iloc[0]
     assert at_ref["coef"] == 0 and at_ref["se"] == 0 and at_ref["rr"] == 1
 
 
@@ -139,7 +139,7 @@ def test_minimum_mortality_temperature_of_the_sample(request, fixture):
     assert 60 < mmt.percentile < 95
     assert mmt.low < MINIMUM_MORTALITY_TEMPERATURE < mmt.high
     # cold is harmful: -5 °C against the minimum, cumulated over 22 days, raises deaths
-    cold = exposure_response(res, at=[-5.0], reference=mmt.exposure, term=term).iloc[0]
+    cold = exposure_response(res, values=[-5.0], reference=mmt.exposure, term=term).iloc[0]
     assert cold["rr_low"] > 1.1
 
 
@@ -161,12 +161,12 @@ def test_simulated_u_shape_minimum_is_found():
     effect = 0.004 * (temp[1:] - 16) ** 2 + 0.002 * (temp[:-1] - 16) ** 2
     y = rng.poisson(40 * np.exp(effect - effect.mean()))
     frame = pd.DataFrame({"date": pd.date_range("2012-01-01", periods=n), "deaths": y, "t": temp[1:]})
-    res = fit(frame, "deaths", "t", lag=CrossBasis(SplineResponse(df=4), "dl0-3"), trend_df_per_year=2)
+    res = fit(frame, "deaths", "t", lag=ExposureLagBasis(SplineResponse(df=4), "dl0-3"), trend_df_per_year=2)
     assert minimum_risk_exposure(res).exposure == pytest.approx(16.0, abs=1.0)
 
 
 def test_lag_response_of_a_non_linear_term(temperature_confounder_fit):
-    heat = lag_response(temperature_confounder_fit, at=26.0, reference=19.0, term="temperature")
+    heat = lag_response(temperature_confounder_fit, value=26.0, reference=19.0, term="temperature")
     assert list(heat.columns) == ["lag", "coef", "se", "rr", "rr_low", "rr_high"]
     assert len(heat) == 22
     assert heat["rr"].iloc[0] > heat["rr"].iloc[10]  # heat acts at short lags
@@ -179,21 +179,21 @@ def test_lag_response_of_a_non_linear_term(temperature_confounder_fit):
 
 def test_reference_outside_the_exposure_range_is_refused(temperature_confounder_fit):
     with pytest.raises(SpecificationError, match=r"reference value 40 is outside the observed range of 'temperature'"):
-        exposure_response(temperature_confounder_fit, at=[25.0], reference=40.0, term="temperature")
+        exposure_response(temperature_confounder_fit, values=[25.0], reference=40.0, term="temperature")
     with pytest.raises(SpecificationError, match=r"reference exposure must be a finite number"):
-        exposure_response(temperature_confounder_fit, at=[25.0], reference=float("nan"), term="temperature")
+        exposure_response(temperature_confounder_fit, values=[25.0], reference=float("nan"), term="temperature")
 
 
 def test_exposure_values_outside_the_range_warn(temperature_confounder_fit):
     with pytest.warns(DataWarning, match=r"outside the observed range of 'temperature'.*extrapolation"):
-        exposure_response(temperature_confounder_fit, at=[35.0], reference=19.0, term="temperature")
+        exposure_response(temperature_confounder_fit, values=[35.0], reference=19.0, term="temperature")
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        exposure_response(temperature_confounder_fit, at=[25.0], reference=19.0, term="temperature")
+        exposure_response(temperature_confounder_fit, values=[25.0], reference=19.0, term="temperature")
 
 
-def test_unknown_term_lists_the_cross_basis_terms(temperature_confounder_fit):
-    with pytest.raises(SpecificationError, match=r"no cross-basis terms matching 'humidity'.*temperature\[spline"):
+def test_unknown_term_lists_the_exposure_lag_terms(temperature_confounder_fit):
+    with pytest.raises(SpecificationError, match=r"no exposure-lag terms matching 'humidity'.*temperature\[spline"):
         find_lag_term(temperature_confounder_fit, "humidity")
     assert find_lag_term(temperature_confounder_fit, TEMPERATURE_TERM).exposure == "temperature"
 
@@ -201,9 +201,9 @@ def test_unknown_term_lists_the_cross_basis_terms(temperature_confounder_fit):
 @pytest.mark.parametrize(
     ("kwargs", "words"),
     [
-        ({"at": []}, "at must be one or more finite exposure values"),
-        ({"at": [np.nan]}, "at must be one or more finite exposure values"),
-        ({"at": [10.0], "level": 1.5}, "confidence level"),
+        ({"values": []}, "values must be one or more finite exposure values"),
+        ({"values": [np.nan]}, "values must be one or more finite exposure values"),
+        ({"values": [10.0], "level": 1.5}, "confidence level"),
     ],
 )
 def test_bad_prediction_arguments(temperature_exposure_fit, kwargs, words):
@@ -211,28 +211,38 @@ def test_bad_prediction_arguments(temperature_exposure_fit, kwargs, words):
         exposure_response(temperature_exposure_fit, **kwargs)
 
 
-def test_linear_cross_basis_records_the_range_for_minimum_and_reference(sample):
-    res = fit(sample, "deaths_all", "pm25", lag=CrossBasis(LinearResponse(), "dl0-5"), temperature="temperature")
+def test_linear_exposure_lag_basis_records_the_range_for_minimum_and_reference(sample):
+    res = fit(sample, "deaths_all", "pm25", lag=ExposureLagBasis(LinearResponse(), "dl0-5"), temperature="temperature")
     low = res.spec.lag.response.summary.low
     assert minimum_risk_exposure(res).exposure == pytest.approx(low if res.exposure_coef > 0 else 70.2)
     with pytest.raises(SpecificationError, match=r"reference value 500 is outside the observed range of 'pm25'"):
-        exposure_response(res, at=[10.0], reference=500.0)
+        exposure_response(res, values=[10.0], reference=500.0)
 
 
 # ------------------------------------------------------------------------------- plots and section
 
 
-def test_lag_response_plot_draws_the_band_and_curve(dl_fit):
-    from matplotlib.axes import Axes
+def _band_limits(band, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Lower and upper edge of a fill_between band at each x (from the polygon's vertices)."""
+    verts = band.get_paths()[0].vertices
+    at_x = [verts[np.isclose(verts[:, 0], v), 1] for v in x]
+    return np.array([ys.min() for ys in at_x]), np.array([ys.max() for ys in at_x])
 
+
+def test_lag_response_plot_draws_the_band_and_curve(dl_fit):
     from airhealth.report.lag_plots import plot_lag_response
 
     ax = plot_lag_response(dl_fit, per=10)
-    assert isinstance(ax, Axes)
+    table = dl_fit.lag_effects(per=10)
     line = ax.get_lines()[0]
-    np.testing.assert_allclose(line.get_ydata(), dl_fit.lag_effects(per=10)["rr"], rtol=1e-12)
+    np.testing.assert_array_equal(line.get_xdata(), np.arange(22))
+    np.testing.assert_allclose(line.get_ydata(), table["rr"], rtol=1e-12)
     assert len(ax.collections) == 1  # the interval band
-    assert ax.get_xlabel() == "lag (days)"
+    low, high = _band_limits(ax.collections[0], np.arange(22))
+    np.testing.assert_allclose(low, table["rr_low"], rtol=1e-12)
+    np.testing.assert_allclose(high, table["rr_high"], rtol=1e-12)
+    assert ax.get_lines()[1].get_ydata()[0] == 1.0  # the RR = 1 reference line
+    assert ax.get_xlabel() == "lag (days)" and ax.get_ylabel() == "RR per 10 units"
 
 
 def test_exposure_response_plot_marks_the_minimum_and_shows_the_distribution(temperature_confounder_fit):
@@ -245,14 +255,20 @@ def test_exposure_response_plot_marks_the_minimum_and_shows_the_distribution(tem
     out = plot_exposure_response(temperature_confounder_fit, term="temperature", ax=ax)
     assert out is ax
     mmt = minimum_risk_exposure(temperature_confounder_fit, term="temperature")
+    expected = exposure_response(temperature_confounder_fit, term="temperature")  # same default grid and reference
     curve, band, minimum = ax.get_lines()[0], ax.collections[0], ax.get_lines()[2]
+    np.testing.assert_allclose(curve.get_xdata(), expected["exposure"], rtol=1e-12)
+    np.testing.assert_allclose(curve.get_ydata(), expected["rr"], rtol=1e-12)
     assert curve.get_ydata().min() == pytest.approx(1.0, abs=1e-4)  # 100-point curve vs 400-point search
+    low, high = _band_limits(band, expected["exposure"].to_numpy())
+    np.testing.assert_allclose(low, expected["rr_low"], rtol=1e-12)
+    np.testing.assert_allclose(high, expected["rr_high"], rtol=1e-12)
     assert minimum.get_xdata()[0] == pytest.approx(mmt.exposure)
-    assert band is not None
     histogram = [a for a in fig.axes if a is not ax]
     assert len(histogram) == 1
     counts = find_lag_term(temperature_confounder_fit, "temperature").summary.counts
-    assert sum(p.get_height() for p in histogram[0].patches) == sum(counts) == 5113
+    assert [p.get_height() for p in histogram[0].patches] == list(counts)
+    assert sum(counts) == 5113
 
 
 def test_surface_plots(temperature_exposure_fit):
@@ -260,29 +276,59 @@ def test_surface_plots(temperature_exposure_fit):
 
     ax = plot_exposure_lag_surface(temperature_exposure_fit, reference=19.0, n_exposure=30)
     assert ax.get_ylabel() == "temperature" and len(ax.figure.axes) == 2  # contour and colour bar
+    summary = temperature_exposure_fit.spec.lag.response.summary
+    grid = np.linspace(summary.low, summary.high, 30)
+    rr = exposure_response(temperature_exposure_fit, values=grid, reference=19.0, per_lag=True)["rr"].to_numpy()
+    filled, one = ax.collections[0], ax.collections[1]
+    levels = np.asarray(filled.levels)
+    assert levels.size >= 10  # about 21 filled levels (matplotlib rounds them)
+    assert levels.min() <= rr.min() and levels.max() >= rr.max()  # the levels span the surface values
+    assert levels[1] > rr.min() and levels[-2] < rr.max()  # and not much more
+    np.testing.assert_array_equal(one.levels, [1.0])  # the RR = 1 contour
     ax3d = plot_exposure_lag_surface(temperature_exposure_fit, reference=19.0, kind="surface", n_exposure=20)
     assert ax3d.name == "3d"
+    z = ax3d.collections[0].get_array()  # face colours come from the RR values of the 19 × 21 facets
+    assert z is not None and z.size == 19 * 21
+    assert z.min() >= rr.min() - 1e-9 and z.max() <= rr.max() + 1e-9
     with pytest.raises(SpecificationError, match="kind"):
         plot_exposure_lag_surface(temperature_exposure_fit, kind="mesh")
 
 
 def test_lag_structure_section(sample):
-    from airhealth.report.document import Figure, Section, Table, Text
+    from airhealth.model.distributed_lags import SplineLag
+    from airhealth.report.document import Figure, Table, Text
     from airhealth.report.lag_section import lag_structure_section
 
     section = lag_structure_section(sample, "deaths_all", "pm25", temperature="temperature")
-    assert isinstance(section, Section) and section.title == "Lag structures"
+    assert section.title == "Lag structures"
     tables = {b.name: b for b in section.blocks if isinstance(b, Table)}
-    figures = [b.name for b in section.blocks if isinstance(b, Figure)]
+    figures = {b.name: b for b in section.blocks if isinstance(b, Figure)}
     comparison = tables["lag_structures"].frame
     assert comparison["lag"].tolist() == ["0", "1", "2", "3", "4", "5", "dl0-5", "dl0-21:spline4"]
     assert (comparison["kind"] == "distributed lag (cumulative)").sum() == 2
-    assert set(tables["lag_effects"].frame["lag_structure"]) == {"dl0-5", "dl0-21:spline4"}
-    assert figures == [
+    dl5 = fit(sample, "deaths_all", "pm25", lag="dl0-5", temperature="temperature")
+    e = dl5.effect(per=10)
+    assert comparison["RR (95% CI)"].iloc[6] == f"{e.rr:.3f} ({e.rr_low:.3f} to {e.rr_high:.3f})"
+    per_lag = tables["lag_effects"].frame
+    assert per_lag["lag_structure"].value_counts().to_dict() == {"dl0-21:spline4": 22, "dl0-5": 6}
+    np.testing.assert_allclose(
+        per_lag.loc[per_lag["lag_structure"] == "dl0-5", "rr"], dl5.lag_effects(10)["rr"], rtol=1e-9
+    )
+    assert list(figures) == [
         "lag_response_dl0_5",
         "lag_response_dl0_21_spline4",
         "temperature_exposure_response",
         "temperature_exposure_lag_surface",
     ]
+    curve = figures["lag_response_dl0_5"].figure.axes[0].get_lines()[0]
+    np.testing.assert_allclose(curve.get_ydata(), dl5.lag_effects(10)["rr"], rtol=1e-9)
+    # the temperature paragraph reports the minimum and the pollutant effect of this very model
+    term = ExposureLagTerm("temperature", SplineResponse(df=4), SplineLag(0, 21, 4))
+    with_term = fit(sample, "deaths_all", "pm25", lag="dl0-5", temperature=None, confounders=[term])
+    mmt, effect = minimum_risk_exposure(with_term, term=term), with_term.effect(per=10)
     text = " ".join(b.text for b in section.blocks if isinstance(b, Text))
-    assert "lowest at temperature 18." in text
+    assert f"lowest at temperature {mmt.exposure:.1f} (the {mmt.percentile:.0f}th percentile" in text
+    assert f"from {mmt.low:.1f} to {mmt.high:.1f}" in text
+    assert f"RR {effect.rr:.4f} per 10 ({effect.rr_low:.4f} to {effect.rr_high:.4f})" in text
+    assert "lowest at temperature 18." in text  # the simulator's truth is 19 °C (see the test above)
+    assert f"against {mmt.exposure:.1f}" in figures["temperature_exposure_lag_surface"].title

@@ -36,7 +36,7 @@ import pandas as pd
 from scipy import stats
 
 from ..errors import DataWarning, SpecificationError
-from .crossbasis import CrossBasis, CrossBasisTerm, LinearResponse
+from .exposure_lag import ExposureLagBasis, ExposureLagTerm, LinearResponse
 from .result import FitResult
 
 __all__ = [
@@ -53,9 +53,9 @@ GRID_SIZE = 400
 
 @dataclass(frozen=True)
 class LagTerm:
-    """A fitted lag term of a result: its cross-basis, exposure name, coefficients and covariance."""
+    """A fitted lag term of a result: its exposure–lag basis, exposure name, coefficients and covariance."""
 
-    basis: CrossBasis
+    basis: ExposureLagBasis
     exposure: str
     coef: np.ndarray
     cov: np.ndarray
@@ -79,20 +79,20 @@ def _block(result: FitResult, names: Sequence[str]) -> tuple[np.ndarray, np.ndar
     return result.coef[cols].to_numpy(), result.cov.loc[cols, cols].to_numpy()
 
 
-def find_lag_term(result: FitResult, term: str | CrossBasisTerm | None = None) -> LagTerm:
-    """The exposure term (``term=None``) or a cross-basis confounder term (by column, name or object)."""
+def find_lag_term(result: FitResult, term: str | ExposureLagTerm | None = None) -> LagTerm:
+    """The exposure term (``term=None``) or an exposure–lag confounder term (by column, name or object)."""
     if term is None:
         lag = result.spec.lag
-        basis = lag if isinstance(lag, CrossBasis) else CrossBasis(LinearResponse(), lag)
+        basis = lag if isinstance(lag, ExposureLagBasis) else ExposureLagBasis(LinearResponse(), lag)
         return LagTerm(basis, result.spec.exposure, *_block(result, result.exposure_columns))
-    name = term.name if isinstance(term, CrossBasisTerm) else str(term)
-    bases = {k: b for k, b in (result.bases or {}).items() if isinstance(b, CrossBasis)}
+    name = term.name if isinstance(term, ExposureLagTerm) else str(term)
+    bases = {k: b for k, b in (result.bases or {}).items() if isinstance(b, ExposureLagBasis)}
     matches = [k for k in bases if k == name] or [k for k in bases if k.startswith(f"{name}[")]
     if len(matches) != 1:
         known = ", ".join(repr(k) for k in bases) or "none"
         what = "several" if matches else "no"
         raise SpecificationError(
-            f"the model has {what} cross-basis terms matching {name!r}; its cross-basis terms are: {known}."
+            f"the model has {what} exposure-lag terms matching {name!r}; its exposure-lag terms are: {known}."
         )
     basis = bases[matches[0]]
     column = matches[0][: matches[0].index("[")]
@@ -109,7 +109,7 @@ def _grid(lt: LagTerm, size: int, within: tuple[float, float] | None = None) -> 
     if lt.summary is None:
         raise SpecificationError(
             f"the lag term of {lt.exposure!r} does not record the observed exposure range; give exposure "
-            "values with at=[...], or fit with lag=CrossBasis(LinearResponse(), lag) to keep the range."
+            "values with values=[...], or fit with lag=ExposureLagBasis(LinearResponse(), lag) to keep the range."
         )
     lo, hi = lt.summary.low, lt.summary.high
     if within is not None:
@@ -129,16 +129,16 @@ def _reference(lt: LagTerm, reference: float | None) -> float:
     return float(reference)
 
 
-def _values(lt: LagTerm, at: Any) -> np.ndarray:
-    if at is None:
+def _values(lt: LagTerm, given: Any) -> np.ndarray:
+    if given is None:
         return _grid(lt, 100)
-    values = np.atleast_1d(np.asarray(at, dtype=float))
+    values = np.atleast_1d(np.asarray(given, dtype=float))
     if values.ndim != 1 or values.size == 0 or not np.isfinite(values).all():
-        raise SpecificationError(f"at must be one or more finite exposure values, got {at!r}.")
+        raise SpecificationError(f"values must be one or more finite exposure values, got {given!r}.")
     s = lt.summary
     if s is not None and ((values < s.low) | (values > s.high)).any():
         warnings.warn(
-            f"some exposure values in at lie outside the observed range of {lt.exposure!r} "
+            f"some of the exposure values lie outside the observed range of {lt.exposure!r} "
             f"({s.low:g} to {s.high:g}); the curve there is an extrapolation.",
             DataWarning,
             stacklevel=3,
@@ -158,28 +158,28 @@ def _table(coef: np.ndarray, se: np.ndarray, z: float, reference: float, **index
 
 def exposure_response(
     result: FitResult,
-    at: Sequence[float] | np.ndarray | None = None,
+    values: Sequence[float] | np.ndarray | None = None,
     reference: float | None = None,
     per_lag: bool = False,
-    term: str | CrossBasisTerm | None = None,
+    term: str | ExposureLagTerm | None = None,
     level: float = 0.95,
 ) -> pd.DataFrame:
-    """Relative risk at exposure values ``at`` against ``reference``, cumulated over lags or per lag.
+    """Relative risk at exposure ``values`` against ``reference``, cumulated over lags or per lag.
 
     Parameters
     ----------
     result : FitResult
-        A fitted model whose exposure term (or confounder ``term``) is a lag structure or cross-basis.
-    at : sequence of float, optional
+        A fitted model whose exposure term (or confounder ``term``) is a lag structure or exposure–lag basis.
+    values : sequence of float, optional
         Exposure values (default: 100 values spanning the observed range). Values outside the observed
         range give a :class:`~airhealth.errors.DataWarning` (extrapolation).
     reference : float, optional
         Reference exposure, which must lie within the observed range. Default: the exposure of lowest
-        cumulative risk for a non-linear term, 0 for a linear one (so ``at=[10]`` gives the RR per 10 units).
+        cumulative risk for a non-linear term, 0 for a linear one (so ``values=[10]`` gives the RR per 10 units).
     per_lag : bool
         One row per exposure value and lag instead of the cumulative effect.
-    term : str or CrossBasisTerm, optional
-        A cross-basis confounder term (e.g. ``"temperature"``) instead of the exposure term.
+    term : str or ExposureLagTerm, optional
+        An exposure–lag confounder term (e.g. ``"temperature"``) instead of the exposure term.
     level : float
         Confidence level of the Wald intervals.
 
@@ -192,14 +192,14 @@ def exposure_response(
     Examples
     --------
     >>> import airhealth
-    >>> from airhealth.model.crossbasis import CrossBasis, SplineResponse
+    >>> from airhealth.model.exposure_lag import ExposureLagBasis, SplineResponse
     >>> res = airhealth.fit(airhealth.load_sample(), "deaths_all", "temperature",
-    ...                     lag=CrossBasis(SplineResponse(df=4), "dl0-21:spline4"))  # doctest: +SKIP
-    >>> exposure_response(res, at=[-2.0, 25.0], reference=19.0)  # doctest: +SKIP
+    ...                     lag=ExposureLagBasis(SplineResponse(df=4), "dl0-21:spline4"))  # doctest: +SKIP
+    >>> exposure_response(res, values=[-2.0, 25.0], reference=19.0)  # doctest: +SKIP
     """
     lt = find_lag_term(result, term)
     z = _z(level)
-    values = _values(lt, at)
+    values = _values(lt, values)
     ref = _reference(lt, reference)
     if per_lag:
         rows = lt.basis.contrast_rows(values, ref, cumulative=False)
@@ -212,23 +212,23 @@ def exposure_response(
 
 def lag_response(
     result: FitResult,
-    at: float | None = None,
+    value: float | None = None,
     reference: float | None = None,
     per: float = 10.0,
-    term: str | CrossBasisTerm | None = None,
+    term: str | ExposureLagTerm | None = None,
     level: float = 0.95,
 ) -> pd.DataFrame:
     """Relative risk at each lag (``lag, coef, se, rr, rr_low, rr_high``).
 
-    For a linear exposure term with ``at=None`` this is :meth:`FitResult.lag_effects` for an increase of
-    ``per`` units; otherwise the effect of exposure ``at`` against ``reference`` at each lag.
+    For a linear exposure term with ``value=None`` this is :meth:`FitResult.lag_effects` for an increase of
+    ``per`` units; otherwise the effect of exposure ``value`` against ``reference`` at each lag.
     """
     lt = find_lag_term(result, term)
-    if at is None:
+    if value is None:
         if term is None and lt.basis.response.is_linear:
             return result.lag_effects(per=per, level=level)
-        raise SpecificationError("give the exposure value at which to show the lag-response, e.g. at=30.")
-    table = exposure_response(result, at=[at], reference=reference, per_lag=True, term=term, level=level)
+        raise SpecificationError("give the exposure value at which to show the lag-response, e.g. value=30.")
+    table = exposure_response(result, values=[value], reference=reference, per_lag=True, term=term, level=level)
     return table.drop(columns="exposure")
 
 
@@ -273,7 +273,7 @@ def minimum_risk_exposure_of(
 
 def minimum_risk_exposure(
     result: FitResult,
-    term: str | CrossBasisTerm | None = None,
+    term: str | ExposureLagTerm | None = None,
     within: tuple[float, float] | None = None,
     grid_size: int = GRID_SIZE,
     level: float = 0.95,
@@ -287,8 +287,8 @@ def minimum_risk_exposure(
     Examples
     --------
     >>> import airhealth
-    >>> from airhealth.model.crossbasis import CrossBasisTerm, SplineResponse
-    >>> term = CrossBasisTerm("temperature", SplineResponse(df=4), "dl0-21:spline4")
+    >>> from airhealth.model.exposure_lag import ExposureLagTerm, SplineResponse
+    >>> term = ExposureLagTerm("temperature", SplineResponse(df=4), "dl0-21:spline4")
     >>> res = airhealth.fit(airhealth.load_sample(), "deaths_all", "pm25", lag="0-1",
     ...                     confounders=[term])  # doctest: +SKIP
     >>> minimum_risk_exposure(res, term="temperature").exposure  # doctest: +SKIP

@@ -33,7 +33,7 @@ def _reference_line(ax: Any) -> None:
 
 def plot_lag_response(
     result: Any,
-    at: float | None = None,
+    value: float | None = None,
     reference: float | None = None,
     per: float = 10.0,
     term: Any = None,
@@ -42,21 +42,21 @@ def plot_lag_response(
 ) -> Any:
     """Relative risk by lag with its interval band.
 
-    For a linear exposure term (``at=None``) the RR per ``per`` units at each lag; for a non-linear term
-    (or with ``at``) the RR of exposure ``at`` against ``reference`` at each lag.
+    For a linear exposure term (``value=None``) the RR per ``per`` units at each lag; for a non-linear term
+    (or with ``value``) the RR of exposure ``value`` against ``reference`` at each lag.
     """
     ax = new_axes(ax, (6.5, 3.5))
-    table = lag_response(result, at=at, reference=reference, per=per, term=term, level=level)
+    table = lag_response(result, value=value, reference=reference, per=per, term=term, level=level)
     lags = table["lag"].to_numpy()
     ax.fill_between(lags, table["rr_low"], table["rr_high"], **BAND, label=f"{level:.0%} CI")
     ax.plot(lags, table["rr"], "-o" if len(lags) <= 8 else "-", color="C0", ms=4, label="RR")
     _reference_line(ax)
     lt = find_lag_term(result, term)
-    if at is None:
+    if value is None:
         ax.set_ylabel(f"RR per {per:g} units")
     else:
         ref = table.attrs.get("reference", reference)
-        ax.set_ylabel(f"RR at {at:g} vs {ref:g}" if ref is not None else f"RR at {at:g}")
+        ax.set_ylabel(f"RR at {value:g} vs {ref:g}" if ref is not None else f"RR at {value:g}")
     ax.set_xlabel("lag (days)")
     ax.set_title(f"{result.spec.outcome} ~ {lt.exposure}: lag-response ({lt.basis.lag.label})")
     return ax
@@ -83,7 +83,7 @@ def _draw_distribution(ax: Any, lt: Any, exposure_values: Any) -> None:
 def plot_exposure_response(
     result: Any,
     reference: float | None = None,
-    at: Any = None,
+    values: Any = None,
     term: Any = None,
     level: float = 0.95,
     show_distribution: bool = True,
@@ -98,7 +98,7 @@ def plot_exposure_response(
     """
     ax = new_axes(ax, (6.5, 4.0))
     lt = find_lag_term(result, term)
-    curve = exposure_response(result, at=at, reference=reference, term=term, level=level)
+    curve = exposure_response(result, values=values, reference=reference, term=term, level=level)
     x = curve["exposure"].to_numpy()
     ax.fill_between(x, curve["rr_low"], curve["rr_high"], **BAND, label=f"{level:.0%} CI")
     ax.plot(x, curve["rr"], "-", color="C0", label="cumulative RR")
@@ -130,7 +130,9 @@ def plot_exposure_lag_surface(
     """
     check_choice("kind", kind, SurfaceKind)
     lt = find_lag_term(result, term)
-    table = exposure_response(result, at=_surface_grid(lt, n_exposure), reference=reference, per_lag=True, term=term)
+    table = exposure_response(
+        result, values=_surface_grid(lt, n_exposure), reference=reference, per_lag=True, term=term
+    )
     lags = np.asarray(lt.basis.lags)
     exposure = table["exposure"].to_numpy().reshape(-1, lags.size)[:, 0]
     rr = table["rr"].to_numpy().reshape(exposure.size, lags.size)
@@ -162,7 +164,7 @@ def _surface_grid(lt: Any, n: int) -> np.ndarray:
         from ..errors import SpecificationError
 
         raise SpecificationError(
-            "the surface needs the observed exposure range; fit with a cross-basis "
-            "(airhealth.model.crossbasis.CrossBasis), which records it."
+            "the surface needs the observed exposure range; fit with an exposure-lag basis "
+            "(airhealth.model.exposure_lag.ExposureLagBasis), which records it."
         )
     return np.linspace(lt.summary.low, lt.summary.high, n)

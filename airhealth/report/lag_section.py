@@ -1,8 +1,8 @@
 """The report section on lag structures: single days, distributed lags, and temperature over three weeks.
 
 :func:`lag_structure_section` fits, for one outcome and pollutant, each single-day lag and each distributed
-lag (cumulative effects), draws their lag–response curves, and fits temperature as a distributed lag
-non-linear term to show its cumulative exposure–response curve, its exposure–lag–response surface and the
+lag (cumulative effects), draws their lag–response curves, and fits temperature as a non-linear
+exposure–lag term to show its cumulative exposure–response curve, its exposure–lag–response surface and the
 minimum-mortality temperature. It returns a :class:`~airhealth.report.document.Section` of plain blocks.
 
 References
@@ -20,8 +20,8 @@ from typing import Any
 import pandas as pd
 
 from ..model.compare import compare_results
-from ..model.crossbasis import CrossBasisTerm, SplineResponse
 from ..model.distributed_lags import SplineLag
+from ..model.exposure_lag import ExposureLagTerm, SplineResponse
 from ..model.fitting import fit
 from ..model.lag_predictions import minimum_risk_exposure
 from .document import Figure, Section, Table, Text
@@ -59,7 +59,7 @@ def _per_lag_table(distributed: list[Any], per: float) -> pd.DataFrame:
 
 
 def _temperature_blocks(
-    data: pd.DataFrame, outcome: str, exposure: str, lag: Any, term: CrossBasisTerm, options: dict[str, Any]
+    data: pd.DataFrame, outcome: str, exposure: str, lag: Any, term: ExposureLagTerm, options: dict[str, Any]
 ) -> list[Any]:
     opts = {k: v for k, v in options.items() if k not in ("temperature", "confounders")}
     confounders = (*options.get("confounders", ()), term)
@@ -70,7 +70,7 @@ def _temperature_blocks(
     effect = result.effect(per=10.0)
     return [
         Text(
-            f"Temperature entered as a distributed lag non-linear term ({term.cross_basis.label}) in place of the "
+            f"Temperature entered as a non-linear exposure-lag term ({term.exposure_lag_basis.label}) in place of the "
             f"usual temperature splines. The cumulative {outcome} risk is lowest at {term.column} "
             f"{mmt.exposure:.1f} (the {mmt.percentile:.0f}th percentile of days); from {mmt.low:.1f} to "
             f"{mmt.high:.1f} the risk is not significantly above that minimum (pointwise {mmt.level:.0%} tests; "
@@ -79,7 +79,7 @@ def _temperature_blocks(
             f"({effect.rr_low:.4f} to {effect.rr_high:.4f})."
         ),
         Figure(
-            f"{term.column}: cumulative relative risk over lags {term.cross_basis.lag.label} against the "
+            f"{term.column}: cumulative relative risk over lags {term.exposure_lag_basis.lag.label} against the "
             "minimum, with the distribution of days",
             curve_ax.figure,
             "temperature_exposure_response",
@@ -98,7 +98,7 @@ def lag_structure_section(
     exposure: str,
     single_lags: Sequence[str] = SINGLE_LAGS,
     distributed: Sequence[Any] = DISTRIBUTED_LAGS,
-    temperature_term: CrossBasisTerm | None = None,
+    temperature_term: ExposureLagTerm | None = None,
     per: float = 10.0,
     **model_options: Any,
 ) -> Section:
@@ -114,7 +114,7 @@ def lag_structure_section(
         Single-day lags to compare (default 0 to 5).
     distributed : sequence
         Distributed lag structures (strings or objects), shown with cumulative effects and lag curves.
-    temperature_term : CrossBasisTerm, optional
+    temperature_term : ExposureLagTerm, optional
         Temperature term of the non-linear part; default: natural spline with 4 df × spline lag 0–21 with
         4 df on the ``temperature`` option's column. Omitted when no temperature column is given.
     per : float
@@ -149,7 +149,7 @@ def lag_structure_section(
         )
     column = model_options.get("temperature")
     if temperature_term is None and column is not None:
-        temperature_term = CrossBasisTerm(column, SplineResponse(df=4), SplineLag(0, 21, 4))
+        temperature_term = ExposureLagTerm(column, SplineResponse(df=4), SplineLag(0, 21, 4))
     if temperature_term is not None:
         main_lag = dist[0].spec.lag if dist else single[0].spec.lag
         blocks += _temperature_blocks(data, outcome, exposure, main_lag, temperature_term, model_options)

@@ -1,7 +1,7 @@
-r"""Non-linear exposure × lag terms: an exposure–response basis crossed with a lag structure.
+r"""Exposure–lag bases: the tensor product of an exposure–response basis and a lag basis.
 
-The distributed lag non-linear model (Gasparrini, Armstrong & Kenward 2010) lets the effect of the exposure
-on day :math:`t-l` be a smooth function of both the exposure level and the lag:
+Following Gasparrini, Armstrong & Kenward (2010), the effect of the exposure on day :math:`t-l`
+may be a smooth function of both the exposure level and the lag:
 
 .. math::
 
@@ -17,7 +17,7 @@ risk of exposure :math:`x` against a reference :math:`r` at lag :math:`l` is
 (:mod:`airhealth.model.lag_predictions`).
 
 An exposure–response basis learns what it needs (spline knots, the observed range) from the exposure's
-non-missing values over the whole study period: :meth:`CrossBasis.bind` returns a fitted copy, which is
+non-missing values over the whole study period: :meth:`ExposureLagBasis.bind` returns a fitted copy, which is
 what the design uses and what the fitted result keeps, so predictions use the same knots as the fit.
 
 References
@@ -47,8 +47,8 @@ from .splines import NaturalSplineBasis
 from .terms import Term, TermBlock
 
 __all__ = [
-    "CrossBasis",
-    "CrossBasisTerm",
+    "ExposureLagBasis",
+    "ExposureLagTerm",
     "ExposureResponse",
     "ExposureSummary",
     "LinearResponse",
@@ -61,7 +61,7 @@ HISTOGRAM_BINS = 40
 
 NONLINEAR_HINT = (
     "a non-linear exposure-response term has no single effect per unit; use "
-    "airhealth.model.lag_predictions.exposure_response(result, at=[...], reference=...) for the effect "
+    "airhealth.model.lag_predictions.exposure_response(result, values=[...], reference=...) for the effect "
     "at chosen exposures against a reference, per lag or cumulated."
 )
 
@@ -251,8 +251,9 @@ class ThresholdResponse(ExposureResponse):
 
 
 @dataclass(frozen=True)
-class CrossBasis(LagStructure):
-    """An exposure–response basis crossed with a lag structure; pass it as ``lag=`` to :func:`airhealth.fit`.
+class ExposureLagBasis(LagStructure):
+    """The tensor product of an exposure–response basis and a lag structure; pass it as ``lag=`` to
+    :func:`airhealth.fit`.
 
     Parameters
     ----------
@@ -264,7 +265,7 @@ class CrossBasis(LagStructure):
 
     Examples
     --------
-    >>> cb = CrossBasis(SplineResponse(df=3), "dl0-21:spline4")
+    >>> cb = ExposureLagBasis(SplineResponse(df=3), "dl0-21:spline4")
     >>> cb.n_columns, cb.max_lag, cb.label
     (12, 21, 'spline(df=3) x dl0-21:spline4')
     """
@@ -279,8 +280,10 @@ class CrossBasis(LagStructure):
                 f"got {self.response!r}."
             )
         lag = parse_lag(self.lag)
-        if isinstance(lag, CrossBasis):
-            raise SpecificationError("the lag of a cross-basis must be a lag structure, not another cross-basis.")
+        if isinstance(lag, ExposureLagBasis):
+            raise SpecificationError(
+                "the lag of an exposure-lag basis must be a lag structure, not another exposure-lag basis."
+            )
         object.__setattr__(self, "lag", lag)
 
     # -- the lag-structure interface -----------------------------------------------------------------
@@ -315,9 +318,9 @@ class CrossBasis(LagStructure):
             raise SpecificationError(NONLINEAR_HINT)
         return self.lag.basis()
 
-    def bind(self, x: np.ndarray, name: str = "exposure") -> CrossBasis:
+    def bind(self, x: np.ndarray, name: str = "exposure") -> ExposureLagBasis:
         """A copy whose exposure–response basis is fitted to the daily exposure ``x``."""
-        return CrossBasis(self.response.bind(x, name), self.lag)
+        return ExposureLagBasis(self.response.bind(x, name), self.lag)
 
     def columns(self, x: np.ndarray) -> np.ndarray:
         """The ``n × (p·K)`` tensor-product columns for a daily series on a complete calendar."""
@@ -329,7 +332,7 @@ class CrossBasis(LagStructure):
 
     def column_names(self, exposure: str) -> list[str]:
         p, k = self.response.n_columns, self.lag.n_columns
-        return [f"{exposure}[{self.label}]v{j + 1}.l{m + 1}" for j in range(p) for m in range(k)]
+        return [f"{exposure}[{self.label}]x{j + 1}:lagbasis{m + 1}" for j in range(p) for m in range(k)]
 
     # -- prediction rows -----------------------------------------------------------------------------
     def contrast_rows(self, values: np.ndarray, reference: float, cumulative: bool) -> np.ndarray:
@@ -346,12 +349,12 @@ class CrossBasis(LagStructure):
 
 
 @dataclass(frozen=True)
-class CrossBasisTerm(Term):
-    """A cross-basis of a column as a confounder term, e.g. temperature over lags 0–21.
+class ExposureLagTerm(Term):
+    """An exposure–lag basis of a column as a confounder term, e.g. temperature over lags 0–21.
 
     Examples
     --------
-    >>> term = CrossBasisTerm("temperature", SplineResponse(df=4), "dl0-21:spline4")
+    >>> term = ExposureLagTerm("temperature", SplineResponse(df=4), "dl0-21:spline4")
     >>> term.name
     'temperature[spline(df=4) x dl0-21:spline4]'
     """
@@ -361,15 +364,15 @@ class CrossBasisTerm(Term):
     lag: Any = "dl0-5"
 
     def __post_init__(self) -> None:
-        object.__setattr__(self, "lag", CrossBasis(self.response, self.lag).lag)
+        object.__setattr__(self, "lag", ExposureLagBasis(self.response, self.lag).lag)
 
     @property
-    def cross_basis(self) -> CrossBasis:
-        return CrossBasis(self.response, self.lag)
+    def exposure_lag_basis(self) -> ExposureLagBasis:
+        return ExposureLagBasis(self.response, self.lag)
 
     @property
     def name(self) -> str:
-        return f"{self.column}[{self.cross_basis.label}]"
+        return f"{self.column}[{self.exposure_lag_basis.label}]"
 
     @property
     def inputs(self) -> tuple[str, ...]:
@@ -380,5 +383,5 @@ class CrossBasisTerm(Term):
             dtype = frame[self.column].dtype
             raise DataError(f"column {self.column!r} must be numeric to enter the model (dtype {dtype}).")
         x = frame[self.column].to_numpy(dtype=float, na_value=np.nan)
-        cb = self.cross_basis.bind(x, self.column)
+        cb = self.exposure_lag_basis.bind(x, self.column)
         return TermBlock(self.name, cb.columns(x), tuple(cb.column_names(self.column)), cb, self.inputs)

@@ -1,4 +1,4 @@
-"""Cross-basis terms (exposure–response basis × lag basis): construction, fitting as exposure or
+"""Exposure–lag bases (exposure–response basis × lag basis): construction, fitting as exposure or
 confounder, bad input, and a simulation with a threshold exposure–response."""
 
 from __future__ import annotations
@@ -8,14 +8,14 @@ import pandas as pd
 import pytest
 
 from airhealth.errors import DataError, SpecificationError
-from airhealth.model.crossbasis import (
-    CrossBasis,
-    CrossBasisTerm,
+from airhealth.model.distributed_lags import SplineLag, UnconstrainedLag
+from airhealth.model.exposure_lag import (
+    ExposureLagBasis,
+    ExposureLagTerm,
     LinearResponse,
     SplineResponse,
     ThresholdResponse,
 )
-from airhealth.model.distributed_lags import SplineLag, UnconstrainedLag
 from airhealth.model.fitting import fit
 from airhealth.model.lag_predictions import exposure_response
 from airhealth.model.splines import NaturalSplineBasis
@@ -27,12 +27,12 @@ def _shifted(x: np.ndarray, k: int) -> np.ndarray:
 
 
 def test_columns_are_the_tensor_product_of_response_and_lag_bases():
-    # Gasparrini, Armstrong & Kenward (2010), eq. for the cross-basis: column (j, k) is
+    # Gasparrini, Armstrong & Kenward (2010), eq. for the exposure–lag basis: column (j, k) is
     # sum_l f_j(x_{t-l}) C_{lk}; built here by hand with pandas shifts.
     rng = np.random.default_rng(3)
     x = rng.gamma(4.0, 5.0, 300)
     x[[40, 41, 200]] = np.nan
-    cb = CrossBasis(SplineResponse(df=3), SplineLag(0, 9, 3)).bind(x)
+    cb = ExposureLagBasis(SplineResponse(df=3), SplineLag(0, 9, 3)).bind(x)
     f = cb.response.spline.evaluate(x)
     c = cb.lag.basis()
     expected = np.column_stack(
@@ -42,7 +42,13 @@ def test_columns_are_the_tensor_product_of_response_and_lag_bases():
     assert got.shape == (300, 9)
     np.testing.assert_allclose(got, expected, rtol=1e-12, equal_nan=True)
     assert np.isnan(got[:9]).all() and np.isnan(got[40:51]).all() and np.isfinite(got[51:200]).all()
-    assert len(set(cb.column_names("pm25"))) == 9
+    names = cb.column_names("pm25")
+    assert len(set(names)) == 9
+    assert names[:2] == [
+        "pm25[spline(df=3) x dl0-9:spline3]x1:lagbasis1",
+        "pm25[spline(df=3) x dl0-9:spline3]x1:lagbasis2",
+    ]
+    assert names[-1] == "pm25[spline(df=3) x dl0-9:spline3]x3:lagbasis3"
 
 
 def test_spline_response_learns_knots_from_all_non_missing_values():
@@ -62,12 +68,14 @@ def test_threshold_response_values():
     np.testing.assert_array_equal(below[:, 0], [20.0, 0.0, 0.0])
 
 
-def test_linear_cross_basis_is_the_plain_distributed_lag(sample):
+def test_linear_exposure_lag_basis_is_the_plain_distributed_lag(sample):
     plain = fit(sample, "deaths_all", "pm25", lag="dl0-5", temperature="temperature")
-    crossed = fit(sample, "deaths_all", "pm25", lag=CrossBasis(LinearResponse(), "dl0-5"), temperature="temperature")
-    np.testing.assert_allclose(crossed.coef.to_numpy(), plain.coef.to_numpy(), rtol=1e-10)
-    assert crossed.effect(per=10).rr == pytest.approx(plain.effect(per=10).rr, rel=1e-12)
-    for ours, theirs in zip(crossed.to_dict()["lags"], plain.to_dict()["lags"], strict=True):
+    combined = fit(
+        sample, "deaths_all", "pm25", lag=ExposureLagBasis(LinearResponse(), "dl0-5"), temperature="temperature"
+    )
+    np.testing.assert_allclose(combined.coef.to_numpy(), plain.coef.to_numpy(), rtol=1e-10)
+    assert combined.effect(per=10).rr == pytest.approx(plain.effect(per=10).rr, rel=1e-12)
+    for ours, theirs in zip(combined.to_dict()["lags"], plain.to_dict()["lags"], strict=True):
         assert ours == pytest.approx(theirs, rel=1e-9)
 
 
@@ -77,12 +85,12 @@ def spline_fit(_sample_once):
         _sample_once,
         "deaths_all",
         "pm25",
-        lag=CrossBasis(SplineResponse(df=3), "dl0-5"),
+        lag=ExposureLagBasis(SplineResponse(df=3), "dl0-5"),
         temperature="temperature",
     )
 
 
-def test_fitted_result_keeps_the_bound_cross_basis(spline_fit, _sample_once):
+def test_fitted_result_keeps_the_bound_exposure_lag_basis(spline_fit, _sample_once):
     lag = spline_fit.spec.lag
     assert lag.is_bound and lag.is_nonlinear
     pm = _sample_once["pm25"].to_numpy(dtype=float)
@@ -98,10 +106,10 @@ def test_effect_per_unit_of_a_non_linear_term_points_to_the_prediction_functions
             call()
 
 
-def test_temperature_cross_basis_as_confounder_equals_its_columns_entered_by_hand(sample):
-    term = CrossBasisTerm("temperature", SplineResponse(df=4), SplineLag(0, 10, 3))
+def test_temperature_exposure_lag_term_as_confounder_equals_its_columns_entered_by_hand(sample):
+    term = ExposureLagTerm("temperature", SplineResponse(df=4), SplineLag(0, 10, 3))
     auto = fit(sample, "deaths_all", "pm25", lag="0-1", confounders=[term])
-    cb = term.cross_basis.bind(sample["temperature"].to_numpy(dtype=float))
+    cb = term.exposure_lag_basis.bind(sample["temperature"].to_numpy(dtype=float))
     cols = cb.columns(sample["temperature"].to_numpy(dtype=float))
     data = sample.assign(**{f"t{i}": cols[:, i] for i in range(cols.shape[1])})
     by_hand = fit(data, "deaths_all", "pm25", lag="0-1", confounders=[Linear(f"t{i}") for i in range(cols.shape[1])])
@@ -121,9 +129,13 @@ def test_temperature_cross_basis_as_confounder_equals_its_columns_entered_by_han
 @pytest.mark.parametrize(
     ("make", "error", "words"),
     [
-        (lambda: CrossBasis("spline", "dl0-5"), SpecificationError, "response must be"),
-        (lambda: CrossBasis(LinearResponse(), CrossBasis()), SpecificationError, "not another cross-basis"),
-        (lambda: CrossBasis(LinearResponse(), "dl-2-5"), SpecificationError, "cannot be negative"),
+        (lambda: ExposureLagBasis("spline", "dl0-5"), SpecificationError, "response must be"),
+        (
+            lambda: ExposureLagBasis(LinearResponse(), ExposureLagBasis()),
+            SpecificationError,
+            "not another exposure-lag basis",
+        ),
+        (lambda: ExposureLagBasis(LinearResponse(), "dl-2-5"), SpecificationError, "cannot be negative"),
         (lambda: SplineResponse(df=0), SpecificationError, "df must be a whole number >= 1"),
         (lambda: SplineResponse(knots=(5, 3)), SpecificationError, "must be increasing"),
         (lambda: ThresholdResponse(25, side="over"), SpecificationError, "side"),
@@ -139,7 +151,7 @@ def test_temperature_cross_basis_as_confounder_equals_its_columns_entered_by_han
         (lambda: LinearResponse().bind(np.full(10, np.nan), "no2"), DataError, "two distinct non-missing"),
     ],
 )
-def test_bad_cross_basis_input_names_the_problem(make, error, words):
+def test_bad_exposure_lag_input_names_the_problem(make, error, words):
     with pytest.raises(error) as err:
         make()
     assert words in str(err.value)
@@ -147,7 +159,7 @@ def test_bad_cross_basis_input_names_the_problem(make, error, words):
 
 def test_threshold_outside_the_exposure_range_fails_at_fit_naming_the_column(sample):
     with pytest.raises(DataError, match=r"threshold 500 is outside the observed range of 'pm25'"):
-        fit(sample, "deaths_all", "pm25", lag=CrossBasis(ThresholdResponse(500), "dl0-3"))
+        fit(sample, "deaths_all", "pm25", lag=ExposureLagBasis(ThresholdResponse(500), "dl0-3"))
 
 
 # ------------------------------------------------------------ simulation: threshold exposure–response
@@ -179,11 +191,11 @@ def simulate_threshold(seed: int, years: float = 4, rr_per_10_above: float = 1.0
 
 def _threshold_run(seeds) -> tuple[np.ndarray, np.ndarray, float]:
     est, cover = [], []
-    lag = CrossBasis(ThresholdResponse(THRESHOLD), UnconstrainedLag(0, 3))
+    lag = ExposureLagBasis(ThresholdResponse(THRESHOLD), UnconstrainedLag(0, 3))
     for seed in seeds:
         frame, truth = simulate_threshold(seed)
         result = fit(frame, "deaths", "pm", lag=lag, trend_df_per_year=4, day_of_week=False)
-        row = exposure_response(result, at=[45.0], reference=25.0).iloc[0]
+        row = exposure_response(result, values=[45.0], reference=25.0).iloc[0]
         est.append(row["coef"])
         cover.append(np.log(row["rr_low"]) < truth < np.log(row["rr_high"]))
     return np.array(est), np.array(cover), truth
@@ -210,9 +222,9 @@ def test_spline_exposure_response_sees_the_threshold():
     low, high = [], []
     for seed in range(6):
         frame, truth = simulate_threshold(seed, years=8)
-        lag = CrossBasis(SplineResponse(knots=(15.0, 25.0, 35.0)), UnconstrainedLag(0, 3))
+        lag = ExposureLagBasis(SplineResponse(knots=(15.0, 25.0, 35.0)), UnconstrainedLag(0, 3))
         result = fit(frame, "deaths", "pm", lag=lag, trend_df_per_year=4, day_of_week=False)
-        curve = exposure_response(result, at=[10.0, 45.0], reference=25.0)
+        curve = exposure_response(result, values=[10.0, 45.0], reference=25.0)
         low.append(curve["coef"].iloc[0])
         high.append(curve["coef"].iloc[1])
     assert abs(np.mean(low)) < 0.02
