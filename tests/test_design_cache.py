@@ -42,3 +42,20 @@ def test_cached_and_fresh_blocks_give_identical_fits(frame: tuple) -> None:
     fresh = design.build_design(f, spec, design.build_confounders(f, spec))
     cached = design.build_design(f, spec)
     np.testing.assert_array_equal(fresh.matrix, cached.matrix)
+
+
+def test_usable_days_equals_the_drop_rules(frame: tuple) -> None:
+    f, spec = frame
+    gappy = f.copy()
+    gappy.loc[gappy.index[[3, 50, 51, 400]], "pm25"] = np.nan
+    gappy.loc[gappy.index[[7, 90]], "deaths_all"] = np.nan
+    gappy.loc[gappy.index[[120]], "temperature"] = np.nan
+    for lag in ("0", "0-3", "dl0-5"):
+        s = spec.replace(lag=lag)
+        d = design.build_design(gappy, s)
+        raw = gappy["pm25"].to_numpy(dtype=float)
+        fast = design.usable_days(
+            gappy["deaths_all"].to_numpy(dtype=float), s.lag.columns(raw), design.cached_confounders(gappy, s)
+        )
+        np.testing.assert_array_equal(fast, d.used)
+        assert (~d.used).sum() == len(d.dropped) > 10

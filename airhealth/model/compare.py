@@ -28,7 +28,7 @@ import pandas as pd
 from .._progress import progress
 from .._threads import single_threaded_blas
 from ..errors import DataError, SpecificationError
-from .design import ConfounderBlock, Design, _drop_reasons, build_confounders, build_design, model_frame
+from .design import ConfounderBlock, Design, build_design, cached_confounders, model_frame, usable_days
 from .fitting import fit_design, result_from_fit
 from .grid_engine import ConfounderFit, ExposureFit, fit_confounders, fit_exposure_only, fit_with_exposure
 from .result import FitResult
@@ -73,7 +73,7 @@ def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any
     specs = [ModelSpec.from_options(lag=lag, **model_options) for lag in lags]
     deepest = max(specs, key=lambda s: s.lag.max_lag)
     frame = model_frame(data, deepest)
-    confounders = build_confounders(frame, specs[0])
+    confounders = cached_confounders(frame, specs[0])
     shared = specs[0].family != "negbin" and not any(hasattr(s.lag, "bind") for s in specs)
     return _Grid(specs, frame, confounders, shared)
 
@@ -86,7 +86,7 @@ def _structure(grid: _Grid, spec: ModelSpec, raw, y, offset) -> tuple[np.ndarray
     """Exposure columns (full calendar) and the usable-day mask, by the design builder's drop rules."""
     frame, conf = grid.frame, grid.confounders
     exposure = spec.lag.columns(raw)
-    used = _drop_reasons(frame, spec, y, exposure, conf, offset) == ""
+    used = usable_days(y, exposure, conf, offset)
     if used.sum() <= conf.matrix.shape[1] + exposure.shape[1]:
         build_design(frame, spec, conf)  # raises the design builder's error naming the reasons
     return exposure, used

@@ -21,7 +21,15 @@ from ..prep.validate import check_counts, check_finite, check_not_all_missing, r
 from .spec import ModelSpec
 from .terms import TermBlock
 
-__all__ = ["ConfounderBlock", "Design", "build_confounders", "build_design", "model_frame"]
+__all__ = [
+    "ConfounderBlock",
+    "Design",
+    "build_confounders",
+    "build_design",
+    "cached_confounders",
+    "model_frame",
+    "usable_days",
+]
 
 INTERCEPT = "(intercept)"
 
@@ -166,6 +174,19 @@ def _drop_reasons(
     reasons[missing_x & np.isnan(raw)] = EXPOSURE_MISSING
     reasons[~np.isfinite(y)] = OUTCOME_MISSING
     return reasons
+
+
+def usable_days(
+    y: np.ndarray, exposure: np.ndarray, conf: ConfounderBlock, offset: np.ndarray | None = None
+) -> np.ndarray:
+    """Days a fit can use: outcome, every exposure column, every confounder (and the offset) present.
+
+    The fast form of the drop rules: ``usable_days(...)`` equals ``_drop_reasons(...) == ""``.
+    """
+    used = np.isfinite(y) & conf.complete & np.isfinite(exposure).all(axis=1)
+    if offset is not None:
+        used &= np.isfinite(offset)
+    return used
 
 
 def _longest_unused_run(calendar: pd.DatetimeIndex, used: np.ndarray) -> tuple[pd.Timestamp, pd.Timestamp, int]:
