@@ -8,10 +8,17 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
+from .errors import DataError
+
 
 @contextmanager
-def atomic_path(path: str | os.PathLike[str]) -> Iterator[Path]:
+def atomic_path(path: str | os.PathLike[str], *, make_parents: bool = True) -> Iterator[Path]:
     """Yield a temporary path beside ``path``; on success it replaces ``path`` in one rename.
+
+    With ``make_parents=True`` (for report directories the library lays out itself) missing parent
+    directories are created. With ``make_parents=False`` (for a single file the user named, where a
+    mistyped directory should not silently grow a new tree) the parent must already exist, else
+    :class:`~airhealth.errors.DataError`.
 
     Examples
     --------
@@ -23,7 +30,16 @@ def atomic_path(path: str | os.PathLike[str]) -> Iterator[Path]:
     'a,b\\n1,2\\n'
     """
     target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
+    if make_parents:
+        target.parent.mkdir(parents=True, exist_ok=True)
+    elif not target.parent.is_dir():
+        what = "is not a directory" if target.parent.exists() else "does not exist"
+        raise DataError(
+            f"cannot write {str(target)!r}: directory {str(target.parent)!r} {what}; create it first or "
+            "choose another path."
+        )
+    if target.is_dir():
+        raise DataError(f"cannot write {str(target)!r}: it is a directory; give a file name.")
     fd, tmp_name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
     os.close(fd)
     tmp = Path(tmp_name)
@@ -38,15 +54,15 @@ def atomic_path(path: str | os.PathLike[str]) -> Iterator[Path]:
         raise
 
 
-def write_text(path: str | os.PathLike[str], text: str) -> Path:
-    """Write ``text`` (UTF-8) to ``path`` atomically and return the path."""
-    with atomic_path(path) as tmp:
+def write_text(path: str | os.PathLike[str], text: str, *, make_parents: bool = True) -> Path:
+    """Write ``text`` (UTF-8) to ``path`` atomically and return the path (``make_parents``: see atomic_path)."""
+    with atomic_path(path, make_parents=make_parents) as tmp:
         tmp.write_text(text, encoding="utf-8")
     return Path(path)
 
 
-def write_with(path: str | os.PathLike[str], writer: Callable[[Path], object]) -> Path:
-    """Call ``writer(tmp_path)`` and move the result to ``path`` atomically."""
-    with atomic_path(path) as tmp:
+def write_with(path: str | os.PathLike[str], writer: Callable[[Path], object], *, make_parents: bool = True) -> Path:
+    """Call ``writer(tmp_path)`` and move the result to ``path`` atomically (``make_parents``: see atomic_path)."""
+    with atomic_path(path, make_parents=make_parents) as tmp:
         writer(tmp)
     return Path(path)

@@ -56,12 +56,19 @@ def test_several_monitors_combined(tmp_path):
             "--statistic", "mean", "--min-monitors", "2", "--out", str(out)]  # fmt: skip
     assert main(args) == 0
     city = pd.read_csv(out, parse_dates=["date"])
-    assert list(city.columns) == ["date", "no2_ppb", "n_hours", "n_monitors"]
+    assert list(city.columns) == ["date", "no2_ppb", "n_hours", "n_monitors", "n_hours_per_monitor"]
     per_monitor = daily_statistic(pd.read_csv(SAMPLE), time="time", value="no2_ppb", monitor="monitor")
     expected = combine_monitors(per_monitor, value="no2_ppb", min_monitors=2)
     np.testing.assert_allclose(city["no2_ppb"], expected["no2_ppb"], rtol=1e-12)
     assert (city.loc[city["n_monitors"] < 2, "no2_ppb"].isna()).all()
     assert len(city) == 730  # 2022 and 2023
+    # n_hours: valid hours summed over the monitors valid that day; n_hours_per_monitor: their mean
+    valid = per_monitor[per_monitor["valid"]]
+    hours = valid.groupby("date")["n_hours"].agg(["sum", "count", "mean"]).reindex(city["date"])
+    assert city["n_hours"].tolist() == hours["sum"].fillna(0).astype(int).tolist()
+    assert city["n_monitors"].tolist() == hours["count"].fillna(0).astype(int).tolist()
+    np.testing.assert_allclose(city["n_hours_per_monitor"], hours["mean"].round(2), rtol=0, atol=1e-12)
+    assert city["n_hours_per_monitor"].max() <= 24  # a mean over monitors, never a sum
 
 
 def test_per_monitor_output(tmp_path):

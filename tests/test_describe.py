@@ -86,7 +86,30 @@ def test_data_quality_section_blocks_and_plots():
     tables = [b for b in section.blocks if isinstance(b, Table)]
     figures = [b for b in section.blocks if isinstance(b, Figure)]
     assert [t.name for t in tables] == ["table_one", "correlations_spearman"]
-    assert tables[0].frame.set_index("variable").loc["Ozone", "n"] == 116
+    assert [t.title for t in tables] == ["Distribution of the daily variables", "Spearman correlations"]
+    assert [f.name for f in figures] == ["series_Ozone", "season_Ozone"]
+    assert section.blocks[0].text.startswith("153 days from 01 May 1973 to 30 September 1973.")
+    # Table 1 against numpy on the same columns (independent computation; the section rounds to 3 decimals,
+    # so the tolerance is half a unit of the third decimal)
+    shown = tables[0].frame.set_index("variable")
+    assert list(shown.index) == COLUMNS
+    for column in COLUMNS:
+        x = AIR[column].dropna().to_numpy(dtype=float)
+        p5, p25, p50, p75, p95 = np.percentile(x, [5, 25, 50, 75, 95])  # linear = R type 7
+        expected = {"n": len(x), "missing": len(AIR) - len(x), "mean": x.mean(), "sd": x.std(ddof=1),
+                    "min": x.min(), "p5": p5, "p25": p25, "p50": p50, "p75": p75, "p95": p95, "max": x.max(),
+                    "iqr": p75 - p25}  # fmt: skip
+        for stat, value in expected.items():
+            assert shown.loc[column, stat] == pytest.approx(value, abs=5e-4), (column, stat)
+    # correlations against scipy on pairwise complete days (shown to 2 decimals: tolerance 0.005)
+    corr = tables[1].frame.set_index("variable")
+    for a in COLUMNS:
+        for b in COLUMNS:
+            both = AIR[[a, b]].dropna()
+            rho = 1.0 if a == b else stats.spearmanr(both[a], both[b]).statistic
+            assert corr.loc[a, b] == pytest.approx(rho, abs=0.005), (a, b)
+    fewest = min(len(AIR[[a, b]].dropna()) for a in COLUMNS for b in COLUMNS)
+    assert tables[1].note == f"Pairwise complete days; the smallest pair has {fewest} days."
     assert len(figures) == 2 and plt.get_fignums() == before
     # ax given: drawn there and returned
     fig = plt.figure()

@@ -263,8 +263,22 @@ def test_utc_input_and_standard_input_agree():
 
 def test_nonexistent_wall_time_is_an_error():
     bad = pd.DataFrame({"time": ["2022-03-27 01:00", "2022-03-27 02:00", "2022-03-27 03:00"], "conc": 1.0})
-    with pytest.raises(DataError, match="could not be placed"):
+    with pytest.raises(DataError) as info:
         daily_statistic(bad, time="time", value="conc", timezone="Europe/Oslo", times_in="wall")
+    message = str(info.value)
+    assert "do not exist" in message and "in rows 1 (e.g. 2022-03-27 02:00)" in message
+    assert "times_in='standard'" in message and "nonexistent" not in message  # no pandas option names
+
+
+def test_repeated_fall_back_hour_once_is_an_error_naming_rows():
+    # 02:00 on 2022-10-30 occurs twice in Europe/Oslo; with one reading its order cannot tell which one it is
+    times = ["2022-10-30 00:00", "2022-10-30 01:00", "2022-10-30 02:00", "2022-10-30 03:00"]
+    bad = pd.DataFrame({"time": times, "conc": 1.0}, index=[10, 11, 12, 13])
+    with pytest.raises(DataError) as info:
+        clean_hourly(bad, time="time", value="conc", timezone="Europe/Oslo", times_in="wall")
+    message = str(info.value)
+    assert "occur twice" in message and "rows 12 (e.g. 2022-10-30 02:00)" in message
+    assert "ambiguous" not in message
 
 
 def test_offsets_without_timezone_is_an_error():

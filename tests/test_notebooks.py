@@ -19,5 +19,5 @@ def test_notebook_code_runs(path: Path) -> None:
     for i, cell in enumerate(cells):
         if cell["cell_type"] == "code":
             code = "".join(cell["source"])
-            exec(compile(code, f"{path.name}[cell {i}]", "exec"), namespace)  # noqa: S102
+            exec(compile(code, f"{path.name}[cell {i}]", "exec"), namespace)
     assert namespace, "notebook has no code"

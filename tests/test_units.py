@@ -56,8 +56,20 @@ def test_factor_with_conventional_molar_volume(pollutant, table_value):
 
 
 def test_molar_volume_values():
-    # 24.45 L at 25 °C (the usual rounded value, within 0.1 %) and 22.414 L at 0 °C (standard textbook value)
-    assert molar_volume(25.0) == pytest.approx(24.45, rel=1e-3)
+    # Vm = R·T/P with R = 8.314462618 J/(mol·K) (CODATA 2018, exact since the 2019 SI), T = 298.15 K and
+    # P = 101.325 kPa: 24.4654 L/mol. Computed here; 1e-9 allows only floating-point rounding.
+    r_codata = 8.314462618
+    assert molar_volume(25.0) == pytest.approx(r_codata * 298.15 / 101.325, rel=1e-9)
+    assert molar_volume(25.0) == pytest.approx(24.4654, abs=5e-5)  # the same, written out to 4 decimals
+    # The conventional 24.45 L/mol (common practice; from memory) is not the ideal-gas value: it is reached
+    # through the molar_volume_l option, which must give exactly M / 24.45 (relative 1e-12: rounding only).
+    assert conversion_factor("no2", "ppb", "ugm3", molar_volume_l=24.45) == pytest.approx(
+        CRC_WEIGHTS["no2"] / 24.45, rel=1e-12
+    )
+    assert conversion_factor("no2", "ppb", "ugm3", molar_volume_l=24.45) == pytest.approx(
+        conversion_factor("no2", "ppb", "ugm3") * molar_volume(25.0) / 24.45, rel=1e-12
+    )
+    # 22.414 L at 0 °C (standard textbook value)
     assert molar_volume(0.0) == pytest.approx(22.414, rel=1e-4)
     assert molar_volume(20.0) / molar_volume(25.0) == pytest.approx(293.15 / 298.15, rel=1e-12)
 

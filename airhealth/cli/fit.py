@@ -34,6 +34,8 @@ def register(sub: Any) -> None:
     p.add_argument("--holidays", default=None, metavar="COUNTRY", help="ISO country code for a holiday indicator")
     p.add_argument("--family", default="quasipoisson", help="quasipoisson (default), poisson or negbin")
     p.add_argument("--seasonality", default="spline", help="spline (default) or fourier")
+    p.add_argument("--sep", default=",", help='field separator of the CSV (default ","; e.g. ";" or tab)')
+    p.add_argument("--decimal", default=".", help='decimal mark of the CSV (default "."; e.g. ",")')
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     p.set_defaults(func=run)
 
@@ -51,38 +53,68 @@ def _clean(value: Any) -> Any:
     return value
 
 
-def read_table(path: Path) -> pd.DataFrame:
-    """Read a CSV, turning I/O and parse failures into a clear error."""
+def read_table(path: Path, sep: str = ",", decimal: str = ".") -> pd.DataFrame:
+    """Read a CSV, turning I/O and parse failures into a clear error.
+
+    The separator is not guessed: a file read as one column whose name holds ``;`` or a tab (a
+    semicolon-separated export, common where the decimal mark is a comma) is refused with a message naming
+    ``--sep`` and ``--decimal``. Guessing would be silent, and a wrong guess of the decimal mark turns
+    numbers into text further on, far from the cause.
+    """
     if not path.exists():
         raise DataError(f"file {str(path)!r} does not exist.")
+    if path.is_dir():
+        raise DataError(f"{str(path)!r} is a directory; give the path of a CSV file.")
     try:
-        return pd.read_csv(path)
-    except (pd.errors.ParserError, UnicodeDecodeError, pd.errors.EmptyDataError) as exc:
+        table = pd.read_csv(path, sep=sep, decimal=decimal)
+    except ValueError as exc:  # ParserError, EmptyDataError, UnicodeDecodeError, bad options
         raise DataError(f"could not read {str(path)!r} as CSV: {exc}") from exc
+    except OSError as exc:
+        raise DataError(f"could not read {str(path)!r}: {exc.strerror or exc}.") from exc
+    if table.shape[1] == 1:
+        header = str(table.columns[0])
+        for mark, option in ((";", "--sep ';' (and --decimal , if numbers use a decimal comma)"), ("\t", "--sep tab")):
+            if mark in header and mark != sep:
+                raise DataError(
+                    f"{str(path)!r} was read as one column named {header!r}: the file seems to use "
+                    f"{mark!r} as separator. Pass {option}."
+                )
+    return table
+
+
+def _fit(data: pd.DataFrame, args: argparse.Namespace) -> Any:
+    from ..model.fitting import fit
+
+    return fit(
+        data,
+        outcome=args.outcome,
+        exposure=args.exposure,
+        lag=args.lag,
+        temperature=args.temperature,
+        trend_df_per_year=args.trend_df_per_year,
+        date=args.date,
+        humidity=args.humidity,
+        holidays=args.holidays,
+        family=args.family,
+        seasonality=args.seasonality,
+    )
 
 
 def run(args: argparse.Namespace) -> int:
-    """Fit and print; returns the exit code."""
-    from ..model.fitting import fit
+    """Fit and print; returns the exit code.
 
-    data = read_table(args.data)
+    Warnings raised while reading and fitting are printed to stderr even when the fit then fails, so a
+    warning that explains an error (a calendar gap, say) is not lost.
+    """
+    sep = "\t" if args.sep in ("tab", "\\t") else args.sep
+    data = read_table(args.data, sep=sep, decimal=args.decimal)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        result = fit(
-            data,
-            outcome=args.outcome,
-            exposure=args.exposure,
-            lag=args.lag,
-            temperature=args.temperature,
-            trend_df_per_year=args.trend_df_per_year,
-            date=args.date,
-            humidity=args.humidity,
-            holidays=args.holidays,
-            family=args.family,
-            seasonality=args.seasonality,
-        )
-    for w in caught:
-        print(f"warning: {w.message}", file=sys.stderr)
+        try:
+            result = _fit(data, args)
+        finally:
+            for w in caught:
+                print(f"warning: {w.message}", file=sys.stderr)
     record = result.to_dict(per=args.per)
     if args.json:
         print(json.dumps(_clean(record), indent=2))

@@ -52,7 +52,8 @@ def align_daily(
     Raises
     ------
     DataError
-        On unparseable or duplicated dates, non-daily steps, or a column present in two tables.
+        On unparseable or duplicated dates, non-daily steps, or a column present twice (in one table or in
+        two).
 
     Examples
     --------
@@ -70,11 +71,13 @@ def align_daily(
     prepared, seen = [], {}
     for table, label in zip(tables, labels, strict=True):
         require_columns(table, [date], label)
+        repeated = table.columns[table.columns.duplicated()].unique()
+        if len(repeated):
+            times = int((table.columns == repeated[0]).sum())
+            raise DataError(f"column {repeated[0]!r} appears {times} times in {label}; rename or drop one of them.")
         for column in table.columns:
             if column != date and column in seen:
-                raise DataError(
-                    f"column {column!r} appears in both {seen[column]} and {label}; rename one of them."
-                )
+                raise DataError(f"column {column!r} appears in both {seen[column]} and {label}; rename one of them.")
             seen.setdefault(column, label)
         dates = parse_dates(table, date, label)
         check_daily_dates(dates, date, label)

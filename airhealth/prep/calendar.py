@@ -2,11 +2,10 @@
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 import pandas as pd
 
+from .._warn import warn_user
 from ..errors import DataError, DataWarning
 
 __all__ = ["complete_calendar", "day_of_week", "holiday_indicator"]
@@ -18,7 +17,8 @@ def complete_calendar(frame: pd.DataFrame, dates: pd.DatetimeIndex, date: str = 
     """Return a copy of ``frame`` re-indexed to every day from the first to the last date.
 
     Days absent from ``frame`` become rows whose other columns are missing; nothing is dropped or shifted.
-    A :class:`~airhealth.errors.DataWarning` lists the gaps that were filled.
+    A :class:`~airhealth.errors.DataWarning` lists the gaps that were filled; it is attributed to the first
+    line outside airhealth (the user's script or notebook cell), however deep the call.
     """
     out = frame.copy()
     out[date] = dates
@@ -29,10 +29,9 @@ def complete_calendar(frame: pd.DataFrame, dates: pd.DatetimeIndex, date: str = 
         runs = _runs(absent)
         listing = ", ".join(f"{a:%Y-%m-%d}" + ("" if a == b else f" to {b:%Y-%m-%d}") for a, b in runs[:5])
         more = f" (and {len(runs) - 5} more gaps)" if len(runs) > 5 else ""
-        warnings.warn(
+        warn_user(
             f"{len(absent)} calendar day(s) absent from the data were added as missing rows: {listing}{more}.",
             DataWarning,
-            stacklevel=3,
         )
         out = out.reindex(full)
     return out.reset_index()
@@ -54,9 +53,7 @@ def day_of_week(dates: pd.DatetimeIndex | pd.Series) -> pd.Categorical:
     return pd.Categorical.from_codes(idx.day_of_week, categories=list(WEEKDAY_NAMES), ordered=True)
 
 
-def holiday_indicator(
-    dates: pd.DatetimeIndex | pd.Series, country: str, subdivision: str | None = None
-) -> np.ndarray:
+def holiday_indicator(dates: pd.DatetimeIndex | pd.Series, country: str, subdivision: str | None = None) -> np.ndarray:
     """1.0 on public holidays of ``country`` (ISO 3166 code, e.g. ``"GB"``), else 0.0.
 
     Uses the general-purpose ``holidays`` package.

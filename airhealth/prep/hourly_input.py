@@ -16,7 +16,10 @@ gaps) works on that frame. The rules for awkward input are fixed here and docume
 * negative concentrations: always flagged with a :class:`~airhealth.errors.DataWarning`; kept by default
   (small negatives are instrument noise near zero and dropping only them biases means upwards), set to missing
   with ``negative="drop"``, or refused with ``negative="error"``;
-* timestamps out of order within a monitor: sorted, with a ``DataWarning`` saying so.
+* timestamps out of order within a monitor: sorted, with a ``DataWarning`` saying so;
+* a missing or blank monitor ID (with ``monitor`` given): ``DataError`` listing the rows;
+* with ``times_in="wall"``, clock times skipped when clocks go forward, or a repeated fall-back hour whose two
+  readings cannot be told apart: ``DataError`` listing the rows.
 
 Row numbers in messages are the input frame's index labels (the CLI labels rows by their CSV line number).
 """
@@ -24,7 +27,6 @@ Row numbers in messages are the input frame's index labels (the CLI labels rows 
 from __future__ import annotations
 
 import re
-import warnings
 from typing import Literal
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
@@ -32,6 +34,7 @@ import numpy as np
 import pandas as pd
 
 from .._choices import check_choice
+from .._warn import warn_user
 from ..errors import DataError, DataWarning, SpecificationError
 
 __all__ = ["DuplicateRule", "HourLabel", "NegativeRule", "TimesIn", "clean_hourly", "standard_offsets"]
@@ -158,19 +161,36 @@ def _localize_wall(times: pd.Series, monitors: pd.Series, timezone: str) -> pd.S
     out = pd.Series(pd.NaT, index=times.index, dtype="datetime64[us]")
     for _, idx in monitors.groupby(monitors, sort=False).groups.items():
         part = times.loc[idx].sort_values(kind="stable")
+        clock = pd.DatetimeIndex(part)
+        _check_clock_times_exist(clock, part.index, timezone)
         try:
-            local = pd.DatetimeIndex(part).tz_localize(timezone, ambiguous="infer", nonexistent="raise")
-        except Exception as exc:  # pandas raises several types for non-existent or ambiguous times
+            local = clock.tz_localize(timezone, ambiguous="infer", nonexistent="raise")
+        except Exception:  # pandas raises several types when the repeated hour cannot be inferred
+            unsure = clock.tz_localize(timezone, ambiguous="NaT", nonexistent="NaT").isna()
             raise DataError(
-                f"local clock times in {timezone} could not be placed in time ({exc}). Times skipped by the "
-                "spring-forward change do not exist, and the repeated fall-back hour needs both readings in "
-                "order; write timestamps with UTC offsets or in local standard time (times_in='standard')."
+                f"local clock times in {timezone} occur twice (the hour repeated when clocks go back) and "
+                f"could not be told apart in rows {_rows(part.index[unsure])} (e.g. "
+                f"{clock[unsure][0]:%Y-%m-%d %H:%M}). With times_in='wall' (CLI --times-in wall) each monitor "
+                "needs both readings of the repeated hour, in time order; otherwise write the timestamps with "
+                "UTC offsets, or use times_in='standard' if they are in local standard time all year."
             ) from None
         out.loc[part.index] = local.tz_convert("UTC").tz_localize(None).as_unit("us")
     return out
 
 
-def _resolve_duplicates(frame: pd.DataFrame, rule: DuplicateRule) -> pd.DataFrame:
+def _check_clock_times_exist(clock: pd.DatetimeIndex, rows: pd.Index, timezone: str) -> None:
+    """Raise, naming the rows, if local clock times fall in the hour skipped when clocks go forward."""
+    missing = clock.tz_localize(timezone, ambiguous=True, nonexistent="NaT").isna()
+    if missing.any():
+        raise DataError(
+            f"local clock times in {timezone} that do not exist (skipped when clocks go forward) in rows "
+            f"{_rows(rows[missing])} (e.g. {clock[missing][0]:%Y-%m-%d %H:%M}). If the timestamps are in "
+            "local standard time all year, use times_in='standard' (CLI --times-in standard); if they are UTC, "
+            "times_in='utc'; otherwise correct or remove these rows."
+        )
+
+
+def _resolve_duplicates(frame: pd.DataFrame, rule: DuplicateRule, one_monitor: bool = False) -> pd.DataFrame:
     dup = frame.duplicated(["monitor", "hour"], keep=False)
     if not dup.any():
         return frame
@@ -181,9 +201,14 @@ def _resolve_duplicates(frame: pd.DataFrame, rule: DuplicateRule) -> pd.DataFram
             for i, m, h in zip(shown.index, shown["monitor"], shown["hour"], strict=True)
         )
         more = f" ({int(dup.sum())} rows in all)" if dup.sum() > _SHOW else ""
+        several = (
+            " Several monitors in one table? Name their column with monitor=COL (CLI: --monitor COL)."
+            if one_monitor
+            else ""
+        )
         raise DataError(
-            f"duplicated timestamps for the same monitor: {listing}{more}. Remove them, or pass "
-            "duplicates='mean' (average) or duplicates='first' (keep the first row)."
+            f"duplicated timestamps for the same monitor: {listing}{more}.{several} Otherwise remove them, or "
+            "pass duplicates='mean' (average) or duplicates='first' (keep the first row)."
         )
     if rule == "first":
         return frame[~frame.duplicated(["monitor", "hour"], keep="first")]
@@ -198,7 +223,7 @@ def _handle_negatives(frame: pd.DataFrame, rule: NegativeRule, column: str) -> p
     if rule == "error":
         raise DataError(f"{where}; correct them or pass negative='keep' or negative='drop'.")
     action = "kept as measured" if rule == "keep" else "set to missing"
-    warnings.warn(f"{where}: {action} (negative={rule!r}).", DataWarning, stacklevel=3)
+    warn_user(f"{where}: {action} (negative={rule!r}).", DataWarning)
     if rule == "drop":
         frame = frame.assign(value=frame["value"].mask(negative))
     return frame
@@ -226,7 +251,8 @@ def clean_hourly(
     time, value : str
         Column names of the timestamp and the concentration.
     monitor : str, optional
-        Column naming the monitor; without it all rows are one monitor called ``"all"``.
+        Column naming the monitor (every row needs an ID); without it all rows are one monitor called
+        ``"all"``.
     hour_label : {"start", "end"}, default "start"
         Whether a timestamp marks the start of its hour (00:00 = 00:00–01:00) or its end (01:00 =
         00:00–01:00; ``24:00`` is accepted as the end of a day).
@@ -254,32 +280,66 @@ def clean_hourly(
     check_choice("times_in", times_in, TimesIn)
     check_choice("negative", negative, NegativeRule)
     check_choice("duplicates", duplicates, DuplicateRule)
-    for name in (time, value, monitor):
+    _check_columns(hourly, (time, value, monitor))
+    monitors = _monitor_ids(hourly, monitor)
+    hours = _hour_starts(hourly[time], time, monitors, timezone, times_in, time_format, hour_label)
+    frame = pd.DataFrame({"monitor": monitors, "hour": hours, "value": _read_values(hourly[value], value)})
+    frame = _handle_negatives(frame, negative, value)
+    frame = _resolve_duplicates(frame, duplicates, one_monitor=monitor is None)
+    return _sorted(frame)
+
+
+def _check_columns(hourly: pd.DataFrame, names: tuple[str | None, ...]) -> None:
+    for name in names:
         if name is not None and name not in hourly.columns:
             raise DataError(f"column {name!r} is not in the hourly data; columns are {list(hourly.columns)}.")
     if len(hourly) == 0:
         raise DataError("the hourly data have no rows.")
-    monitors = hourly[monitor].astype(str) if monitor else pd.Series("all", index=hourly.index, dtype=object)
-    times = _to_standard_time(_read_times(hourly[time], time, time_format), monitors, timezone, times_in)
+
+
+def _monitor_ids(hourly: pd.DataFrame, monitor: str | None) -> pd.Series:
+    """Monitor IDs as text; one monitor ``"all"`` without a column; missing or blank IDs are an error."""
+    if not monitor:
+        return pd.Series("all", index=hourly.index, dtype=object)
+    raw = hourly[monitor]
+    blank = raw.isna() | (raw.astype(str).str.strip() == "")
+    if blank.any():
+        raise DataError(
+            f"monitor column {monitor!r} is empty in rows {_rows(raw.index[blank])}; give every reading its "
+            "monitor's ID (or drop those rows)."
+        )
+    return raw.astype(str)
+
+
+def _hour_starts(
+    raw: pd.Series,
+    column: str,
+    monitors: pd.Series,
+    timezone: str | None,
+    times_in: TimesIn,
+    time_format: str | None,
+    hour_label: HourLabel,
+) -> pd.Series:
+    """Start of each reading's hour in local standard time; timestamps off the full hour are an error."""
+    times = _to_standard_time(_read_times(raw, column, time_format), monitors, timezone, times_in)
     if hour_label == "end":
         times = times - _HOUR
     off_hour = times != times.dt.floor("h")
     if off_hour.any():
         raise DataError(
-            f"time column {time!r} has timestamps not on the full hour in rows {_rows(times.index[off_hour])}; "
+            f"time column {column!r} has timestamps not on the full hour in rows {_rows(times.index[off_hour])}; "
             "aggregate sub-hourly readings to hourly means first."
         )
-    frame = pd.DataFrame(
-        {"monitor": monitors, "hour": times.astype("datetime64[us]"), "value": _read_values(hourly[value], value)}
-    )
-    frame = _handle_negatives(frame, negative, value)
-    frame = _resolve_duplicates(frame, duplicates)
+    return times.astype("datetime64[us]")
+
+
+def _sorted(frame: pd.DataFrame) -> pd.DataFrame:
+    """Sort by monitor and hour, warning if the readings were out of time order within a monitor."""
     backwards = frame.groupby("monitor", sort=False)["hour"].diff() < pd.Timedelta(0)
     if backwards.any():
-        warnings.warn(
+        warn_user(
             f"timestamps are not in time order within a monitor (first at row {frame.index[backwards][0]}); "
             "they were sorted.",
             DataWarning,
-            stacklevel=2,
         )
     return frame.sort_values(["monitor", "hour"], kind="stable")

@@ -35,6 +35,11 @@ __all__ = ["CombineMethod", "combine_monitors", "monitor_agreement", "screen_mon
 
 CombineMethod = Literal["mean", "centred"]
 
+# Defaults of monitor_agreement (judgement; see its docstring), shared with the report's note.
+MIN_CORRELATION = 0.5
+MAX_RATIO = 3.0
+MIN_OVERLAP = 30
+
 
 def _wide(daily: pd.DataFrame, value: str, monitor: str, date: str) -> pd.DataFrame:
     """Monitor-by-date table of values (dates as rows); checks columns and duplicates."""
@@ -158,9 +163,9 @@ def monitor_agreement(
     value: str,
     monitor: str = "monitor",
     date: str = "date",
-    min_correlation: float = 0.5,
-    max_ratio: float = 3.0,
-    min_overlap: int = 30,
+    min_correlation: float = MIN_CORRELATION,
+    max_ratio: float = MAX_RATIO,
+    min_overlap: int = MIN_OVERLAP,
 ) -> pd.DataFrame:
     """Compare each monitor with the mean of the others; flag monitors that disagree strongly.
 

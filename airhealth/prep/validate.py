@@ -6,8 +6,10 @@ offending dates or rows, and says what to do.
 
 from __future__ import annotations
 
+import re
 import warnings
 from collections.abc import Iterable, Sequence
+from datetime import datetime
 
 import numpy as np
 import pandas as pd
@@ -37,26 +39,45 @@ def _fmt_dates(dates: Iterable[pd.Timestamp]) -> list[str]:
 
 
 def require_columns(frame: pd.DataFrame, columns: Iterable[str | None], what: str = "data") -> None:
-    """Raise if any named column is absent from ``frame``; ``None`` entries are ignored."""
+    """Raise if a named column is absent from ``frame`` or appears more than once; ``None`` entries are ignored.
+
+    A missing column that is the name of the index gets a hint to call ``reset_index()``.
+    """
     if not isinstance(frame, pd.DataFrame):
         raise DataError(f"{what} must be a pandas DataFrame, got {type(frame).__name__}.")
-    missing = [c for c in columns if c is not None and c not in frame.columns]
+    wanted = [c for c in columns if c is not None]
+    missing = [c for c in wanted if c not in frame.columns]
     if missing:
         available = ", ".join(str(c) for c in frame.columns[:30]) + (" ..." if len(frame.columns) > 30 else "")
-        raise DataError(
-            f"column {missing[0]!r} does not exist in {what}; available columns: {available}. "
-            "Check the spelling or rename the column."
-        )
+        hint = "Check the spelling or rename the column."
+        if missing[0] in [n for n in frame.index.names if n is not None]:
+            hint = f"The index is named {missing[0]!r}: use {what}.reset_index() to make it a column."
+        raise DataError(f"column {missing[0]!r} does not exist in {what}; available columns: {available}. {hint}")
+    for column in dict.fromkeys(wanted):
+        times = int((frame.columns == column).sum())
+        if times > 1:
+            raise DataError(f"column {column!r} appears {times} times in {what}; rename or drop one of them.")
 
 
 def parse_dates(frame: pd.DataFrame, date: str, what: str = "data") -> pd.DatetimeIndex:
     """Parse the ``date`` column of ``frame`` into a timezone-naive ``DatetimeIndex``.
 
+    Dates that carry a time zone or a UTC offset are read as the *local calendar date they state*: for
+    daily data a value such as ``2010-04-11 00:00:00+02:00`` means the day 11 April 2010 where the data were
+    recorded, so the offset is dropped and the wall-clock date as written is kept (offsets that change at
+    daylight saving are therefore fine). A timezone-aware datetime column is likewise read on its own
+    clock (``Series.dt.tz_localize(None)``). Such a date must fall at local midnight: timezone-aware dates
+    all at one or two other times of day (typically local midnights converted to UTC, e.g.
+    ``2010-03-25 23:00:00+00:00`` and, after the DST change, ``22:00``) are a
+    :class:`~airhealth.errors.DataError` naming the rows, because the local day cannot be recovered without
+    knowing the zone. (Other times of day are left to :func:`check_daily_dates`, which rejects sub-daily
+    data.)
+
     Raises
     ------
     DataError
-        If the column is missing, holds missing values, or holds values that are not dates; the message
-        names the first bad rows and their values.
+        If the column is missing or duplicated, holds missing values, holds values that are not dates, or
+        holds timezone-aware dates off local midnight; the message names the first bad rows and their values.
     """
     require_columns(frame, [date], what)
     raw = frame[date]
@@ -66,9 +87,11 @@ def parse_dates(frame: pd.DataFrame, date: str, what: str = "data") -> pd.Dateti
             f"column {date!r} in {what} has missing dates at row(s) {_listing(rows)}; every row needs a date."
         )
     if pd.api.types.is_datetime64_any_dtype(raw):
-        parsed = pd.to_datetime(raw)
+        aware = isinstance(raw.dtype, pd.DatetimeTZDtype)
+        parsed = raw.dt.tz_localize(None) if aware else pd.to_datetime(raw)
     else:
-        parsed = _parse_one_format(raw)
+        text, aware = _wall_clock_text(raw)
+        parsed = _parse_one_format(text)
         bad = parsed.isna().to_numpy()
         if bad.any():
             rows = np.flatnonzero(bad)
@@ -79,9 +102,42 @@ def parse_dates(frame: pd.DataFrame, date: str, what: str = "data") -> pd.Dateti
                 "Use ISO dates such as 2015-03-31, in one format for the whole column."
             )
     index = pd.DatetimeIndex(parsed)
-    if index.tz is not None:
-        index = index.tz_localize(None)
+    if aware:
+        _check_local_midnight(index, raw, date, what)
     return index
+
+
+_OFFSET = r"(?:Z|UTC|GMT|[+-]\d{2}(?::?\d{2})?)"
+_OFFSET_RE = re.compile(rf"^(?P<stamp>\d{{4}}-\d{{2}}-\d{{2}}(?:[ T][\d:.]+)?)\s*{_OFFSET}$")
+
+
+def _wall_clock_text(raw: pd.Series) -> tuple[pd.Series, bool]:
+    """Drop UTC offsets (and tz of datetime objects) so each value keeps the date and time as written."""
+    if raw.dtype == object and raw.map(lambda v: isinstance(v, datetime)).all():
+        aware = bool(raw.map(lambda v: v.tzinfo is not None).any())
+        return raw.map(lambda v: v.replace(tzinfo=None)), aware
+    if not (pd.api.types.is_object_dtype(raw) or pd.api.types.is_string_dtype(raw)):
+        return raw, False
+    stamp = raw.astype(str).str.strip().str.extract(_OFFSET_RE)["stamp"]
+    with_offset = stamp.notna()
+    if not with_offset.any():
+        return raw, False
+    return raw.astype(str).str.strip().where(~with_offset, stamp), True
+
+
+def _check_local_midnight(index: pd.DatetimeIndex, raw: pd.Series, date: str, what: str) -> None:
+    off = np.flatnonzero(index != index.normalize())
+    clock_times = (index[off] - index[off].normalize()).unique()
+    if len(off) and len(clock_times) <= 2:  # one or two times of day (DST): midnights moved to another zone
+        examples = ", ".join(f"row {r}: {raw.iloc[r]!s}" for r in off[:_SHOW])
+        more = f" (and {len(off) - _SHOW} more)" if len(off) > _SHOW else ""
+        raise DataError(
+            f"column {date!r} in {what} holds timezone-aware dates that are not at local midnight: "
+            f"{examples}{more}. These look like local midnights stored in UTC, whose local day cannot be "
+            "told without the zone. Convert them to local time first (e.g. "
+            f"pd.to_datetime({what}[{date!r}], utc=True).dt.tz_convert('Europe/Oslo')) or write plain dates such as "
+            "2010-03-26."
+        )
 
 
 def _parse_one_format(raw: pd.Series) -> pd.Series:
@@ -147,9 +203,7 @@ def check_daily_dates(dates: pd.DatetimeIndex, date: str = "date", what: str = "
 def check_counts(values: pd.Series, column: str, dates: pd.DatetimeIndex | None = None) -> None:
     """Require non-negative whole numbers (missing values allowed) in a count column."""
     if not (pd.api.types.is_numeric_dtype(values) or values.isna().all()):
-        raise DataError(
-            f"outcome column {column!r} is not numeric (dtype {values.dtype}); it must hold daily counts."
-        )
+        raise DataError(f"outcome column {column!r} is not numeric (dtype {values.dtype}); it must hold daily counts.")
     v = values.to_numpy(dtype=float, na_value=np.nan)
     where = dates if dates is not None else pd.RangeIndex(len(v))
 
@@ -163,9 +217,7 @@ def check_counts(values: pd.Series, column: str, dates: pd.DatetimeIndex | None 
         raise DataError(f"outcome column {column!r} has infinite values at {_at(np.isinf(v))}.")
     negative = finite & (v < 0)
     if negative.any():
-        raise DataError(
-            f"outcome column {column!r} has negative counts at {_at(negative)}; counts must be >= 0."
-        )
+        raise DataError(f"outcome column {column!r} has negative counts at {_at(negative)}; counts must be >= 0.")
     fractional = finite & (v != np.round(v))
     if fractional.any():
         raise DataError(

@@ -10,6 +10,7 @@ from collections.abc import Sequence
 import pandas as pd
 
 from ..prep.describe import CorrelationMethod, correlation_matrix, pair_counts, table_one
+from ..prep.monitors import MAX_RATIO, MIN_CORRELATION, MIN_OVERLAP, monitor_agreement
 from ..prep.quality import days_lost, hourly_coverage, longest_gaps
 from .document import Figure, Section, Table, Text
 from .exposure_plots import plot_coverage, plot_exposure_series, plot_monitor_series, plot_seasonal_pattern
@@ -83,7 +84,10 @@ def hourly_quality_section(
     title: str = "Hourly monitoring data: coverage and completeness",
     n_gaps: int = 3,
 ) -> Section:
-    """Coverage per monitor and year, days lost to each rule, longest gaps, and coverage and monitor plots.
+    """Coverage per monitor and year, days lost to each rule, longest gaps, monitor agreement, and plots.
+
+    With two or more monitors a "Monitor agreement" table compares each monitor with the mean of the others
+    (:func:`~airhealth.prep.monitors.monitor_agreement`: correlation, ratio of means, flag and reason).
 
     Parameters
     ----------
@@ -104,6 +108,21 @@ def hourly_quality_section(
         Table("Hours with a value, per monitor and year", coverage.round(3), name="hourly_coverage"),
         Table("Days lost to each completeness rule", lost.round(3), name="days_lost", note=rule_note),
         Table(f"Longest gaps (up to {n_gaps} per monitor)", gaps.round({"days": 2}), name="longest_gaps"),
+    ]
+    if daily_by_monitor["monitor"].nunique() >= 2:
+        agreement = monitor_agreement(daily_by_monitor, value=value)
+        flagged = int(agreement["flagged"].sum())
+        blocks.append(
+            Table(
+                "Monitor agreement",
+                agreement.round({"correlation": 3, "ratio_of_means": 3}),
+                name="monitor_agreement",
+                note=f"Each monitor against the mean of the others on shared valid days; {flagged} of "
+                f"{len(agreement)} monitors flagged (correlation below {MIN_CORRELATION}, a ratio of means outside "
+                f"1/{MAX_RATIO:g} to {MAX_RATIO:g}, or fewer than {MIN_OVERLAP} shared days).",
+            )
+        )
+    blocks += [
         Figure("Share of hours present by month", plot_coverage(clean).figure, name="hourly_coverage"),
         Figure(
             "Daily values per monitor",
