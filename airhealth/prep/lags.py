@@ -43,9 +43,7 @@ def lag_matrix(x: pd.Series | np.ndarray, lags: np.ndarray | range | list[int]) 
     return out
 
 
-def moving_average(
-    x: pd.Series | np.ndarray, first: int, last: int, min_count: int | None = None
-) -> np.ndarray:
+def moving_average(x: pd.Series | np.ndarray, first: int, last: int, min_count: int | None = None) -> np.ndarray:
     """Mean of ``x`` over lags ``first..last`` (inclusive) for each day.
 
     By the usual convention the mean is missing when any day in the window is missing; with ``min_count``
