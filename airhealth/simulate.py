@@ -150,8 +150,7 @@ def _parse_lag(spec: object, key: tuple[str, str]) -> tuple[int, int]:
     match = _LAG_PATTERN.match(str(spec))
     if match is None:
         raise SpecificationError(
-            f"effects[{key!r}]['lag']={spec!r} is not a lag; "
-            "use a single lag such as '0' or a window such as '0-1'."
+            f"effects[{key!r}]['lag']={spec!r} is not a lag; use a single lag such as '0' or a window such as '0-1'."
         )
     first = int(match.group(1))
     last = int(match.group(2)) if match.group(2) is not None else first
@@ -243,14 +242,7 @@ def _simulate_pollution(
     fraction = 0.35 + 0.45 / (1.0 + np.exp(-(0.3 + 0.4 * regional + 1.2 * fraction_noise + 0.4 * cal.winter)))
     no2_anomaly = 0.22 * regional + 0.25 * own_no2 + traffic - 0.01 * anomaly
     log_no2 = np.log(28.0 * scale) - 0.035 * cal.years + 0.18 * cal.winter + no2_anomaly
-    log_o3 = (
-        np.log(52.0)
-        + 0.004 * cal.years
-        - 0.30 * cal.winter
-        + 0.025 * anomaly
-        - 0.6 * no2_anomaly
-        + 0.15 * own_o3
-    )
+    log_o3 = np.log(52.0) + 0.004 * cal.years - 0.30 * cal.winter + 0.025 * anomaly - 0.6 * no2_anomaly + 0.15 * own_o3
     pm10 = np.exp(log_pm10)
     return {
         "pm25": np.round(np.maximum(fraction * pm10, 0.5), 1),
@@ -286,9 +278,7 @@ def _temperature_log_rr(temperature: np.ndarray, params: Mapping[str, object]) -
     cold_degrees = np.maximum(MINIMUM_MORTALITY_TEMPERATURE - temperature, 0.0)
     cold = np.full(temperature.shape, np.nan)
     cold[_COLD_LAGS - 1 :] = np.convolve(cold_degrees, _COLD_WEIGHTS, mode="valid")
-    return (
-        params["heat_linear"] * heat + params["heat_quadratic"] * heat**2 + params["cold_per_degree"] * cold
-    )
+    return params["heat_linear"] * heat + params["heat_quadratic"] * heat**2 + params["cold_per_degree"] * cold
 
 
 def _simulate_counts(
@@ -441,9 +431,7 @@ def simulate_city(
     tables["pollution"] = _remove_values(rng, truth, missing_fraction, int(outage_days))
     if include_truth:
         tables["pollution_true"] = truth
-    tables = {
-        key: tables[key] for key in ("counts", "pollution", "weather", "pollution_true") if key in tables
-    }
+    tables = {key: tables[key] for key in ("counts", "pollution", "weather", "pollution_true") if key in tables}
     for table in tables.values():
         table.attrs["city"] = name
     return tables

@@ -59,9 +59,7 @@ def build_tables() -> dict[str, pd.DataFrame]:
 
 def table_to_csv(table: pd.DataFrame) -> str:
     """Format one table as CSV text: ISO dates, integers as such, one decimal for measurements."""
-    return table.to_csv(
-        index=False, date_format="%Y-%m-%d", float_format="%.1f", na_rep="", lineterminator="\n"
-    )
+    return table.to_csv(index=False, date_format="%Y-%m-%d", float_format="%.1f", na_rep="", lineterminator="\n")
 
 
 def _write_readable(path: Path, text: str) -> None:

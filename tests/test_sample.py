@@ -50,9 +50,7 @@ def test_generator_script_reproduces_committed_csvs_exactly(tmp_path):
     )
     assert result.returncode == 0, result.stderr
     for file_name in SAMPLE_FILES.values():
-        assert (tmp_path / file_name).read_bytes() == (REPO / "sample_data" / file_name).read_bytes(), (
-            file_name
-        )
+        assert (tmp_path / file_name).read_bytes() == (REPO / "sample_data" / file_name).read_bytes(), file_name
 
 
 def test_package_data_equals_sample_data_copies():

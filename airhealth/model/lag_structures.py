@@ -59,11 +59,7 @@ class LagStructure:
 
     def column_names(self, exposure: str) -> list[str]:
         k = self.n_columns
-        return (
-            [f"{exposure}[{self.label}]"]
-            if k == 1
-            else [f"{exposure}[{self.label}]{j + 1}" for j in range(k)]
-        )
+        return [f"{exposure}[{self.label}]"] if k == 1 else [f"{exposure}[{self.label}]{j + 1}" for j in range(k)]
 
     def __str__(self) -> str:
         return self.label
@@ -105,13 +101,9 @@ class MovingAverage(LagStructure):
 
     def __post_init__(self) -> None:
         if not (isinstance(self.first, int | np.integer) and isinstance(self.last, int | np.integer)):
-            raise SpecificationError(
-                f"moving-average lags must be whole days, got {self.first!r}-{self.last!r}."
-            )
+            raise SpecificationError(f"moving-average lags must be whole days, got {self.first!r}-{self.last!r}.")
         if self.first < 0 or self.last < self.first:
-            raise SpecificationError(
-                f"a moving average needs 0 <= first <= last lag, got {self.first}-{self.last}."
-            )
+            raise SpecificationError(f"a moving average needs 0 <= first <= last lag, got {self.first}-{self.last}.")
         width = self.last - self.first + 1
         if self.min_count is not None and not 1 <= self.min_count <= width:
             raise SpecificationError(f"min_count must be between 1 and {width} for lags {self.label}.")

@@ -55,9 +55,7 @@ class NaturalSplineBasis:
     def __post_init__(self) -> None:
         lo, hi = self.boundary_knots
         if not np.isfinite([lo, hi]).all() or not lo < hi:
-            raise SpecificationError(
-                f"spline boundary knots must be finite with lower < upper, got {lo}, {hi}."
-            )
+            raise SpecificationError(f"spline boundary knots must be finite with lower < upper, got {lo}, {hi}.")
         knots = np.asarray(self.interior_knots, dtype=float)
         if knots.size and ((knots <= lo).any() or (knots >= hi).any() or (np.diff(knots) < 0).any()):
             raise SpecificationError(

@@ -70,9 +70,7 @@ class Term:
 
 def _series(frame: pd.DataFrame, column: str, lags: int | tuple[int, int] | None) -> np.ndarray:
     if not pd.api.types.is_numeric_dtype(frame[column]):
-        raise DataError(
-            f"column {column!r} must be numeric to enter the model (dtype {frame[column].dtype})."
-        )
+        raise DataError(f"column {column!r} must be numeric to enter the model (dtype {frame[column].dtype}).")
     x = frame[column].to_numpy(dtype=float, na_value=np.nan)
     if lags is None:
         return x
@@ -93,10 +91,7 @@ def _check_lags(lags: int | tuple[int, int] | None) -> None:
     if lags is None:
         return
     ok = (isinstance(lags, int) and lags >= 0) or (
-        isinstance(lags, tuple)
-        and len(lags) == 2
-        and all(isinstance(v, int) for v in lags)
-        and 0 <= lags[0] <= lags[1]
+        isinstance(lags, tuple) and len(lags) == 2 and all(isinstance(v, int) for v in lags) and 0 <= lags[0] <= lags[1]
     )
     if not ok:
         raise SpecificationError(f"term lags must be a day >= 0 or a pair (first, last), got {lags!r}.")
@@ -117,9 +112,7 @@ class Spline(Term):
 
     def __post_init__(self) -> None:
         if self.knots is None and (not isinstance(self.df, int | np.integer) or self.df < 1):
-            raise SpecificationError(
-                f"spline of {self.column!r}: df must be a whole number >= 1, got {self.df!r}."
-            )
+            raise SpecificationError(f"spline of {self.column!r}: df must be a whole number >= 1, got {self.df!r}.")
         _check_lags(self.lags)
 
     @property
@@ -218,9 +211,7 @@ class TimeSpline(Term):
         time = np.arange(len(frame), dtype=float)
         df = self.df_for(len(frame))
         if df >= len(frame) - 1:
-            raise DataError(
-                f"too few days ({len(frame)}) for a time trend with {df} df; lower trend_df_per_year."
-            )
+            raise DataError(f"too few days ({len(frame)}) for a time trend with {df} df; lower trend_df_per_year.")
         basis = NaturalSplineBasis.from_values(time, df=df)
         names = tuple(f"spline(time){j + 1}" for j in range(df))
         return TermBlock(self.name, basis.evaluate(time), names, basis)
