@@ -27,6 +27,7 @@ __all__ = [
     "build_confounders",
     "build_design",
     "cached_confounders",
+    "clear_cache",
     "model_frame",
     "usable_days",
 ]
@@ -100,7 +101,7 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
 
 
 _CACHE: OrderedDict[tuple[Any, ...], ConfounderBlock] = OrderedDict()
-_CACHE_SIZE = 4
+_CACHE_SIZE = 2
 
 
 def _cache_key(frame: pd.DataFrame, spec: ModelSpec) -> tuple[Any, ...] | None:
@@ -121,7 +122,7 @@ def cached_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
 
     Repeated fits on one data set (other exposures, lags or outcomes) share the confounder block. The key
     includes a content hash of every column the terms read, so changed data never reuse a stale block; a
-    few recent blocks are kept (read-only).
+    few recent blocks are kept (read-only; :func:`clear_cache` frees them).
     """
     key = _cache_key(frame, spec)
     if key is not None and key in _CACHE:
@@ -134,6 +135,11 @@ def cached_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
         while len(_CACHE) > _CACHE_SIZE:
             _CACHE.popitem(last=False)
     return block
+
+
+def clear_cache() -> None:
+    """Forget the cached confounder blocks (each holds a days × columns matrix)."""
+    _CACHE.clear()
 
 
 def build_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
