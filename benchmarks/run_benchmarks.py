@@ -221,7 +221,7 @@ def bench_cities(counts: list[int], default_threads: bool, results) -> None:
         print(f"{n:4d} cities x 12 years x 12 structures: {total:6.1f} s in all ({fit:6.1f} s in compare, the"
               f" rest simulating); peak RSS of the process {rss:5.0f} MiB")  # fmt: skip
     print(f"  Python heap over 10 more cities: peak {report['heap_peak']:.1f} MiB, "
-          f"{report['heap_current']:.2f} MiB still held (the estimates, plus at most two cached confounder blocks)")  # fmt: skip
+          f"{report['heap_current']:.2f} MiB still held (estimates; at most two cached confounder blocks)")  # fmt: skip
     n, total, _, rss = report["checkpoints"][-1]
     results[f"{n} cities x 12 y x 12-grid (s, incl. simulation)"] = ("< 30", total)
     results[f"{n} cities: peak RSS (MiB)"] = ("< 1024", rss)
