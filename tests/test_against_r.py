@@ -33,6 +33,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from conftest import r_unavailable
 
 import airhealth
 
@@ -81,7 +82,7 @@ def live(rscript, tmp_path_factory) -> dict:
         check=False,
     )
     if proc.returncode != 0 and "there is no package called" in proc.stderr:
-        pytest.skip(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
+        r_unavailable(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
     assert proc.returncode == 0, proc.stderr
     return json.loads(out.read_text())
 

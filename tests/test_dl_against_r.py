@@ -30,6 +30,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import r_unavailable
 
 from airhealth.model.fitting import fit
 
@@ -63,7 +64,7 @@ def live(rscript, tmp_path_factory):
         [rscript, str(R_SCRIPT), str(csv), str(out)], capture_output=True, text=True, timeout=300, check=False
     )
     if proc.returncode != 0 and "there is no package called" in proc.stderr:
-        pytest.skip(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
+        r_unavailable(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
     assert proc.returncode == 0, proc.stderr
     return json.loads(out.read_text())
 
