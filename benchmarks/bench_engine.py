@@ -1,6 +1,6 @@
 """Timing of the GLM engine on a realistic 14-year daily design (~118 columns).
 
-Run with ``/work/venv/bin/python benchmarks/bench_engine.py [--repeats N]``. Prints median wall times of
+Run with ``python benchmarks/bench_engine.py [--repeats N]``. Prints median wall times of
 
 * one quasi-Poisson fit by :func:`airhealth.model.engine.fit_glm`,
 * a plain numpy/scipy Cholesky IRLS written here as the lower bound for a straightforward implementation,

@@ -1,6 +1,6 @@
 """All engine benchmarks of issue 4 in one run, with a summary table of goal against measured.
 
-Run with ``/work/venv/bin/python benchmarks/run_benchmarks.py [--repeats N] [--cities 50,100,200]``.
+Run with ``python benchmarks/run_benchmarks.py [--repeats N] [--cities 50,100,200]``.
 Not part of the test run. The data are the invented Norhaven sample (``airhealth.load_sample()``, 14 years)
 and cities invented by ``airhealth.simulate.simulate_city``. Every figure is the median of repeated runs
 (the machine is shared, so single timings are noisy); airhealth and the reference run one after another
