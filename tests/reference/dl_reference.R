@@ -2,7 +2,7 @@
 #
 # Invocation (from the repository root; writes the committed JSON):
 #
-#   /work/venv/bin/python tests/reference/make_dl_input.py /tmp/dl_input.csv
+#   python tests/reference/make_dl_input.py /tmp/dl_input.csv
 #   Rscript tests/reference/dl_reference.R /tmp/dl_input.csv tests/reference/dl_reference.json
 #
 # Needs only base R and the splines package. Source: base R glm (R Core Team, R: A Language and

@@ -2,7 +2,7 @@
 
 Invocation (from the repository root)::
 
-    /work/venv/bin/python tests/reference/make_dl_input.py /tmp/dl_input.csv
+    python tests/reference/make_dl_input.py /tmp/dl_input.csv
 
 The table has one row per calendar day (the sample's calendar is complete) with ``date``, ``deaths_all``,
 ``pm25`` and ``temperature``; missing values are written as ``NA`` so that R reads them as missing.
