@@ -31,27 +31,12 @@ from ..errors import DataError, SpecificationError
 from .design import ConfounderBlock, Design, build_design, cached_confounders, model_frame, usable_days
 from .fitting import fit_design, result_from_fit
 from .grid_engine import ConfounderFit, ExposureFit, fit_confounders, fit_exposure_only, fit_with_exposure
-from .result import FitResult
+from .result import SUMMARY_COLUMNS, FitResult
 from .spec import ModelSpec
 
 __all__ = ["compare", "compare_results"]
 
-COMPARE_COLUMNS = [
-    "outcome",
-    "exposure",
-    "lag",
-    "per",
-    "coef",
-    "se",
-    "rr",
-    "rr_low",
-    "rr_high",
-    "percent_change",
-    "p_value",
-    "dispersion",
-    "qaic",
-    "n_days",
-]
+COMPARE_COLUMNS = list(SUMMARY_COLUMNS)
 
 #: Reason recorded for days left out only because ``common_days=True``.
 NOT_COMMON = "not usable by every lag structure"

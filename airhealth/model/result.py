@@ -28,6 +28,12 @@ __all__ = ["FitResult"]
 
 EffectScale = Literal["unit", "iqr"]
 
+#: Columns of one-row-per-model tables (:meth:`FitResult.summary`, ``compare``, report tables).
+SUMMARY_COLUMNS = (
+    "outcome", "exposure", "lag", "per", "coef", "se", "rr", "rr_low", "rr_high",
+    "percent_change", "p_value", "dispersion", "qaic", "n_days",
+)  # fmt: skip
+
 
 @dataclass(frozen=True)
 class FitResult:
@@ -204,23 +210,7 @@ class FitResult:
     def summary(self, per: float = 10.0, level: float = 0.95) -> pd.DataFrame:
         """One-row tidy table of the exposure effect and fit statistics."""
         d = self.to_dict(per=per, level=level)
-        keep = [
-            "outcome",
-            "exposure",
-            "lag",
-            "per",
-            "coef",
-            "se",
-            "rr",
-            "rr_low",
-            "rr_high",
-            "percent_change",
-            "p_value",
-            "dispersion",
-            "qaic",
-            "n_days",
-        ]
-        return pd.DataFrame([{k: d[k] for k in keep}])
+        return pd.DataFrame([{k: d[k] for k in SUMMARY_COLUMNS}])
 
     def drop_summary(self) -> pd.Series:
         """Number of calendar days dropped for each reason."""

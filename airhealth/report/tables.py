@@ -12,22 +12,11 @@ from typing import Any
 
 import pandas as pd
 
+from ..model.result import SUMMARY_COLUMNS
+
 __all__ = ["effects_table", "format_effects", "result_html", "suppress_small_counts"]
 
-EFFECT_COLUMNS = [
-    "outcome",
-    "exposure",
-    "lag",
-    "per",
-    "rr",
-    "rr_low",
-    "rr_high",
-    "percent_change",
-    "p_value",
-    "dispersion",
-    "qaic",
-    "n_days",
-]
+EFFECT_COLUMNS = [c for c in SUMMARY_COLUMNS if c not in ("coef", "se")]
 
 
 def effects_table(results: Iterable[Any], per: float = 10.0, level: float = 0.95) -> pd.DataFrame:
