@@ -41,6 +41,10 @@ EXPOSURE_IN_WINDOW = "exposure missing in lag window"
 LAG_BEFORE_START = "lag window starts before the first day"
 EXPOSURE_REASONS = (EXPOSURE_MISSING, EXPOSURE_IN_WINDOW, LAG_BEFORE_START)
 
+#: Shortest run of unusable days checked for confounder columns left without data (shorter runs cannot
+#: hold the support of a spline column; other rank problems are named by the engine).
+MIN_GAP_CHECKED = 14
+
 
 @dataclass(frozen=True)
 class ConfounderBlock:
@@ -215,11 +219,15 @@ def _check_supported_columns(
     Spline columns whose support lies inside a long gap (e.g. months without exposure data) cannot be
     estimated; the engine would report them as collinear, which a user cannot act on.
     """
+    if used.all():
+        return
+    first, last, length = _longest_unused_run(calendar, used)
+    if length < MIN_GAP_CHECKED:  # no spline column's support fits in a shorter run of unused days
+        return
     k = conf.matrix.shape[1]
     empty = np.flatnonzero(~np.any(matrix[:, 1:k] != 0, axis=0)) + 1
     if not empty.size:
         return
-    first, last, length = _longest_unused_run(calendar, used)
     gap = dropped[(dropped["date"] >= first) & (dropped["date"] <= last)]["reason"].value_counts()
     why = ", ".join(f"{r}: {c}" for r, c in gap.head(3).items())
     shown = ", ".join(repr(names[j]) for j in empty[:4]) + (f" and {empty.size - 4} more" if empty.size > 4 else "")
