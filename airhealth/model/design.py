@@ -153,8 +153,11 @@ def build_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
     blocks += [term.build(frame, spec.date) for term in spec.confounder_terms()]
     matrix = np.hstack([b.columns for b in blocks])
     first_missing = np.full(n, -1)
-    for i in range(len(blocks) - 1, -1, -1):
-        first_missing[~np.isfinite(blocks[i].columns).all(axis=1)] = i
+    incomplete = np.flatnonzero(~np.isfinite(matrix).all(axis=1))
+    if incomplete.size:  # name the first term missing on each incomplete row (few rows)
+        for i in range(len(blocks) - 1, -1, -1):
+            bad = ~np.isfinite(blocks[i].columns[incomplete]).all(axis=1)
+            first_missing[incomplete[bad]] = i
     names = tuple(name for b in blocks for name in b.column_names)
     if len(set(names)) != len(names):
         dup = next(n for n in names if names.count(n) > 1)
