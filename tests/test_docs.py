@@ -38,3 +38,16 @@ def test_readme_and_reports_carry_the_caution() -> None:
     readme = (ROOT / "README.md").read_text(encoding="utf-8")
     assert "not proof of causation" in readme
     assert "not proof of causation" in CAUTION
+
+
+def test_readme_python_example_runs() -> None:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    blocks = re.findall(r"```python\n(.*?)```", readme, flags=re.S)
+    assert blocks, "README has no Python example"
+    namespace: dict[str, object] = {}
+    exec(compile(blocks[0], "README.md", "exec"), namespace)
+    result = namespace["result"]
+    assert 0.99 < result.effect(per=10).rr < 1.03  # the sample's true RR per 10 is 1.010

@@ -46,6 +46,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except AirhealthError as exc:
         print(f"airhealth {args.command}: error: {exc}", file=sys.stderr)
         return 2
+    except BrokenPipeError:  # output piped into a program that stopped reading (e.g. head)
+        sys.stderr.close()
+        return 0
 
 
 if __name__ == "__main__":  # pragma: no cover
