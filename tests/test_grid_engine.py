@@ -15,7 +15,7 @@ import pytest
 
 from airhealth._threads import blas_threads, single_threaded_blas, worker_initializer
 from airhealth.errors import FitError
-from airhealth.model import grid_engine
+from airhealth.model import grid_engine, grid_inference
 from airhealth.model.engine import fit_glm
 from airhealth.model.grid_engine import fit_confounders, fit_many, fit_with_exposure
 
@@ -134,7 +134,7 @@ def test_negbin_falls_back_to_the_plain_path(data):
 
 def test_negbin_with_fixed_theta_uses_the_fast_path(data, monkeypatch):
     Z, pm, y, _ = data
-    monkeypatch.setattr(grid_engine, "_plain", None)  # calling it would fail
+    monkeypatch.setattr(grid_inference, "_plain", None)  # calling it would fail
     base = fit_confounders(Z, y, family="negbin", theta=10.0)
     E = exposures(pm)["mean0-3"]
     rows = masks(E)["scattered"]
@@ -233,12 +233,12 @@ def test_exposure_only_equals_plain_fit(data, family, monkeypatch):
     def no_fallback(*args, **kwargs):
         raise AssertionError("the exposure-only path fell back to the plain fit")
 
-    monkeypatch.setattr(grid_engine, "_plain", no_fallback)
-    monkeypatch.setattr(grid_engine, "_exact_projection", no_fallback)  # refinement must converge
+    monkeypatch.setattr(grid_inference, "_plain", no_fallback)
+    monkeypatch.setattr(grid_inference, "_exact_projection", no_fallback)  # refinement must converge
     checked = 0
     for E in exposures(pm).values():
         for rows in masks(E).values():
-            fast = grid_engine.fit_exposure_only(base, E, rows)
+            fast = grid_inference.fit_exposure_only(base, E, rows)
             plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], family=family, offset=offset[rows])
             assert_same_exposure_block(fast, plain, E.shape[1])
             assert fast.converged and not fast.exact_product and fast.family == family
@@ -253,10 +253,10 @@ def test_exposure_only_with_weights_and_fixed_theta(data):
     rows = masks(E)["block"]
     base = fit_confounders(Z, y, weights=w)
     plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], weights=w[rows])
-    assert_same_exposure_block(grid_engine.fit_exposure_only(base, E, rows), plain, 4)
+    assert_same_exposure_block(grid_inference.fit_exposure_only(base, E, rows), plain, 4)
     base_nb = fit_confounders(Z, y, family="negbin", theta=10.0)
     plain_nb = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], family="negbin", theta=10.0)
-    assert_same_exposure_block(grid_engine.fit_exposure_only(base_nb, E, rows), plain_nb, 4)
+    assert_same_exposure_block(grid_inference.fit_exposure_only(base_nb, E, rows), plain_nb, 4)
 
 
 def test_exposure_only_stalled_refinement_uses_the_exact_product(data, monkeypatch):
@@ -264,10 +264,10 @@ def test_exposure_only_stalled_refinement_uses_the_exact_product(data, monkeypat
     base = fit_confounders(Z, y)
     E = exposures(pm)["mean0-3"]
     rows = masks(E)["usable"]
-    monkeypatch.setattr(grid_engine, "REFINE_RTOL", 0.0)  # never reached: the refinement must stall
-    monkeypatch.setattr(grid_engine, "_refined", lambda *a: False)
-    monkeypatch.setattr(grid_engine, "_plain", None)  # the fixed-Hessian path itself must take the exact product
-    fast = grid_engine.fit_exposure_only(base, E, rows)
+    monkeypatch.setattr(grid_inference, "REFINE_RTOL", 0.0)  # never reached: the refinement must stall
+    monkeypatch.setattr(grid_inference, "_refined", lambda *a: False)
+    monkeypatch.setattr(grid_inference, "_plain", None)  # the fixed-Hessian path itself must take the exact product
+    fast = grid_inference.fit_exposure_only(base, E, rows)
     assert fast.exact_product
     plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows])
     assert_same_exposure_block(fast, plain, 1)
@@ -279,15 +279,15 @@ def test_exposure_only_fallbacks_keep_the_answer_and_the_errors(data):
     base = fit_confounders(Z, y, column_names=names)
     E = exposures(pm)["lag2"]
     rows = masks(E)["usable"]
-    one_step = grid_engine.fit_exposure_only(base, E, rows, max_iter=1)  # cannot converge: plain path
+    one_step = grid_inference.fit_exposure_only(base, E, rows, max_iter=1)  # cannot converge: plain path
     plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows])
     assert_same_exposure_block(one_step, plain, 1)
     assert one_step.exact_product
     with pytest.raises(FitError, match=r"rank-deficient") as info:
-        grid_engine.fit_exposure_only(base, (Z[:, 1] + 2 * Z[:, 2])[:, None], column_names=["pm10"])
+        grid_inference.fit_exposure_only(base, (Z[:, 1] + 2 * Z[:, 2])[:, None], column_names=["pm10"])
     assert "'pm10'" in str(info.value)
     base_nb = fit_confounders(Z, y, family="negbin")  # estimated theta: always the plain path
-    nb = grid_engine.fit_exposure_only(base_nb, E, rows)
+    nb = grid_inference.fit_exposure_only(base_nb, E, rows)
     ref = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], family="negbin")
     assert nb.theta == pytest.approx(ref.theta, rel=1e-7) and nb.theta_estimated
     assert nb.coef[0] == pytest.approx(ref.coef[-1], rel=1e-6)

@@ -3,7 +3,7 @@
 All structures share the validated frame (validated once, for the deepest lag), the confounder block of
 the design (built once) and the confounder-only fit (fitted once on the days where the outcome and every
 confounder are available). Each structure is then fitted on its own usable days by
-:func:`~airhealth.model.grid_engine.fit_exposure_only` (for the tidy table) or
+:func:`~airhealth.model.grid_inference.fit_exposure_only` (for the tidy table) or
 :func:`~airhealth.model.grid_engine.fit_with_exposure` (for full results), which reuse that fit and give the
 same estimates as a separate :func:`airhealth.fit` to rounding. The days each structure uses come from the
 design builder's drop rules (:mod:`airhealth.model.design`), so they are those of the single fit.
@@ -30,7 +30,8 @@ from .._threads import single_threaded_blas
 from ..errors import DataError, SpecificationError
 from .design import ConfounderBlock, Design, build_design, cached_confounders, model_frame, usable_days
 from .fitting import fit_design, result_from_fit
-from .grid_engine import ConfounderFit, ExposureFit, fit_confounders, fit_exposure_only, fit_with_exposure
+from .grid_engine import ConfounderFit, fit_confounders, fit_with_exposure
+from .grid_inference import ExposureFit, fit_exposure_only
 from .result import SUMMARY_COLUMNS, FitResult
 from .spec import ModelSpec
 
