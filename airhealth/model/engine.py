@@ -132,8 +132,8 @@ class _State:
 _WORKSPACE = threading.local()
 
 
-def workspace(key: str, shape: tuple[int, int]) -> np.ndarray:
-    """A reusable per-thread ``float64`` buffer of ``shape`` (contents undefined).
+def workspace(key: str, shape: tuple[int, int], order: str = "C") -> np.ndarray:
+    """A reusable per-thread ``float64`` buffer of ``shape`` in ``order`` (contents undefined).
 
     Fresh multi-megabyte arrays are served by the operating system page by page and the page faults
     cost more than a ``syrk`` on them, so the ``n x p`` work buffers are kept (one per key and thread;
@@ -144,13 +144,20 @@ def workspace(key: str, shape: tuple[int, int]) -> np.ndarray:
     if flat is None or flat.size < size:
         flat = np.empty(size)
         setattr(_WORKSPACE, key, flat)
-    return flat[:size].reshape(shape)
+    return flat[:size].reshape(shape, order=order)
+
+
+def layout(X: np.ndarray) -> str:
+    """``"F"`` for a column-major matrix, else ``"C"`` (work buffers follow the design's layout)."""
+    return "F" if X.flags.f_contiguous and not X.flags.c_contiguous else "C"
 
 
 # --------------------------------------------------------------------------------- linear algebra core
 def _weighted_gram(X: np.ndarray, w: np.ndarray, buf: np.ndarray) -> np.ndarray:
     """Upper triangle of ``X.T diag(w) X`` (Fortran order) by one ``syrk`` on ``buf``."""
     np.multiply(X, np.sqrt(w)[:, None], out=buf)
+    if layout(buf) == "F":  # column-major: syrk on the columns directly (about 20% faster here)
+        return blas.dsyrk(1.0, buf, trans=1, lower=0)
     return blas.dsyrk(1.0, buf.T, trans=0, lower=0)
 
 
@@ -416,7 +423,7 @@ def fit_glm(
     X, y, offset, w, names = validate_inputs(X, y, offset, weights, column_names)
     if start is not None:
         start = as_vector("start", start, X.shape[1], 0.0)
-    buf = workspace("design", X.shape)
+    buf = workspace("design", X.shape, layout(X))
     theta_estimated = family == "negbin" and theta is None
     if family != "negbin":
         fam = Poisson()

@@ -62,7 +62,9 @@ def as_vector(name: str, a, n: int, default: float) -> np.ndarray:
 
 
 def validate_inputs(X, y, offset, weights, column_names):
-    X = np.ascontiguousarray(X, dtype=float)
+    X = np.asarray(X, dtype=float)
+    if not (X.flags.c_contiguous or X.flags.f_contiguous):
+        X = np.ascontiguousarray(X)
     if X.ndim != 2:
         raise FitError(f"The design matrix must be two-dimensional; got {X.ndim} dimension(s).")
     n, p = X.shape
