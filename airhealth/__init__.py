@@ -4,7 +4,6 @@ Results are statistical associations, not proof of causation; they inform but do
 review, local regulation or licensed public-health practice.
 """
 
-from .datasets import load_sample
 from .errors import (
     AirhealthError,
     AirhealthWarning,
@@ -25,7 +24,7 @@ from .model.result import FitResult
 from .model.spec import ModelSpec
 from .model.terms import Categorical, Linear, Spline
 from .prep.align import align_daily
-from .sample import load_sample_tables
+from .sample import load_sample, load_sample_tables
 
 __version__ = "0.1.0"
 

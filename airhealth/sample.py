@@ -5,8 +5,8 @@ Norhaven is a fictional city; its daily tables (2010-01-01 to 2023-12-31) are si
 ``sample_data/generate_sample.py``. The pollutant effects built into them are :data:`SAMPLE_TRUE_EFFECTS`.
 
 The pollution table has about 1.5 % missing values per pollutant and lacks the rows of one nine-day
-monitor outage; the counts and weather tables are complete. Aligning the three tables on a full daily
-calendar is left to the data-preparation layer.
+monitor outage; the counts and weather tables are complete. :func:`load_sample` aligns the three on one
+complete daily calendar.
 """
 
 from __future__ import annotations
@@ -17,6 +17,7 @@ from pathlib import Path
 import pandas as pd
 
 from .errors import DataError
+from .prep.align import align_daily
 from .simulate import TRUE_EFFECTS
 
 __all__ = [
@@ -25,6 +26,7 @@ __all__ = [
     "SAMPLE_SEED",
     "SAMPLE_START",
     "SAMPLE_TRUE_EFFECTS",
+    "load_sample",
     "load_sample_hourly",
     "load_sample_tables",
     "sample_path",
@@ -133,3 +135,22 @@ def load_sample_hourly() -> pd.DataFrame:
     :func:`airhealth.prep.hourly_input.clean_hourly`.
     """
     return pd.read_csv(sample_path("hourly_no2"))
+
+
+def load_sample() -> pd.DataFrame:
+    """Norhaven's daily counts, pollutants and weather (2010–2023) on one complete calendar.
+
+    The invented city's pollution table lacks the rows of a nine-day monitor outage; here those days are
+    present with missing pollutant values, as :func:`airhealth.prep.align_daily` guarantees.
+
+    Examples
+    --------
+    >>> import airhealth
+    >>> data = airhealth.load_sample()
+    >>> list(data.columns)[:4]
+    ['date', 'deaths_all', 'admissions_respiratory', 'admissions_cardiovascular']
+    """
+    tables = load_sample_tables()
+    return align_daily(
+        tables["counts"], tables["pollution"], tables["weather"], names=("counts", "pollution", "weather")
+    )

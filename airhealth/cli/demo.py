@@ -50,9 +50,9 @@ def run(args: argparse.Namespace) -> int:
     import matplotlib
 
     matplotlib.use("Agg")
-    from ..datasets import load_sample
     from ..report.city_report import write_city_report
     from ..report.tables import format_effects
+    from ..sample import load_sample
 
     data = load_sample()
     path, table = write_city_report(

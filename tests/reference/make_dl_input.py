@@ -15,7 +15,7 @@ import sys
 from pathlib import Path
 
 from airhealth._io import write_text
-from airhealth.datasets import load_sample
+from airhealth.sample import load_sample
 
 COLUMNS = ("date", "deaths_all", "pm25", "temperature")
 
