@@ -25,10 +25,11 @@ from scipy import special
 
 from ..errors import SpecificationError
 
-__all__ = ["Effect", "relative_risk", "risk_ratio_2x2"]
+__all__ = ["Effect", "normal_quantile", "relative_risk", "risk_ratio_2x2"]
 
 
-def _z(level: float) -> float:
+def normal_quantile(level: float) -> float:
+    """The two-sided normal quantile ``z`` of a confidence ``level`` (1.959964 for 0.95)."""
     if isinstance(level, bool) or not isinstance(level, int | float | np.number) or not 0 < level < 1:
         raise SpecificationError(f"confidence level must be between 0 and 1, got {level!r}.")
     return float(special.ndtri(0.5 + level / 2))
@@ -98,7 +99,7 @@ def relative_risk(
         raise SpecificationError(f"per must be a positive number of exposure units, got {per!r}.")
     if not np.isfinite(se) or se < 0:
         raise SpecificationError(f"standard error must be finite and >= 0, got {se!r}.")
-    z = _z(level)
+    z = normal_quantile(level)
     rr = math.exp(per * coef)
     low, high = math.exp(per * (coef - z * se)), math.exp(per * (coef + z * se))
     p = float(2 * special.ndtr(-abs(coef) / se)) if se > 0 else float("nan")
@@ -145,5 +146,5 @@ def risk_ratio_2x2(a: int, b: int, c: int, d: int, level: float = 0.95) -> RiskR
     r1, r0 = a / (a + b), c / (c + d)
     rr = r1 / r0
     se = math.sqrt(1 / a - 1 / (a + b) + 1 / c - 1 / (c + d))
-    z = _z(level)
+    z = normal_quantile(level)
     return RiskRatio(r1, r0, r1 - r0, rr, rr * math.exp(-z * se), rr * math.exp(z * se))

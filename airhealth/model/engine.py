@@ -21,13 +21,13 @@ mortality. *J R Stat Soc A* 169:179-203 (QAIC for quasi-Poisson models).
 from __future__ import annotations
 
 import threading
-import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg import blas, lapack
 
+from .._warn import warn_user
 from ..errors import ConvergenceWarning, FitError
 from .engine_checks import (
     RANK_TOL,
@@ -285,12 +285,11 @@ def _line_search(s: _State, X, y, w, fam, delta, tol) -> bool:
 
 def _warn_if_not_converged(s: _State, tol: float, what: str = "IRLS") -> None:
     if not s.converged:
-        warnings.warn(
+        warn_user(
             f"{what} stopped after {s.n_iter} iteration(s) without convergence: the last relative "
             f"deviance change was {s.last_change:.3g} > tol={tol:g}. Increase max_iter, give better "
             "starting values or simplify the model; results may be inaccurate.",
             ConvergenceWarning,
-            stacklevel=3,
         )
 
 

@@ -6,12 +6,12 @@ Every fit in airhealth (single fits, comparisons, sweeps, the command line) goes
 
 from __future__ import annotations
 
-import warnings
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from .._warn import warn_user
 from ..errors import DataWarning, DispersionWarning
 from .design import EXPOSURE_MISSING, EXPOSURE_REASONS, Design, build_design, model_frame
 from .engine import GLMFit, fit_glm
@@ -43,30 +43,27 @@ def fit_design(design: Design, spec: ModelSpec, start: np.ndarray | None = None)
 def _warn_suspicious(design: Design, spec: ModelSpec, glm: GLMFit) -> None:
     mean_count = float(np.mean(design.response))
     if mean_count < FEW_EVENTS_PER_DAY:
-        warnings.warn(
+        warn_user(
             f"few events: {spec.outcome!r} averages {mean_count:.2f} per day over the days used; "
             "estimates rest on few cases and large-sample intervals may be poor.",
             DataWarning,
-            stacklevel=4,
         )
     reasons = design.dropped["reason"]
     n_lost = int(reasons.isin(EXPOSURE_REASONS).sum())
     n_days = len(design.calendar)
     if n_lost > MISSING_EXPOSURE_WARN * n_days:
         n_missing = int((reasons == EXPOSURE_MISSING).sum())
-        warnings.warn(
+        warn_user(
             f"exposure {spec.exposure!r} (lag {spec.lag.label}) leaves {n_lost} of {n_days} days unusable "
             f"({n_missing} days with no value, the rest with a missing day in the lag window); the fit uses "
             f"{int(design.used.sum())} days. Consider a shorter lag window or MovingAverage(min_count=...).",
             DataWarning,
-            stacklevel=4,
         )
     if spec.family == "quasipoisson" and glm.dispersion > DISPERSION_WARN:
-        warnings.warn(
+        warn_user(
             f"the estimated dispersion is {glm.dispersion:.1f} (Pearson χ² / residual df); counts vary far "
             "more than Poisson — check for outliers, missing confounders or a mis-specified outcome.",
             DispersionWarning,
-            stacklevel=4,
         )
 
 

@@ -26,16 +26,16 @@ Epidemiology 28:72–76 (the minimum's uncertainty needs resampling; the band gi
 
 from __future__ import annotations
 
-import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
+from .._warn import warn_user
 from ..errors import DataWarning, SpecificationError
+from .effects import normal_quantile
 from .exposure_lag import ExposureLagBasis, ExposureLagTerm, LinearResponse
 from .result import FitResult
 
@@ -99,12 +99,6 @@ def find_lag_term(result: FitResult, term: str | ExposureLagTerm | None = None) 
     return LagTerm(basis, column, *_block(result, basis.column_names(column)))
 
 
-def _z(level: float) -> float:
-    if not 0 < level < 1:
-        raise SpecificationError(f"confidence level must be between 0 and 1, got {level!r}.")
-    return float(stats.norm.ppf(0.5 + level / 2))
-
-
 def _grid(lt: LagTerm, size: int, within: tuple[float, float] | None = None) -> np.ndarray:
     if lt.summary is None:
         raise SpecificationError(
@@ -137,11 +131,10 @@ def _values(lt: LagTerm, given: Any) -> np.ndarray:
         raise SpecificationError(f"values must be one or more finite exposure values, got {given!r}.")
     s = lt.summary
     if s is not None and ((values < s.low) | (values > s.high)).any():
-        warnings.warn(
+        warn_user(
             f"some of the exposure values lie outside the observed range of {lt.exposure!r} "
             f"({s.low:g} to {s.high:g}); the curve there is an extrapolation.",
             DataWarning,
-            stacklevel=3,
         )
     return values
 
@@ -198,7 +191,7 @@ def exposure_response(
     >>> exposure_response(res, values=[-2.0, 25.0], reference=19.0)  # doctest: +SKIP
     """
     lt = find_lag_term(result, term)
-    z = _z(level)
+    z = normal_quantile(level)
     values = _values(lt, values)
     ref = _reference(lt, reference)
     if per_lag:
@@ -259,7 +252,7 @@ def minimum_risk_exposure_of(
     best = int(np.argmin(coef))
     diff, se = lt.predict(lt.basis.contrast_rows(grid, grid[best], cumulative=True))
     with np.errstate(divide="ignore", invalid="ignore"):
-        flat = (diff <= _z(level) * se) | (se == 0)
+        flat = (diff <= normal_quantile(level) * se) | (se == 0)
     edge = best in (0, grid.size - 1)
     note = (
         f"{lt.exposure} of lowest cumulative risk {grid[best]:.3g}; values from {grid[flat].min():.3g} to "

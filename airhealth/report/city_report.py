@@ -10,12 +10,12 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from .._progress import progress
 from ..model.compare import compare_results
 from ..model.spec import ModelSpec
+from ..prep.describe import table_one
 from .data_quality_section import data_quality_section
 from .document import Figure, Section, Table, Text
 from .html import write_html_report
@@ -64,25 +64,14 @@ def describe_model(spec: ModelSpec, n_calendar: int, per: float = 10.0, unit: st
 
 def count_summary(data: pd.DataFrame, outcomes: Sequence[str]) -> pd.DataFrame:
     """Daily counts per outcome: days, total, mean, SD and quantiles (the health counts of the report)."""
-    rows = []
-    for outcome in outcomes:
-        y = pd.to_numeric(data[outcome], errors="coerce").dropna().to_numpy(dtype=float)
-        q = np.percentile(y, [0, 25, 50, 75, 100]) if y.size else [np.nan] * 5
-        rows.append(
-            {
-                "outcome": outcome,
-                "days": y.size,
-                "total": y.sum(),
-                "mean": y.mean(),
-                "sd": y.std(ddof=1),
-                "min": q[0],
-                "p25": q[1],
-                "median": q[2],
-                "p75": q[3],
-                "max": q[4],
-            }
-        )
-    return pd.DataFrame(rows)
+    t = table_one(data, outcomes, percentiles=(25, 50, 75))
+    totals = data[list(outcomes)].apply(pd.to_numeric, errors="coerce").sum()
+    return pd.DataFrame({
+        "outcome": t.index, "days": t["n"].astype(int).to_numpy(), "total": totals[t.index].to_numpy(dtype=float),
+        "mean": t["mean"].to_numpy(), "sd": t["sd"].to_numpy(), "min": t["min"].to_numpy(),
+        "p25": t["p25"].to_numpy(), "median": t["p50"].to_numpy(), "p75": t["p75"].to_numpy(),
+        "max": t["max"].to_numpy(),
+    })  # fmt: skip
 
 
 def _forest_figures(table: pd.DataFrame, per: float, unit: str) -> list[Figure]:
