@@ -31,6 +31,7 @@ from ..prep.hourly import aggregate_daily, count_column, validity_rule
 from ..prep.hourly_input import clean_hourly
 from ..prep.monitors import combine_monitors, monitor_agreement, screen_monitor_years
 from ..prep.units import convert_units, parse_unit, single_unit
+from .tables import read_table
 
 __all__ = ["register", "run"]
 
@@ -84,10 +85,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 def _read(args: argparse.Namespace) -> pd.DataFrame:
     na = [v.strip() for v in args.na_values.split(",")] if args.na_values else None
-    try:
-        frame = pd.read_csv(args.hourly, na_values=na, keep_default_na=True)
-    except (OSError, pd.errors.ParserError, UnicodeDecodeError) as exc:
-        raise DataError(f"cannot read {args.hourly}: {exc}") from None
+    frame = read_table(Path(args.hourly), na_values=na)
     frame.index = frame.index + 2  # CSV line numbers (line 1 is the header)
     return frame
 

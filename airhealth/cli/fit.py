@@ -12,7 +12,7 @@ from typing import Any
 
 import pandas as pd
 
-from ..errors import DataError
+from .tables import read_table
 
 
 def register(sub: Any) -> None:
@@ -51,35 +51,6 @@ def _clean(value: Any) -> Any:
     if hasattr(value, "item"):
         return _clean(value.item())
     return value
-
-
-def read_table(path: Path, sep: str = ",", decimal: str = ".") -> pd.DataFrame:
-    """Read a CSV, turning I/O and parse failures into a clear error.
-
-    The separator is not guessed: a file read as one column whose name holds ``;`` or a tab (a
-    semicolon-separated export, common where the decimal mark is a comma) is refused with a message naming
-    ``--sep`` and ``--decimal``. Guessing would be silent, and a wrong guess of the decimal mark turns
-    numbers into text further on, far from the cause.
-    """
-    if not path.exists():
-        raise DataError(f"file {str(path)!r} does not exist.")
-    if path.is_dir():
-        raise DataError(f"{str(path)!r} is a directory; give the path of a CSV file.")
-    try:
-        table = pd.read_csv(path, sep=sep, decimal=decimal)
-    except ValueError as exc:  # ParserError, EmptyDataError, UnicodeDecodeError, bad options
-        raise DataError(f"could not read {str(path)!r} as CSV: {exc}") from exc
-    except OSError as exc:
-        raise DataError(f"could not read {str(path)!r}: {exc.strerror or exc}.") from exc
-    if table.shape[1] == 1:
-        header = str(table.columns[0])
-        for mark, option in ((";", "--sep ';' (and --decimal , if numbers use a decimal comma)"), ("\t", "--sep tab")):
-            if mark in header and mark != sep:
-                raise DataError(
-                    f"{str(path)!r} was read as one column named {header!r}: the file seems to use "
-                    f"{mark!r} as separator. Pass {option}."
-                )
-    return table
 
 
 def _fit(data: pd.DataFrame, args: argparse.Namespace) -> Any:
