@@ -65,6 +65,11 @@ class FitResult:
     exposure_iqr : float
         Interquartile range of the daily exposure (not its lagged or averaged form) on the days used, for
         effects per IQR; the same increment for every lag structure fitted on the same days.
+    aliased : tuple of str
+        Confounder columns left out of the fit because the days used give them no support (e.g. spline
+        columns of time inside a long gap), as R's ``glm`` reports aliased coefficients.
+    notes : tuple of str
+        Plain-language notes on how the fit was obtained (e.g. a negative binomial that fell back to Poisson).
     """
 
     spec: ModelSpec
@@ -85,6 +90,8 @@ class FitResult:
     n_iter: int
     theta: float | None = None
     bases: Any = None
+    aliased: tuple[str, ...] = ()
+    notes: tuple[str, ...] = ()
 
     # -- the exposure term -------------------------------------------------------------------------
     @property
@@ -126,8 +133,9 @@ class FitResult:
         if scale == "iqr":
             if per is not None:
                 raise SpecificationError("give either per=... or scale='iqr', not both.")
-            return self.exposure_iqr, f"IQR ({self.exposure_iqr:.3g})"
-        return (10.0 if per is None else float(per)), ""
+            return self.exposure_iqr, f"IQR ({self.exposure_iqr:.3g} {self.spec.unit})"
+        amount = 10.0 if per is None else float(per)
+        return amount, f"{amount:g} {self.spec.unit}"
 
     def effect(self, per: float | None = None, scale: EffectScale = "unit", level: float = 0.95) -> Any:
         """Relative risk for an exposure increase of ``per`` units (default 10), or one IQR with ``scale="iqr"``.
@@ -182,6 +190,7 @@ class FitResult:
             "exposure": self.spec.exposure,
             "lag": self.spec.lag.label,
             "per": e.per,
+            "unit": self.spec.unit,
             "coef": e.coef,
             "se": e.se,
             "rr": e.rr,
@@ -199,6 +208,8 @@ class FitResult:
             "family": self.spec.family,
             "converged": self.converged,
             "level": level,
+            "aliased": list(self.aliased),
+            "notes": list(self.notes),
         }
         if self.theta is not None:
             out["theta"] = self.theta
@@ -226,7 +237,7 @@ class FitResult:
         e = self.effect()
         return (
             f"<FitResult {self.spec.outcome} ~ {self.spec.exposure} lag {self.spec.lag.label} "
-            f"({self.spec.family}): RR per 10 = {e.rr:.4f} [{e.rr_low:.4f}, {e.rr_high:.4f}], "
+            f"({self.spec.family}): RR per 10 {self.spec.unit} = {e.rr:.4f} [{e.rr_low:.4f}, {e.rr_high:.4f}], "
             f"dispersion {self.dispersion:.3f}, {self.n_days} days>"
         )
 

@@ -15,7 +15,10 @@ from ..errors import SpecificationError
 from .lag_structures import LagStructure, parse_lag
 from .terms import DayOfWeek, FourierSeason, Linear, PublicHolidays, Spline, Term, TimeSpline
 
-__all__ = ["Family", "ModelSpec", "Seasonality"]
+__all__ = ["DEFAULT_UNIT", "Family", "ModelSpec", "Seasonality"]
+
+#: Unit of an exposure unless the user names another.
+DEFAULT_UNIT = "µg/m³"
 
 Family = Literal["quasipoisson", "poisson", "negbin"]
 Seasonality = Literal["spline", "fourier"]
@@ -77,6 +80,13 @@ class ModelSpec:
         How the negative binomial θ is estimated.
     offset : str or None
         Column added to the linear predictor with coefficient 1 (e.g. log population).
+    unit : str
+        Unit of the exposure (default ``"µg/m³"``); carried into every effect label, table, figure and the
+        JSON (``"unit"``) so that a relative risk reads "per 10 ppb". :meth:`from_options` also accepts
+        ``units={"o3": "ppb"}``, a mapping of column → unit, and takes the exposure's entry.
+    na_values : tuple
+        Values that mean "missing" in the data columns the model reads (e.g. ``(-999,)``); they become
+        missing before any check or fit.
     tol : float
         Convergence tolerance on the relative change in deviance (default 1e-10; strict, see Dominici
         et al. 2002).
@@ -115,6 +125,8 @@ class ModelSpec:
     offset: str | None = None
     tol: float = 1e-10
     max_iter: int = 100
+    unit: str = DEFAULT_UNIT
+    na_values: tuple[Any, ...] = ()
 
     def __post_init__(self) -> None:
         for name in ("outcome", "exposure", "date"):
@@ -146,6 +158,14 @@ class ModelSpec:
                 )
         object.__setattr__(self, "confounders", terms)
         TimeSpline(self.trend_df_per_year)  # validates the value
+        if not isinstance(self.unit, str) or not self.unit.strip():
+            raise SpecificationError(f"unit must be a non-empty text such as 'µg/m³' or 'ppb', got {self.unit!r}.")
+        given_na = self.na_values
+        if given_na is None:
+            given_na = ()
+        elif isinstance(given_na, str | int | float):
+            given_na = (given_na,)
+        object.__setattr__(self, "na_values", tuple(given_na))
         if self.exposure == self.outcome:
             raise SpecificationError(f"outcome and exposure are the same column, {self.outcome!r}.")
         self._check_roles()
@@ -164,12 +184,27 @@ class ModelSpec:
 
     @classmethod
     def from_options(cls, **options: Any) -> ModelSpec:
-        """Build a spec from keyword options, naming any unknown option and listing the valid ones."""
+        """Build a spec from keyword options, naming any unknown option and listing the valid ones.
+
+        ``units`` (a mapping of column → unit) is accepted besides the fields: the exposure's entry becomes
+        ``unit`` (columns not named keep the default, µg/m³).
+        """
+        options = dict(options)
+        units = options.pop("units", None)
+        if units is not None:
+            if not hasattr(units, "get"):
+                raise SpecificationError(
+                    f"units must be a mapping of column to unit, e.g. {{'o3': 'ppb'}}; got {units!r}."
+                )
+            if "unit" in options and options.get("exposure") in units:
+                raise SpecificationError("give the exposure's unit either as unit=... or in units=..., not both.")
+            if options.get("exposure") in units:
+                options["unit"] = units[options["exposure"]]
         valid = {f.name for f in dataclasses.fields(cls)}
         unknown = sorted(set(options) - valid)
         if unknown:
             raise SpecificationError(
-                f"unknown model option {unknown[0]!r}; valid options are: {', '.join(sorted(valid))}."
+                f"unknown model option {unknown[0]!r}; valid options are: {', '.join(sorted(valid | {'units'}))}."
             )
         return cls(**options)
 

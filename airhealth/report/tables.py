@@ -67,7 +67,7 @@ def result_html(result: Any) -> str:
     rows = [
         ("outcome", spec.outcome),
         ("exposure", f"{spec.exposure}, lag {spec.lag.label}"),
-        ("RR per 10 units (95% CI)", f"{e.rr:.4f} ({e.rr_low:.4f} to {e.rr_high:.4f})"),
+        (f"RR per 10 {spec.unit} (95% CI)", f"{e.rr:.4f} ({e.rr_low:.4f} to {e.rr_high:.4f})"),
         ("percent change", f"{e.percent_change:.2f}%"),
         ("p-value", f"{e.p_value:.3g}"),
         ("family", spec.family),
