@@ -151,7 +151,7 @@ def build_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
     n = len(frame)
     blocks = [TermBlock(INTERCEPT, np.ones((n, 1)), (INTERCEPT,))]
     blocks += [term.build(frame, spec.date) for term in spec.confounder_terms()]
-    matrix = np.hstack([b.columns for b in blocks])
+    matrix = np.asfortranarray(np.hstack([b.columns for b in blocks]))  # column-major: designs gather it fast
     first_missing = np.full(n, -1)
     incomplete = np.flatnonzero(~np.isfinite(matrix).all(axis=1))
     if incomplete.size:  # name the first term missing on each incomplete row (few rows)
@@ -277,7 +277,9 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         )
     matrix = np.empty((n_used, p), order="F")  # column-major: the engine's syrk is fastest on it
     k = conf.matrix.shape[1]
-    matrix[:, :k] = conf.matrix[used]
+    rows = np.flatnonzero(used)
+    for j in range(k):  # column by column from the column-major block: ~2x faster than conf.matrix[used]
+        np.take(conf.matrix[:, j], rows, out=matrix[:, j])
     matrix[:, k:] = exposure[used]
     _check_supported_columns(matrix, names, conf, calendar, used, dropped)
     return Design(

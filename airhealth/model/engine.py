@@ -27,6 +27,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import blas, lapack
 
+from .._threads import policy_threads
 from .._warn import warn_user
 from ..errors import ConvergenceWarning, FitError
 from .engine_checks import (
@@ -355,6 +356,7 @@ def summarise(
 
 
 # ------------------------------------------------------------------------------------------ public API
+@policy_threads  # BLAS threads chosen for the design's size (airhealth._threads), restored afterwards
 def fit_glm(
     X,
     y,
