@@ -20,7 +20,6 @@ import airhealth
 from airhealth._threads import worker_initializer
 from airhealth.errors import SpecificationError
 from airhealth.model import compare as compare_module
-from airhealth.model import grid_engine
 from airhealth.model.compare import COMPARE_COLUMNS, compare, compare_results
 from airhealth.model.sweep import sweep
 
@@ -54,8 +53,8 @@ def assert_row_equals(row, reference):
 
 def test_compare_rows_equal_single_fits(short_sample, monkeypatch):
     calls = []
-    original = grid_engine._plain
-    monkeypatch.setattr(grid_engine, "_plain", lambda *a, **k: calls.append(1) or original(*a, **k))
+    original = compare_module.fit_design
+    monkeypatch.setattr(compare_module, "fit_design", lambda *a, **k: calls.append(1) or original(*a, **k))
     table = compare(short_sample, LAGS, **OPTIONS)
     assert list(table.columns) == COMPARE_COLUMNS and list(table["lag"]) == LAGS
     assert calls == []  # every structure took the shared-work path

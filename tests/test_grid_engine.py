@@ -1,10 +1,10 @@
-"""Tests of the shared-work lag-grid path and of the BLAS thread limits.
+"""Tests of the shared-work lag-grid path (exposure block only) and of the BLAS thread limits.
 
-The reference for :func:`fit_with_exposure` is the plain path, ``fit_glm`` on the stacked design restricted
-to the usable rows (itself checked against statsmodels in test_engine.py). Both converge to machine
-precision, so coefficients, standard errors and dispersion must agree to 1e-9 relative (coefficients near
-zero on the standard-error scale); a chord iteration stopped early or a covariance at the wrong point would
-differ by > 1e-7.
+The reference for :func:`~airhealth.model.grid_inference.fit_exposure_only` is the plain path, ``fit_glm``
+on the stacked design restricted to the usable rows (itself checked against statsmodels in test_engine.py).
+Both converge to machine precision, so coefficients, standard errors and dispersion must agree to 1e-9
+relative (coefficients near zero on the standard-error scale); a chord iteration stopped early or a
+covariance at the wrong point would differ by > 1e-7.
 """
 
 from __future__ import annotations
@@ -17,7 +17,7 @@ from airhealth._threads import blas_threads, single_threaded_blas, worker_initia
 from airhealth.errors import FitError
 from airhealth.model import grid_engine, grid_inference
 from airhealth.model.engine import fit_glm
-from airhealth.model.grid_engine import fit_confounders, fit_many, fit_with_exposure
+from airhealth.model.grid_engine import fit_confounders
 
 RTOL = 1e-9
 N = 1500
@@ -67,92 +67,14 @@ def masks(E):
     return {"usable": usable, "block": block, "scattered": scattered}
 
 
-def assert_same_fit(fast, plain):
-    np.testing.assert_array_less(np.abs(fast.coef - plain.coef), RTOL * (np.abs(plain.coef) + plain.std_err))
-    np.testing.assert_allclose(fast.std_err, plain.std_err, rtol=RTOL)
-    sd = np.sqrt(np.diag(plain.cov_unscaled))
-    scaled_difference = (fast.cov_unscaled - plain.cov_unscaled) / np.outer(sd, sd)  # correlation scale
-    assert np.abs(scaled_difference).max() < RTOL
-    assert fast.dispersion == pytest.approx(plain.dispersion, rel=RTOL)
-    assert fast.deviance == pytest.approx(plain.deviance, rel=RTOL)
-    assert fast.null_deviance == pytest.approx(plain.null_deviance, rel=RTOL)
-    assert fast.loglik == pytest.approx(plain.loglik, rel=RTOL)
-    assert fast.df_resid == plain.df_resid and fast.n_obs == plain.n_obs
-    np.testing.assert_allclose(fast.fitted, plain.fitted, rtol=1e-9)
-
-
-@pytest.mark.parametrize("family", ["quasipoisson", "poisson"])
-def test_fit_with_exposure_equals_plain_fit(data, family, monkeypatch):
-    Z, pm, y, offset = data
-    base = fit_confounders(Z, y, family=family, offset=offset)
-
-    def no_fallback(*args, **kwargs):
-        raise AssertionError("the shared-work path fell back to the plain fit")
-
-    monkeypatch.setattr(grid_engine, "_plain", no_fallback)  # these cases must take the fast path
-    checked = 0
-    for E in exposures(pm).values():
-        for rows in masks(E).values():
-            fast = fit_with_exposure(base, E, rows)
-            X = np.hstack([Z, np.nan_to_num(E)])[rows]
-            plain = fit_glm(X, y[rows], family=family, offset=offset[rows])
-            assert_same_fit(fast, plain)
-            assert fast.family == family and fast.converged
-            checked += 1
-    assert checked == 12
-
-
-def test_fit_with_exposure_with_weights(data):
-    Z, pm, y, _ = data
-    w = np.random.default_rng(8).integers(1, 3, N).astype(float)
-    base = fit_confounders(Z, y, weights=w)
-    E = exposures(pm)["free0-3"]
-    rows = masks(E)["block"]
-    plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], weights=w[rows])
-    assert_same_fit(fit_with_exposure(base, E, rows), plain)
-
-
-def test_many_excluded_rows_use_the_direct_gram(data):
+def test_many_excluded_rows_use_the_direct_gram(data, monkeypatch):
     Z, pm, y, _ = data
     base = fit_confounders(Z, y)
     E = exposures(pm)["lag0"]
     rows = np.isfinite(E[:, 0]) & (np.arange(N) % 2 == 0)  # half the days: no downdate
+    monkeypatch.setattr(grid_inference, "plain_fit", None)  # calling it would fail
     plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows])
-    assert_same_fit(fit_with_exposure(base, E, rows), plain)
-
-
-def test_negbin_falls_back_to_the_plain_path(data):
-    Z, pm, y, _ = data
-    base = fit_confounders(Z, y, family="negbin")
-    E = exposures(pm)["lag2"]
-    rows = masks(E)["usable"]
-    fast = fit_with_exposure(base, E, rows)
-    plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], family="negbin")
-    assert fast.theta == pytest.approx(plain.theta, rel=1e-7)
-    np.testing.assert_allclose(fast.coef, plain.coef, rtol=1e-6, atol=1e-7)
-
-
-def test_negbin_with_fixed_theta_uses_the_fast_path(data, monkeypatch):
-    Z, pm, y, _ = data
-    monkeypatch.setattr(grid_inference, "_plain", None)  # calling it would fail
-    base = fit_confounders(Z, y, family="negbin", theta=10.0)
-    E = exposures(pm)["mean0-3"]
-    rows = masks(E)["scattered"]
-    plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], family="negbin", theta=10.0)
-    assert_same_fit(fit_with_exposure(base, E, rows), plain)
-
-
-def test_fit_many_matches_individual_fits_and_names_columns(data):
-    Z, pm, y, _ = data
-    cands = [(E, np.isfinite(E).all(axis=1)) for E in exposures(pm).values()]
-    names = [f"z{j}" for j in range(Z.shape[1])]
-    fits = list(fit_many(Z, y, cands, confounder_names=names))
-    assert len(fits) == len(cands)
-    for fit, (E, rows) in zip(fits, cands, strict=True):
-        plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows])
-        assert_same_fit(fit, plain)
-        assert fit.column_names[: Z.shape[1]] == tuple(names)
-        assert fit.column_names[Z.shape[1] :] == tuple(f"exposure_{j}" for j in range(E.shape[1]))
+    assert_same_exposure_block(grid_inference.fit_exposure_only(base, E, rows), plain, 1)
 
 
 def test_missing_exposure_on_a_usable_row_is_an_error(data):
@@ -162,24 +84,25 @@ def test_missing_exposure_on_a_usable_row_is_an_error(data):
     rows = np.arange(N) > 0  # row 0 (no previous day) is excluded, the later gaps are not
     bad_row = int(np.flatnonzero(np.isnan(E))[1])
     with pytest.raises(FitError, match=rf"rows marked usable\) has a non-finite value .*at row {bad_row},"):
-        fit_with_exposure(base, E, rows)
-
-
-def test_exposure_collinear_with_confounders_is_named(data):
-    Z, _, y, _ = data
-    names = [f"z{j}" for j in range(Z.shape[1])]
-    base = fit_confounders(Z, y, column_names=names)
-    E = (Z[:, 1] + 2 * Z[:, 2])[:, None]
-    with pytest.raises(FitError, match=r"rank-deficient") as info:
-        fit_with_exposure(base, E, column_names=["pm10"])
-    assert all(s in str(info.value) for s in ("'z1'", "'z2'", "'pm10'"))
+        grid_inference.fit_exposure_only(base, E, rows)
 
 
 def test_bad_rows_mask_is_an_error(data):
     Z, pm, y, _ = data
     base = fit_confounders(Z, y)
     with pytest.raises(FitError, match="boolean mask"):
-        fit_with_exposure(base, np.nan_to_num(pm), np.ones(N))
+        grid_inference.fit_exposure_only(base, np.nan_to_num(pm), np.ones(N))
+
+
+def test_a_given_fallback_replaces_the_plain_path(data):
+    Z, pm, y, _ = data
+    base = fit_confounders(Z, y, family="negbin")  # estimated theta: the shared work does not apply
+    E = exposures(pm)["lag2"]
+    rows = masks(E)["usable"]
+    reference = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows], family="negbin")
+    calls = []
+    fit = grid_inference.fit_exposure_only(base, E, rows, fallback=lambda: calls.append(1) or reference)
+    assert calls == [1] and fit.coef[0] == reference.coef[-1] and fit.theta == reference.theta
 
 
 def test_single_threaded_blas_limits_blas_to_one_thread():
@@ -198,23 +121,9 @@ def test_worker_initializer_in_a_process_pool():
     assert counts and set(counts) == {1}
 
 
-def test_stalled_fast_path_falls_back_to_the_exact_plain_fit(data, monkeypatch):
-    Z, pm, y, _ = data
-    base = fit_confounders(Z, y)
-    E = exposures(pm)["free0-3"]
-    rows = masks(E)["block"]
-    calls = []
-    original = grid_engine._plain
-    monkeypatch.setattr(grid_engine, "_plain", lambda *a, **k: calls.append(1) or original(*a, **k))
-    fast = fit_with_exposure(base, E, rows, max_iter=1)  # one chord step cannot converge
-    assert calls == [1]
-    plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows])
-    assert_same_fit(fast, plain)
-
-
 # ------------------------------------------------------------------------- exposure block only
 def assert_same_exposure_block(fast, plain, k):
-    """ExposureFit against the exposure block of a full fit (same tolerances as assert_same_fit)."""
+    """ExposureFit against the exposure block of a full fit (tolerances: module docstring)."""
     theta, se = plain.coef[-k:], plain.std_err[-k:]
     np.testing.assert_array_less(np.abs(fast.coef - theta), RTOL * (np.abs(theta) + se))
     np.testing.assert_allclose(fast.std_err, se, rtol=RTOL)
@@ -233,7 +142,7 @@ def test_exposure_only_equals_plain_fit(data, family, monkeypatch):
     def no_fallback(*args, **kwargs):
         raise AssertionError("the exposure-only path fell back to the plain fit")
 
-    monkeypatch.setattr(grid_inference, "_plain", no_fallback)
+    monkeypatch.setattr(grid_inference, "plain_fit", no_fallback)
     monkeypatch.setattr(grid_inference, "_exact_projection", no_fallback)  # refinement must converge
     checked = 0
     for E in exposures(pm).values():
@@ -266,7 +175,7 @@ def test_exposure_only_stalled_refinement_uses_the_exact_product(data, monkeypat
     rows = masks(E)["usable"]
     monkeypatch.setattr(grid_inference, "REFINE_RTOL", 0.0)  # never reached: the refinement must stall
     monkeypatch.setattr(grid_inference, "_refined", lambda *a: False)
-    monkeypatch.setattr(grid_inference, "_plain", None)  # the fixed-Hessian path itself must take the exact product
+    monkeypatch.setattr(grid_inference, "plain_fit", None)  # the fixed-Hessian path itself must take the exact product
     fast = grid_inference.fit_exposure_only(base, E, rows)
     assert fast.exact_product
     plain = fit_glm(np.hstack([Z, np.nan_to_num(E)])[rows], y[rows])

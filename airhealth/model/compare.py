@@ -1,24 +1,27 @@
-"""Fit many lag structures on the same data through the shared-work path; one tidy row per structure.
+"""Fit many lag structures on the same data; one tidy row (or one full result) per structure.
 
-All structures share the validated frame (validated once, for the deepest lag), the confounder block of
-the design (built once) and the confounder-only fit (fitted once on the days where the outcome and every
-confounder are available). Each structure is then fitted on its own usable days by
-:func:`~airhealth.model.grid_inference.fit_exposure_only` (for the tidy table) or
-:func:`~airhealth.model.grid_engine.fit_with_exposure` (for full results), which reuse that fit and give the
-same estimates as a separate :func:`airhealth.fit` to rounding. The days each structure uses come from the
-design builder's drop rules (:mod:`airhealth.model.design`), so they are those of the single fit.
+Every structure is checked exactly as :func:`airhealth.fit` checks it, by the same functions: the data once by
+:func:`~airhealth.model.design.model_frame` (for the deepest lag), each structure's design by
+:func:`~airhealth.model.design.build_design` (days dropped and why, too few days, unsupported columns and any
+guard added there), each fit by :func:`~airhealth.model.fitting.warn_if_suspicious` (few events, days lost to
+the lag window, dispersion). So a comparison gives the warnings and errors the single fits give.
 
-Negative binomial models (theta is re-estimated for every structure) and exposure-response terms that
-learn from the data (exposure-lag bases) use the plain path: one design and one :func:`fit_design` per structure.
+What the structures share: the validated frame and the confounder block (built once). :func:`compare_results`
+(full results) fits each design by :func:`~airhealth.model.fitting.fit_design`, as a single fit does.
+:func:`compare` (the tidy table) fits the confounder-only model once (on the days where the outcome and every
+confounder are available) and each structure by
+:func:`~airhealth.model.grid_inference.fit_exposure_only`, which reuses it and gives the single fit's
+estimates to rounding; whatever that shared work cannot do (a structure that does not converge, collinear
+columns, aliased columns, negative binomial models that re-estimate theta, exposure-response terms that learn
+from the data) is fitted by :func:`~airhealth.model.fitting.fit_design` on the structure's own design.
 
-The grid runs with one BLAS thread (:func:`~airhealth._threads.single_threaded_blas`): on the 2-core
-machine it was measured on, a second BLAS thread did not speed up these products and made them several
-times slower when the other core was busy (see docs/engine.md).
+BLAS threads follow the fitting path's policy (:func:`airhealth._threads.fitting_threads`).
 """
 
 from __future__ import annotations
 
 import dataclasses
+import warnings
 from collections.abc import Sequence
 from typing import Any
 
@@ -26,12 +29,13 @@ import numpy as np
 import pandas as pd
 
 from .._progress import progress
-from .._threads import single_threaded_blas
-from ..errors import DataError, SpecificationError
-from .design import ConfounderBlock, Design, build_design, cached_confounders, model_frame, usable_days
-from .fitting import fit_design, result_from_fit
-from .grid_engine import ConfounderFit, fit_confounders, fit_with_exposure
-from .grid_inference import ExposureFit, fit_exposure_only
+from .._threads import fitting_threads
+from ..errors import DataError, FitError, SpecificationError
+from .design import ConfounderBlock, Design, build_design, cached_confounders, model_frame
+from .engine import GLMFit
+from .fitting import fit_design, result_from_fit, warn_if_suspicious
+from .grid_engine import ConfounderFit, fit_confounders
+from .grid_inference import ExposureFit, exposure_block, fit_exposure_only
 from .result import SUMMARY_COLUMNS, FitResult
 from .spec import ModelSpec
 
@@ -45,42 +49,38 @@ NOT_COMMON = "not usable by every lag structure"
 
 @dataclasses.dataclass(frozen=True)
 class _Grid:
-    """What every structure of one comparison shares."""
+    """What every structure of one comparison shares, and each structure's checked design."""
 
     specs: list[ModelSpec]
     frame: pd.DataFrame
     confounders: ConfounderBlock
+    designs: list[Design]
     shared: bool  # whether the shared-work path applies
 
+    def threads(self):
+        """The BLAS thread policy for the widest design of the comparison."""
+        return fitting_threads(len(self.frame), max(d.matrix.shape[1] for d in self.designs))
 
-def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any]) -> _Grid:
+
+def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any], common_days: bool) -> _Grid:
+    """Validate once, build (and so check) every structure's design as a single fit would."""
     if isinstance(lags, str) or not lags:
         raise SpecificationError("compare needs a list of lag structures, e.g. lags=['0', '1', '0-1', 'dl0-5'].")
     specs = [ModelSpec.from_options(lag=lag, **model_options) for lag in lags]
     deepest = max(specs, key=lambda s: s.lag.max_lag)
     frame = model_frame(data, deepest)
     confounders = cached_confounders(frame, specs[0])
+    designs = [build_design(frame, spec, confounders) for spec in specs]
+    if common_days:
+        keep = _common([d.used for d in designs], designs)
+        designs = [_restrict(d, keep) for d in designs]
     shared = specs[0].family != "negbin" and not any(hasattr(s.lag, "bind") for s in specs)
-    return _Grid(specs, frame, confounders, shared)
+    return _Grid(specs, frame, confounders, designs, shared)
 
 
-def _column(frame: pd.DataFrame, name: str | None) -> np.ndarray | None:
-    return None if name is None else frame[name].to_numpy(dtype=float, na_value=np.nan)
-
-
-def _structure(grid: _Grid, spec: ModelSpec, raw, y, offset) -> tuple[np.ndarray, np.ndarray]:
-    """Exposure columns (full calendar) and the usable-day mask, by the design builder's drop rules."""
-    frame, conf = grid.frame, grid.confounders
-    exposure = spec.lag.columns(raw)
-    used = usable_days(y, exposure, conf, offset)
-    if used.sum() <= conf.matrix.shape[1] + exposure.shape[1]:
-        build_design(frame, spec, conf)  # raises the design builder's error naming the reasons
-    return exposure, used
-
-
-def _common(masks: list[np.ndarray], grid: _Grid) -> np.ndarray:
+def _common(masks: list[np.ndarray], designs: list[Design]) -> np.ndarray:
     common = np.logical_and.reduce(masks)
-    p = grid.confounders.matrix.shape[1] + max(s.lag.n_columns for s in grid.specs)
+    p = max(d.matrix.shape[1] for d in designs)
     if common.sum() <= p:
         raise DataError(
             f"only {int(common.sum())} days are usable by every lag structure, too few for {p} parameters; "
@@ -89,8 +89,12 @@ def _common(masks: list[np.ndarray], grid: _Grid) -> np.ndarray:
     return common
 
 
-def _confounder_fit(grid: _Grid) -> tuple[ConfounderFit, np.ndarray]:
-    """The confounder-only fit on the days with the outcome, every confounder (and the offset)."""
+def _confounder_fit(grid: _Grid) -> tuple[ConfounderFit, np.ndarray] | None:
+    """The confounder-only fit on the days with the outcome, every confounder (and the offset).
+
+    ``None`` when it cannot be fitted cleanly (collinear or unsupported confounder columns on these days,
+    no convergence): every structure then takes its single fit, with the single fit's errors and warnings.
+    """
     spec, frame, conf = grid.specs[0], grid.frame, grid.confounders
     y = frame[spec.outcome].to_numpy(dtype=float, na_value=np.nan)
     rows = conf.complete & np.isfinite(y)
@@ -99,11 +103,31 @@ def _confounder_fit(grid: _Grid) -> tuple[ConfounderFit, np.ndarray]:
         offset = frame[spec.offset].to_numpy(dtype=float, na_value=np.nan)
         rows &= np.isfinite(offset)
         offset = offset[rows]
-    base = fit_confounders(
-        conf.matrix[rows], y[rows], family=spec.family, offset=offset, tol=spec.tol, max_iter=spec.max_iter,
-        column_names=conf.column_names,
-    )  # fmt: skip
-    return base, rows
+    try:
+        with warnings.catch_warnings(record=True):  # this fit is internal: its warnings are not the user's
+            warnings.simplefilter("always")
+            base = fit_confounders(
+                conf.matrix[rows], y[rows], family=spec.family, offset=offset, tol=spec.tol,
+                max_iter=spec.max_iter, column_names=conf.column_names,
+            )  # fmt: skip
+    except FitError:
+        return None
+    return (base, rows) if base.fit.converged else None
+
+
+def _exposure_fit(grid: _Grid, shared, spec: ModelSpec, design: Design) -> ExposureFit:
+    """The exposure block of one structure: the shared work when it applies, else the single fit's."""
+    k = design.matrix.shape[1] - design.n_confounder_columns
+
+    def single() -> GLMFit:
+        return fit_design(design, spec)
+
+    same_columns = design.column_names[: design.n_confounder_columns] == grid.confounders.column_names
+    if shared is None or not same_columns:  # e.g. columns aliased for this structure's days
+        return exposure_block(single(), k)
+    base, rows = shared
+    names = design.column_names[design.exposure_slice]
+    return fit_exposure_only(base, design.exposure_values[rows], design.used[rows], column_names=names, fallback=single)
 
 
 def _row(spec: ModelSpec, fit: ExposureFit, n_days: int, per: float, level: float) -> dict[str, Any]:
@@ -142,25 +166,17 @@ def compare_results(
     """Fit every lag structure in ``lags`` with the same other options; return full results in order.
 
     Each result equals the corresponding :func:`airhealth.fit` (all coefficients, full covariance, fitted
-    values); see :func:`compare` for the parameters. With ``common_days=True`` every structure is fitted
-    on the days usable by all of them; the extra days left out are listed in ``dropped`` with the reason
-    ``"not usable by every lag structure"``.
+    values), with the same warnings and errors; see :func:`compare` for the parameters. With
+    ``common_days=True`` every structure is fitted on the days usable by all of them; the extra days left
+    out are listed in ``dropped`` with the reason ``"not usable by every lag structure"``.
     """
-    grid = _setup(data, lags, model_options)
-    designs = [build_design(grid.frame, spec, grid.confounders) for spec in grid.specs]
-    if common_days:
-        keep = _common([d.used for d in designs], grid)
-        designs = [_restrict(d, keep) for d in designs]
-    pairs = list(zip(grid.specs, designs, strict=True))
-    shown = progress(pairs, label="lag structures", enabled=show_progress)
-    if not grid.shared:
-        return [result_from_fit(design, spec, fit_design(design, spec)) for spec, design in shown]
-    with single_threaded_blas():
-        base, rows = _confounder_fit(grid)
-        results = []
-        for spec, design in shown:
-            names = design.column_names[design.exposure_slice]
-            glm = fit_with_exposure(base, design.exposure_values[rows], design.used[rows], column_names=names)
+    grid = _setup(data, lags, model_options, common_days)
+    pairs = list(zip(grid.specs, grid.designs, strict=True))
+    results = []
+    with grid.threads():
+        for spec, design in progress(pairs, label="lag structures", enabled=show_progress):
+            glm = fit_design(design, spec)
+            warn_if_suspicious(design, spec, glm.dispersion)
             results.append(result_from_fit(design, spec, glm))
     return results
 
@@ -195,6 +211,12 @@ def compare(
     **model_options
         ``outcome``, ``exposure`` and any other :class:`~airhealth.model.spec.ModelSpec` option.
 
+    Warns and raises
+    ----------------
+    Exactly what :func:`airhealth.fit` gives for each structure on the same data (the same check functions
+    run for every structure), plus a :class:`~airhealth.errors.DataError` when ``common_days=True`` leaves
+    too few days.
+
     Returns
     -------
     DataFrame
@@ -221,26 +243,17 @@ def compare(
     Peng RD, Dominici F, Louis TA (2006). Model choice in time series studies of air pollution and
     mortality. J R Stat Soc A 169:179–203.
     """
-    grid = _setup(data, lags, model_options)
+    grid = _setup(data, lags, model_options, common_days)
     if not grid.shared:
         results = compare_results(data, lags, show_progress=show_progress, common_days=common_days, **model_options)
         table = pd.DataFrame([r.to_dict(per=per, level=level) for r in results])
         return table[COMPARE_COLUMNS].reset_index(drop=True)
-    first = grid.specs[0]  # outcome, exposure and offset are the same for every structure
-    columns = (
-        _column(grid.frame, first.exposure),
-        _column(grid.frame, first.outcome),
-        _column(grid.frame, first.offset),
-    )
-    structures = [_structure(grid, spec, *columns) for spec in grid.specs]
-    if common_days:
-        keep = _common([used for _, used in structures], grid)
-        structures = [(exposure, keep) for exposure, _ in structures]
     rows_out = []
-    with single_threaded_blas():
-        base, rows = _confounder_fit(grid)
-        items = list(zip(grid.specs, structures, strict=True))
-        for spec, (exposure, used) in progress(items, label="lag structures", enabled=show_progress):
-            fit = fit_exposure_only(base, exposure[rows], used[rows])
-            rows_out.append(_row(spec, fit, int(used.sum()), per, level))
+    with grid.threads():
+        shared = _confounder_fit(grid)
+        pairs = list(zip(grid.specs, grid.designs, strict=True))
+        for spec, design in progress(pairs, label="lag structures", enabled=show_progress):
+            fit = _exposure_fit(grid, shared, spec, design)
+            warn_if_suspicious(design, spec, fit.dispersion)
+            rows_out.append(_row(spec, fit, int(design.used.sum()), per, level))
     return pd.DataFrame(rows_out, columns=COMPARE_COLUMNS)

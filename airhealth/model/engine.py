@@ -20,12 +20,11 @@ mortality. *J R Stat Soc A* 169:179-203 (QAIC for quasi-Poisson models).
 
 from __future__ import annotations
 
-import threading
 from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import blas, lapack
+from scipy.linalg import lapack
 
 from .._threads import policy_threads
 from .._warn import warn_user
@@ -39,6 +38,8 @@ from .engine_checks import (
     validate_inputs,
     validate_options,
 )
+from .engine_core import layout, workspace
+from .engine_core import weighted_gram as _weighted_gram
 from .families import NegativeBinomial, Poisson, theta_ml, theta_moments
 
 __all__ = ["FamilyName", "GLMFit", "ThetaMethod", "fit_glm", "information_criterion"]
@@ -130,38 +131,7 @@ class _State:
     n_factorisations: int = 0
 
 
-_WORKSPACE = threading.local()
-
-
-def workspace(key: str, shape: tuple[int, int], order: str = "C") -> np.ndarray:
-    """A reusable per-thread ``float64`` buffer of ``shape`` in ``order`` (contents undefined).
-
-    Fresh multi-megabyte arrays are served by the operating system page by page and the page faults
-    cost more than a ``syrk`` on them, so the ``n x p`` work buffers are kept (one per key and thread;
-    the largest size requested so far).
-    """
-    size = int(shape[0]) * int(shape[1])
-    flat = getattr(_WORKSPACE, key, None)
-    if flat is None or flat.size < size:
-        flat = np.empty(size)
-        setattr(_WORKSPACE, key, flat)
-    return flat[:size].reshape(shape, order=order)
-
-
-def layout(X: np.ndarray) -> str:
-    """``"F"`` for a column-major matrix, else ``"C"`` (work buffers follow the design's layout)."""
-    return "F" if X.flags.f_contiguous and not X.flags.c_contiguous else "C"
-
-
 # --------------------------------------------------------------------------------- linear algebra core
-def _weighted_gram(X: np.ndarray, w: np.ndarray, buf: np.ndarray) -> np.ndarray:
-    """Upper triangle of ``X.T diag(w) X`` (Fortran order) by one ``syrk`` on ``buf``."""
-    np.multiply(X, np.sqrt(w)[:, None], out=buf)
-    if layout(buf) == "F":  # column-major: syrk on the columns directly (about 20% faster here)
-        return blas.dsyrk(1.0, buf, trans=1, lower=0)
-    return blas.dsyrk(1.0, buf.T, trans=0, lower=0)
-
-
 def _cholesky(info: np.ndarray, names, weighted_x) -> np.ndarray:
     """Upper Cholesky factor of ``info``; a rank problem raises :class:`FitError` naming the columns.
 

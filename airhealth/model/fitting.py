@@ -1,7 +1,9 @@
 """Fit one model: data + spec → :class:`FitResult`, through the single internal fitting function.
 
-Every fit in airhealth (single fits, comparisons, sweeps, the command line) goes through
-:func:`fit_design`, so a faster engine can replace the engine behind it in one place.
+Every fit in airhealth (single fits, comparisons, sweeps, the command line) is checked the same way: the data
+by :func:`~airhealth.model.design.model_frame`, the design by :func:`~airhealth.model.design.build_design`
+and the fit by :func:`warn_if_suspicious`; every full fit goes through :func:`fit_design`, so a faster engine
+can replace the engine behind it in one place.
 """
 
 from __future__ import annotations
@@ -18,7 +20,7 @@ from .engine import GLMFit, fit_glm
 from .result import FitResult
 from .spec import ModelSpec
 
-__all__ = ["fit", "fit_design", "fit_spec", "result_from_fit"]
+__all__ = ["fit", "fit_design", "fit_spec", "result_from_fit", "warn_if_suspicious"]
 
 DISPERSION_WARN = 5.0
 FEW_EVENTS_PER_DAY = 1.0
@@ -40,7 +42,12 @@ def fit_design(design: Design, spec: ModelSpec, start: np.ndarray | None = None)
     )
 
 
-def _warn_suspicious(design: Design, spec: ModelSpec, glm: GLMFit) -> None:
+def warn_if_suspicious(design: Design, spec: ModelSpec, dispersion: float) -> None:
+    """Warn about what a fit on ``design`` rests on: few events, many days lost to the lag window, high dispersion.
+
+    The one set of fit-level warnings: :func:`fit`, ``compare``, ``compare_results`` and ``sweep`` call it
+    for every model they fit, with the model's estimated ``dispersion``.
+    """
     mean_count = float(np.mean(design.response))
     if mean_count < FEW_EVENTS_PER_DAY:
         warn_user(
@@ -59,9 +66,9 @@ def _warn_suspicious(design: Design, spec: ModelSpec, glm: GLMFit) -> None:
             f"{int(design.used.sum())} days. Consider a shorter lag window or MovingAverage(min_count=...).",
             DataWarning,
         )
-    if spec.family == "quasipoisson" and glm.dispersion > DISPERSION_WARN:
+    if spec.family == "quasipoisson" and dispersion > DISPERSION_WARN:
         warn_user(
-            f"the estimated dispersion is {glm.dispersion:.1f} (Pearson χ² / residual df); counts vary far "
+            f"the estimated dispersion is {dispersion:.1f} (Pearson χ² / residual df); counts vary far "
             "more than Poisson — check for outliers, missing confounders or a mis-specified outcome.",
             DispersionWarning,
         )
@@ -102,7 +109,7 @@ def fit_spec(data: pd.DataFrame, spec: ModelSpec) -> FitResult:
     frame = model_frame(data, spec)
     design = build_design(frame, spec)
     glm = fit_design(design, spec)
-    _warn_suspicious(design, spec, glm)
+    warn_if_suspicious(design, spec, glm.dispersion)
     return result_from_fit(design, spec, glm)
 
 

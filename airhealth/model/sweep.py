@@ -5,7 +5,9 @@ the confounder block, so the shared-work path of :mod:`airhealth.model.compare` 
 shared here: the validated daily frame (validated once per distinct set of columns and lag depth) and
 warm starts: when a value gives the same design columns as the previous one (e.g. a sweep over ``tol``)
 the fit starts from the previous coefficients. The converged estimates do not depend on the start, so
-every row equals the corresponding single :func:`airhealth.fit`.
+every row equals the corresponding single :func:`airhealth.fit`. Every value is checked as a single fit is
+(``model_frame``, ``build_design``, ``warn_if_suspicious``), so a sweep gives the single fits' warnings and
+errors. BLAS threads follow the fitting path's policy (:func:`airhealth._threads.fitting_threads`).
 
 References
 ----------
@@ -22,11 +24,11 @@ from typing import Any
 import pandas as pd
 
 from .._progress import progress
-from .._threads import single_threaded_blas
+from .._threads import fitting_threads
 from ..errors import SpecificationError
 from .compare import COMPARE_COLUMNS
 from .design import build_design, model_frame
-from .fitting import fit_design, result_from_fit
+from .fitting import fit_design, result_from_fit, warn_if_suspicious
 from .spec import ModelSpec
 
 __all__ = ["sweep"]
@@ -83,15 +85,16 @@ def sweep(
     specs = [ModelSpec.from_options(**{option: value}, **model_options) for value in values]
     frames: dict[tuple, pd.DataFrame] = {}
     rows, previous = [], None
-    with single_threaded_blas():
-        for value, spec in progress(list(zip(values, specs, strict=True)), label=option, enabled=show_progress):
-            key = (spec.columns_used(), spec.lag.max_lag)
-            if key not in frames:
-                frames[key] = model_frame(data, spec)
-            design = build_design(frames[key], spec)
-            start = previous.coef if previous is not None and previous.column_names == design.column_names else None
+    for value, spec in progress(list(zip(values, specs, strict=True)), label=option, enabled=show_progress):
+        key = (spec.columns_used(), spec.lag.max_lag)
+        if key not in frames:
+            frames[key] = model_frame(data, spec)
+        design = build_design(frames[key], spec)
+        start = previous.coef if previous is not None and previous.column_names == design.column_names else None
+        with fitting_threads(*design.matrix.shape):
             glm = fit_design(design, spec, start=start)
-            previous = glm
-            record = result_from_fit(design, spec, glm).to_dict(per=per, level=level)
-            rows.append({option: value, **{c: record[c] for c in COMPARE_COLUMNS}})
+        warn_if_suspicious(design, spec, glm.dispersion)
+        previous = glm
+        record = result_from_fit(design, spec, glm).to_dict(per=per, level=level)
+        rows.append({option: value, **{c: record[c] for c in COMPARE_COLUMNS}})
     return pd.DataFrame(rows, columns=[option, *COMPARE_COLUMNS])
