@@ -6,14 +6,14 @@ weekday; quasi-Poisson; pm25) and the 12 lag structures of ``run_benchmarks.GRID
 the designs and the confounder block prebuilt, it times, all with one BLAS thread:
 
 * plain: one :func:`airhealth.model.engine.fit_glm` per structure (what a single fit does);
-* full-result path (``grid_engine``): the confounder-only fit once, then ``fit_with_exposure`` per structure
-  (all coefficients, full covariance, fitted values: what ``compare_results`` needs);
 * exposure-only path (``grid_inference``): the confounder-only fit once, then ``fit_exposure_only`` per
   structure (the exposure block only: what ``compare`` needs).
 
 Each path's figure is the plain time over its time; the alternatives run back to back, repeated, so
 machine load affects them alike. The largest coefficient difference from the plain fits (in standard errors)
-is printed as a check that the paths give the same answer.
+is printed as a check that the paths give the same answer. A second path that returned full results this
+way (``fit_with_exposure``, for ``compare_results``) measured 1.05-1.15x here and was folded back into the
+plain fit (see benchmarks/README.md).
 """
 
 from __future__ import annotations
@@ -32,7 +32,7 @@ import airhealth
 from airhealth._threads import single_threaded_blas
 from airhealth.model.design import build_design, cached_confounders, model_frame
 from airhealth.model.engine import fit_glm
-from airhealth.model.grid_engine import fit_confounders, fit_with_exposure
+from airhealth.model.grid_engine import fit_confounders
 from airhealth.model.grid_inference import fit_exposure_only
 from airhealth.model.spec import ModelSpec
 
@@ -57,15 +57,11 @@ def paths(designs, conf, y, rows):
     def plain():
         return [fit_glm(d.matrix, d.response) for d in designs]
 
-    def full():
-        base = fit_confounders(Z, y[rows])
-        return [fit_with_exposure(base, d.exposure_values[rows], d.used[rows]) for d in designs]
-
     def exposure_only():
         base = fit_confounders(Z, y[rows])
         return [fit_exposure_only(base, d.exposure_values[rows], d.used[rows]) for d in designs]
 
-    return {"plain": plain, "full-result (grid_engine)": full, "exposure-only (grid_inference)": exposure_only}
+    return {"plain": plain, "exposure-only (grid_inference)": exposure_only}
 
 
 def timed(functions, repeats):

@@ -6,14 +6,17 @@ and cities invented by ``airhealth.simulate.simulate_city``. Every figure is the
 (the machine is shared, so single timings are noisy); airhealth and the reference run one after another
 in the same process on the same design matrix, so their ratio is less affected by load than either time.
 
-By default everything runs with one BLAS thread (as airhealth's grid and sweep functions do; see
-docs/engine.md); ``--default-threads`` keeps the BLAS library's own setting. R's ``glm.fit`` is timed
-inside R (``system.time`` over repeats, same design written to a binary file) when Rscript is on PATH.
+Every figure is measured twice in the same run: as a user calls it (the BLAS library's own thread count;
+airhealth's fitting path then picks its threads itself, see airhealth._threads) and with one BLAS thread for
+the whole process (threadpoolctl), so references such as statsmodels run single-threaded too. R's
+``glm.fit`` is timed inside R (``system.time`` over repeats, same design written to a binary file) when
+Rscript is on PATH.
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
 import gc
 import json
 import os
@@ -31,7 +34,8 @@ import numpy as np
 import statsmodels.api as sm
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))  # this checkout of airhealth
-sys.path.insert(0, str(Path(__file__).resolve().parent))  # bench_engine
+sys.path.insert(0, str(Path(__file__).resolve().parent))  # bench_engine, bench_paths
+import bench_paths
 from bench_engine import median_time, plain_irls
 
 import airhealth
@@ -47,6 +51,9 @@ from airhealth.simulate import simulate_city
 GRID = ["0", "1", "2", "3", "4", "5", "6", "7", "0-1", "0-2", "0-3", "0-5"]
 DF_VALUES = [4, 5, 6, 7, 8, 9, 10, 11, 12]
 OPTIONS = {"outcome": "deaths_all", "exposure": "pm25", "temperature": "temperature"}
+#: Repeats of the slow statsmodels grids and sweeps (set per mode: with the library's default threads on a
+#: busy machine one statsmodels fit can take seconds).
+REFERENCE_REPEATS = {"value": 3}
 
 R_SCRIPT = r"""
 args <- commandArgs(trailingOnly = TRUE)
@@ -90,30 +97,64 @@ def r_glm_fit(X, y, repeats):
     return float(seconds), float(last_coef)
 
 
+def paired_medians(functions: dict, repeats: int) -> dict[str, float]:
+    """Median seconds of each function, run in turn within every repeat (load affects all alike)."""
+    times: dict[str, list[float]] = {name: [] for name in functions}
+    for _ in range(repeats):
+        for name, fn in functions.items():
+            t0 = time.perf_counter()
+            fn()
+            times[name].append(time.perf_counter() - t0)
+    return {name: float(np.median(v)) for name, v in times.items()}
+
+
+def quiet_fit(data, **options):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return airhealth.fit(data, **{**OPTIONS, **options})
+
+
 def bench_single(data, r, results):
     d = design_for(data, lag="0-1")
     X, y = d.matrix, d.response
-    t_ours = median_time(lambda: fit_glm(X, y), r)
-    t_plain = median_time(lambda: plain_irls(X, y), r)
-    t_sm = median_time(lambda: statsmodels_fit(X, y), max(3, r // 2))
+    functions = {
+        "fit": lambda: quiet_fit(data, lag="0-1"),
+        "engine": lambda: fit_glm(X, y),
+        "plain": lambda: plain_irls(X, y),
+        "statsmodels": lambda: statsmodels_fit(X, y),
+    }
+    t = paired_medians(functions, r)
     ours = fit_glm(X, y)
-    print(f"single fit {X.shape}: airhealth {t_ours * 1e3:.1f} ms, plain Cholesky IRLS {t_plain * 1e3:.1f} ms, "
-          f"statsmodels {t_sm * 1e3:.1f} ms")  # fmt: skip
-    results["single: statsmodels / airhealth"] = (">= 15x", t_sm / t_ours)
-    results["single: airhealth / plain IRLS"] = ("<= 1.3", t_ours / t_plain)
+    print(f"single fit {X.shape}: airhealth.fit from the data frame {t['fit'] * 1e3:.1f} ms, engine alone "
+          f"(fit_glm) {t['engine'] * 1e3:.1f} ms, plain Cholesky IRLS {t['plain'] * 1e3:.1f} ms, statsmodels "
+          f"GLM fit alone {t['statsmodels'] * 1e3:.1f} ms")  # fmt: skip
+    results["single: statsmodels fit alone / airhealth.fit from data"] = (">= 10x", t["statsmodels"] / t["fit"])
+    results["single: airhealth.fit from data / engine alone"] = ("<= 1.5", t["fit"] / t["engine"])
+    results["single: statsmodels / engine alone"] = (">= 15x", t["statsmodels"] / t["engine"])
+    results["single: engine alone / plain IRLS"] = ("<= 1.3", t["engine"] / t["plain"])
     rr = r_glm_fit(X, y, max(5, r))
     if rr is not None:
         agree = abs(rr[1] - ours.coef[-1]) / ours.std_err[-1]
         print(f"  R glm.fit {rr[0] * 1e3:.1f} ms (last coefficient differs by {agree:.1e} SE)")
-        results["single: R glm.fit / airhealth"] = ("(reported)", rr[0] / t_ours)
-    return t_ours
+        results["single: R glm.fit / engine alone"] = ("(reported)", rr[0] / t["engine"])
+    return t["engine"]
+
+
+def bench_second_paths(data, r, results):
+    """The exposure-only grid path against one plain fit per structure (benchmarks/bench_paths.py)."""
+    designs, conf, y, rows = bench_paths.prebuilt(data)
+    t = bench_paths.timed(bench_paths.paths(designs, conf, y, rows), max(3, r // 2))
+    for name, value in t.items():
+        if name != "plain":
+            print(f"{name}: {value * 1e3:.1f} ms for {len(designs)} structures, plain fits {t['plain'] * 1e3:.1f} ms")
+            results[f"{len(designs)} structures: plain fits / {name}"] = (">= 1.5", t["plain"] / value)
 
 
 def bench_grid(data, r, results):
     designs = [design_for(data, lag=lag) for lag in GRID]
     t_cold = median_time(lambda: (clear_cache(), compare(data, GRID, **OPTIONS)), r)
     t_ours = median_time(lambda: compare(data, GRID, **OPTIONS), r)
-    t_sm = median_time(lambda: [statsmodels_fit(d.matrix, d.response) for d in designs], 3)
+    t_sm = median_time(lambda: [statsmodels_fit(d.matrix, d.response) for d in designs], REFERENCE_REPEATS["value"])
     table = compare(data, GRID, **OPTIONS)
     worst = max(
         abs(row.coef - statsmodels_fit(d.matrix, d.response).params[-1]) / row.se
@@ -129,7 +170,7 @@ def bench_grid(data, r, results):
 def bench_sweep(data, r, results):
     designs = [design_for(data, lag="0-1", trend_df_per_year=v) for v in DF_VALUES]
     t_ours = median_time(lambda: sweep(data, "trend_df_per_year", DF_VALUES, lag="0-1", **OPTIONS), max(3, r // 2))
-    t_sm = median_time(lambda: [statsmodels_fit(d.matrix, d.response) for d in designs], 3)
+    t_sm = median_time(lambda: [statsmodels_fit(d.matrix, d.response) for d in designs], REFERENCE_REPEATS["value"])
     print(f"9-value df sweep: airhealth.sweep {t_ours * 1e3:.1f} ms, 9 statsmodels fits {t_sm * 1e3:.1f} ms")
     results["df sweep of 9: statsmodels / sweep"] = ("(reported)", t_sm / t_ours)
 
@@ -138,7 +179,7 @@ def bench_distributed(data, r, results):
     d = design_for(data, lag="dl0-5")
     X, y = d.matrix, d.response
     t_ours = median_time(lambda: fit_glm(X, y), r)
-    t_sm = median_time(lambda: statsmodels_fit(X, y), 3)
+    t_sm = median_time(lambda: statsmodels_fit(X, y), REFERENCE_REPEATS["value"])
     t_full = median_time(lambda: airhealth.fit(data, lag="dl0-5", **OPTIONS), max(3, r // 2))
     print(f"distributed lag dl0-5 {X.shape}: airhealth {t_ours * 1e3:.1f} ms (airhealth.fit from the data "
           f"{t_full * 1e3:.1f} ms), statsmodels {t_sm * 1e3:.1f} ms")  # fmt: skip
@@ -216,11 +257,11 @@ def run_cities(counts: list[int]) -> dict:
     return {"checkpoints": checkpoints, "heap_current": current / 2**20, "heap_peak": peak / 2**20}
 
 
-def bench_cities(counts: list[int], default_threads: bool, results) -> None:
+def bench_cities(counts: list[int], single: bool, results) -> None:
     """The many-city run in a fresh process, so its peak memory is its own."""
     command = [sys.executable, __file__, "--cities-only", ",".join(map(str, counts))]
-    if default_threads:
-        command.append("--default-threads")
+    if single:
+        command.append("--one-thread")
     out = subprocess.run(command, capture_output=True, text=True, check=True, timeout=3600)
     report = json.loads(out.stdout.strip().splitlines()[-1])
     for n, total, fit, rss in report["checkpoints"]:
@@ -235,40 +276,44 @@ def bench_cities(counts: list[int], default_threads: bool, results) -> None:
     results[f"peak RSS growth {first[0]} -> {n} cities (MiB)"] = ("~0 (flat)", rss - first[3])
 
 
+MODES = {"default threads": False, "1 BLAS thread": True}
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeats", type=int, default=9)
     parser.add_argument("--cities", default="50,100,200", help="checkpoints for the many-city run")
-    parser.add_argument("--default-threads", action="store_true", help="keep the BLAS library's thread count")
     parser.add_argument("--cities-only", metavar="COUNTS", help=argparse.SUPPRESS)  # the child process
+    parser.add_argument("--one-thread", action="store_true", help=argparse.SUPPRESS)  # the child process
     args = parser.parse_args()
     if args.cities_only:
         counts = sorted(int(c) for c in args.cities_only.split(","))
-        if args.default_threads:
+        with single_threaded_blas() if args.one_thread else contextlib.nullcontext():
             print(json.dumps(run_cities(counts)))
-        else:
-            with single_threaded_blas():
-                print(json.dumps(run_cities(counts)))
         return
     counts = sorted(int(c) for c in args.cities.split(","))
     print(f"airhealth {airhealth.__version__}; {os.cpu_count()} CPUs; load average {os.getloadavg()[0]:.1f}; "
           f"medians of {args.repeats} repeats unless stated")  # fmt: skip
-    results: dict[str, tuple[str, float]] = {}
     data = airhealth.load_sample()
-    if args.default_threads:
-        run(data, args.repeats, results)
-    else:
-        with single_threaded_blas():
+    by_mode: dict[str, dict[str, tuple[str, float]]] = {}
+    for mode, single in MODES.items():
+        print(f"\n== {mode} (load average {os.getloadavg()[0]:.1f})")
+        results: dict[str, tuple[str, float]] = {}
+        REFERENCE_REPEATS["value"] = 3 if single else 1
+        with single_threaded_blas() if single else contextlib.nullcontext():
             run(data, args.repeats, results)
-    bench_cities(counts, args.default_threads, results)
+        bench_cities(counts, single, results)
+        by_mode[mode] = results
     print(f"\nload average at the end {os.getloadavg()[0]:.1f}\n")
-    print(f"{'figure':55s} {'goal':>12s} {'measured':>10s}")
-    for name, (goal, value) in results.items():
-        print(f"{name:55s} {goal:>12s} {value:10.2f}")
+    print(f"{'figure':58s} {'goal':>10s} " + " ".join(f"{m:>16s}" for m in MODES))
+    for name, (goal, _) in by_mode["default threads"].items():
+        values = " ".join(f"{by_mode[m].get(name, (goal, float('nan')))[1]:16.2f}" for m in MODES)
+        print(f"{name:58s} {goal:>10s} {values}")
 
 
 def run(data, r, results) -> None:
     t_fit = bench_single(data, r, results)
+    bench_second_paths(data, r, results)
     bench_grid(data, r, results)
     bench_sweep(data, r, results)
     bench_distributed(data, r, results)

@@ -170,7 +170,11 @@ def compare_results(
     ``common_days=True`` every structure is fitted on the days usable by all of them; the extra days left
     out are listed in ``dropped`` with the reason ``"not usable by every lag structure"``.
     """
-    grid = _setup(data, lags, model_options, common_days)
+    return _full_results(_setup(data, lags, model_options, common_days), show_progress)
+
+
+def _full_results(grid: _Grid, show_progress: bool) -> list[FitResult]:
+    """Each structure's single fit, as :func:`airhealth.fit` does it (same checks, same warnings)."""
     pairs = list(zip(grid.specs, grid.designs, strict=True))
     results = []
     with grid.threads():
@@ -245,8 +249,7 @@ def compare(
     """
     grid = _setup(data, lags, model_options, common_days)
     if not grid.shared:
-        results = compare_results(data, lags, show_progress=show_progress, common_days=common_days, **model_options)
-        table = pd.DataFrame([r.to_dict(per=per, level=level) for r in results])
+        table = pd.DataFrame([r.to_dict(per=per, level=level) for r in _full_results(grid, show_progress)])
         return table[COMPARE_COLUMNS].reset_index(drop=True)
     rows_out = []
     with grid.threads():
