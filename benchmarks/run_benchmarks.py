@@ -97,11 +97,18 @@ def r_glm_fit(X, y, repeats):
     return float(seconds), float(last_coef)
 
 
+#: Pause before each timed call of :func:`paired_medians`: after a multi-threaded BLAS call OpenBLAS's
+#: worker threads spin for a while before they sleep, and would slow whatever is timed next.
+SETTLE_SECONDS = 0.2
+
+
 def paired_medians(functions: dict, repeats: int) -> dict[str, float]:
-    """Median seconds of each function, run in turn within every repeat (load affects all alike)."""
+    """Median seconds of each function, run in turn within every repeat (load affects all alike), each
+    started after a short pause (:data:`SETTLE_SECONDS`) so that none pays for the previous one's threads."""
     times: dict[str, list[float]] = {name: [] for name in functions}
     for _ in range(repeats):
         for name, fn in functions.items():
+            time.sleep(SETTLE_SECONDS)
             t0 = time.perf_counter()
             fn()
             times[name].append(time.perf_counter() - t0)

@@ -195,3 +195,25 @@ def test_the_callers_frame_is_unchanged(three_years):
     before = data.copy()
     outcome_of(lambda: compare(data, ["0", "0-1"], **OPTIONS))
     pd.testing.assert_frame_equal(data, before)
+
+
+def test_a_long_exposure_gap_gives_what_the_single_fits_give(three_years):
+    """Ten months without exposure data leave time-spline columns without support on the days used.
+
+    Whatever the single fit does with them (an error naming the columns, or dropping them as aliased),
+    compare does the same: its rows equal the single fits, or it raises their error.
+    """
+    data = airhealth.load_sample()
+    data = data[data["date"] < "2016-01-01"].reset_index(drop=True)
+    data.loc[(data["date"] >= "2013-02-01") & (data["date"] < "2013-12-01"), "pm25"] = np.nan
+    lags = ["0", "0-1"]
+    expected, error = single_fits(data, lags)
+    assert outcome_of(lambda: compare(data, lags, **OPTIONS)) == (expected, error)
+    if error is None:
+        table = compare(data, lags, **OPTIONS)
+        for row, lag in zip(table.to_dict(orient="records"), lags, strict=True):
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                reference = airhealth.fit(data, lag=lag, **OPTIONS).to_dict()
+            assert row["coef"] == pytest.approx(reference["coef"], rel=1e-8)
+            assert row["se"] == pytest.approx(reference["se"], rel=1e-8)

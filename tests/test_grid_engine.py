@@ -217,3 +217,19 @@ def _pid_and_threads():
 
     time.sleep(0.2)  # keep the worker busy so the other worker takes the next task
     return os.getpid(), blas_threads()
+
+
+def test_a_confounder_column_without_support_on_the_usable_rows_leaves_the_structure_to_the_full_fit(data):
+    """Excluded rows are removed from Z.T W0 Z by a downdate; a column that is zero on every usable row
+    then has a diagonal of rounding noise, which must not pass for information (engine's rank test)."""
+    Z, pm, y, _ = data
+    base = fit_confounders(Z, y)
+    E = exposures(pm)["lag0"]
+    rows = masks(E)["usable"].copy()
+    rows[380:700] = False  # 21% of the days: the downdate path
+    unsupported = np.flatnonzero(~np.any(Z[rows] != 0, axis=0))
+    assert unsupported.size  # a time-spline column lives inside the excluded stretch
+    calls = []
+    reference = fit_glm(np.hstack([np.delete(Z, unsupported, axis=1), np.nan_to_num(E)])[rows], y[rows])
+    fit = grid_inference.fit_exposure_only(base, E, rows, fallback=lambda: calls.append(1) or reference)
+    assert calls == [1] and fit.coef[0] == reference.coef[-1]

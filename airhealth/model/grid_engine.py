@@ -34,7 +34,7 @@ from scipy.linalg import blas, lapack
 from .._threads import policy_threads
 from ..errors import FitError
 from .engine import FamilyName, GLMFit, ThetaMethod, fit_glm, intercept_column
-from .engine_checks import finite_or_raise
+from .engine_checks import RANK_TOL, finite_or_raise
 from .engine_core import weighted_gram, workspace
 from .families import NegativeBinomial, Poisson
 
@@ -180,7 +180,8 @@ def plain_fit(base: ConfounderFit, problem: ExposureProblem, max_iter: int) -> G
 
 
 def _approximate_hessian(base: ConfounderFit, Ef: np.ndarray, rows: np.ndarray) -> np.ndarray | None:
-    """Cholesky factor of ``X_r.T W0 X_r``, or None when it is not positive definite."""
+    """Cholesky factor of ``X_r.T W0 X_r``, or None when it is not positive definite or a column is
+    (numerically) a combination of the others, by the engine's test."""
     Z, w0 = base.Z, base.working_weights
     excluded = np.flatnonzero(~rows & (w0 > 0))
     if excluded.size <= DOWNDATE_MAX_FRACTION * Z.shape[0]:
@@ -196,8 +197,17 @@ def _approximate_hessian(base: ConfounderFit, Ef: np.ndarray, rows: np.ndarray) 
     H[:pc, :pc] = A
     H[:pc, pc:] = Z.T @ WE
     H[pc:, pc:] = Ef.T @ WE
+    diagonal = H.diagonal().copy()
+    diagonal[:pc] = base.info.diagonal()  # all rows: a downdated diagonal may be rounding noise
     c, status = lapack.dpotrf(H, lower=0, clean=1, overwrite_a=1)
-    return c if status == 0 else None
+    if status != 0:
+        return None
+    # the engine's rank test (1 - R^2 <= RANK_TOL), measured against each confounder column's information
+    # over all rows: a column with no support on the usable rows (its downdated pivot is rounding noise)
+    # leaves the structure to the full fit, which names or drops it
+    with np.errstate(divide="ignore", invalid="ignore"):
+        independent = c.diagonal() ** 2 > RANK_TOL * diagonal
+    return c if np.all(independent) else None
 
 
 def prepare_exposure(
