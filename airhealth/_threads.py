@@ -18,7 +18,8 @@ Cost: threadpoolctl enumerates the loaded libraries (about 1-10 ms) when its con
 and leaving then reads and sets each library's thread count directly (a few microseconds). Libraries loaded
 after the first fit (none that airhealth uses: numpy's and scipy's BLAS are loaded by then) are not limited.
 Nested and concurrent fits (threads) share one limit: the first to enter saves the caller's setting, the last
-to leave restores it.
+to leave restores it. BLAS thread counts are process-wide, so other code running in another Python thread
+while a fit runs also gets the fit's count.
 """
 
 from __future__ import annotations
@@ -36,6 +37,7 @@ from threadpoolctl import ThreadpoolController, threadpool_info, threadpool_limi
 __all__ = [
     "ONE_THREAD_MAX_WORK",
     "blas_threads",
+    "design_threads",
     "fitting_blas_threads",
     "fitting_threads",
     "policy_threads",
@@ -113,6 +115,16 @@ def policy_threads(func: F) -> F:
             return func(X, *args, **kwargs)
 
     return fit_with_policy  # type: ignore[return-value]
+
+
+def design_threads(n_rows: int):
+    """The policy's BLAS threads while a design over ``n_rows`` days is built (spline bases, lag columns).
+
+    Those products have a few dozen columns at most, so they follow the policy as a one-column fit would
+    (one thread for any daily series); measured: a natural spline basis for 5,000 days took ~24 ms with
+    the library's two threads on a busy machine and ~2 ms with one.
+    """
+    return fitting_threads(n_rows, 1)
 
 
 def _enter(target: int) -> None:

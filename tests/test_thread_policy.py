@@ -105,3 +105,15 @@ def test_fits_in_several_threads_restore_the_setting_when_the_last_one_ends(two_
         assert errors == []
         assert set(blas_threads()) == {2}
     assert _threads._depth == 0
+
+
+def test_building_the_design_runs_with_one_thread_and_restores(two_years, monkeypatch):
+    from airhealth.model import fitting
+
+    seen = []
+    original = fitting.build_design
+    monkeypatch.setattr(fitting, "build_design", lambda *a, **k: seen.append(blas_threads()) or original(*a, **k))
+    with threadpool_limits(limits=2, user_api="blas"):
+        fit_quietly(two_years, lag="0")
+        assert seen and all(set(counts) == {1} for counts in seen)
+        assert set(blas_threads()) == {2}

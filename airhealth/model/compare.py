@@ -29,7 +29,7 @@ import numpy as np
 import pandas as pd
 
 from .._progress import progress
-from .._threads import fitting_threads
+from .._threads import design_threads, fitting_threads
 from ..errors import DataError, FitError, SpecificationError
 from .design import ConfounderBlock, Design, build_design, cached_confounders, model_frame
 from .engine import GLMFit
@@ -68,9 +68,10 @@ def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any
         raise SpecificationError("compare needs a list of lag structures, e.g. lags=['0', '1', '0-1', 'dl0-5'].")
     specs = [ModelSpec.from_options(lag=lag, **model_options) for lag in lags]
     deepest = max(specs, key=lambda s: s.lag.max_lag)
-    frame = model_frame(data, deepest)
-    confounders = cached_confounders(frame, specs[0])
-    designs = [build_design(frame, spec, confounders) for spec in specs]
+    with design_threads(len(data)):
+        frame = model_frame(data, deepest)
+        confounders = cached_confounders(frame, specs[0])
+        designs = [build_design(frame, spec, confounders) for spec in specs]
     if common_days:
         keep = _common([d.used for d in designs], designs)
         designs = [_restrict(d, keep) for d in designs]
@@ -215,18 +216,23 @@ def compare(
     **model_options
         ``outcome``, ``exposure`` and any other :class:`~airhealth.model.spec.ModelSpec` option.
 
-    Warns and raises
-    ----------------
-    Exactly what :func:`airhealth.fit` gives for each structure on the same data (the same check functions
-    run for every structure), plus a :class:`~airhealth.errors.DataError` when ``common_days=True`` leaves
-    too few days.
-
     Returns
     -------
     DataFrame
         Columns ``outcome, exposure, lag, per, coef, se, rr, rr_low, rr_high, percent_change, p_value,
         dispersion, qaic, n_days``. Each row equals the corresponding single fit (to rounding); with
         ``common_days=True`` it equals the single fit restricted to the common days.
+
+    Raises
+    ------
+    DataError, SpecificationError, FitError
+        What :func:`airhealth.fit` raises for the first structure that cannot be fitted (the same check
+        functions run for every structure); a DataError when ``common_days=True`` leaves too few days.
+
+    Warns
+    -----
+    DataWarning, DispersionWarning, ConvergenceWarning
+        What :func:`airhealth.fit` gives for each structure on the same data.
 
     Notes
     -----

@@ -13,6 +13,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .._threads import design_threads
 from .._warn import warn_user
 from ..errors import DataWarning, DispersionWarning
 from .design import EXPOSURE_MISSING, EXPOSURE_REASONS, Design, build_design, model_frame
@@ -106,11 +107,13 @@ def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
 
 def fit_spec(data: pd.DataFrame, spec: ModelSpec) -> FitResult:
     """Validate ``data``, build the design for ``spec``, fit it and return the result."""
-    frame = model_frame(data, spec)
-    design = build_design(frame, spec)
+    with design_threads(len(data)):  # BLAS threads by the policy also around the fit (small products)
+        frame = model_frame(data, spec)
+        design = build_design(frame, spec)
     glm = fit_design(design, spec)
-    warn_if_suspicious(design, spec, glm.dispersion)
-    return result_from_fit(design, spec, glm)
+    with design_threads(len(data)):
+        warn_if_suspicious(design, spec, glm.dispersion)
+        return result_from_fit(design, spec, glm)
 
 
 def fit(

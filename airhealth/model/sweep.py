@@ -24,7 +24,7 @@ from typing import Any
 import pandas as pd
 
 from .._progress import progress
-from .._threads import fitting_threads
+from .._threads import design_threads, fitting_threads
 from ..errors import SpecificationError
 from .compare import COMPARE_COLUMNS
 from .design import build_design, model_frame
@@ -87,14 +87,16 @@ def sweep(
     rows, previous = [], None
     for value, spec in progress(list(zip(values, specs, strict=True)), label=option, enabled=show_progress):
         key = (spec.columns_used(), spec.lag.max_lag)
-        if key not in frames:
-            frames[key] = model_frame(data, spec)
-        design = build_design(frames[key], spec)
+        with design_threads(len(data)):
+            if key not in frames:
+                frames[key] = model_frame(data, spec)
+            design = build_design(frames[key], spec)
         start = previous.coef if previous is not None and previous.column_names == design.column_names else None
         with fitting_threads(*design.matrix.shape):
             glm = fit_design(design, spec, start=start)
-        warn_if_suspicious(design, spec, glm.dispersion)
         previous = glm
-        record = result_from_fit(design, spec, glm).to_dict(per=per, level=level)
+        with design_threads(len(data)):
+            warn_if_suspicious(design, spec, glm.dispersion)
+            record = result_from_fit(design, spec, glm).to_dict(per=per, level=level)
         rows.append({option: value, **{c: record[c] for c in COMPARE_COLUMNS}})
     return pd.DataFrame(rows, columns=[option, *COMPARE_COLUMNS])
