@@ -3,7 +3,7 @@
 The fits here are dominated by ``n x p^2`` products (``X.T W X`` by ``syrk``) and ``n x p`` matrix-vector
 passes of moderate size. Measured on the 2-core development machine (``benchmarks/bench_threads.py``,
 figures in ``benchmarks/README.md``), a second OpenBLAS thread made such fits slower, not faster, up to
-designs far larger than daily time series produce, and several times slower when the other core was busy:
+designs far larger than daily time series produce, often several times slower with the other core busy:
 OpenBLAS threads spin while waiting for each other. So the fitting path picks its threading itself:
 
 * :func:`fitting_threads` - the context manager every fit runs inside (``engine.fit_glm``, the grid paths,
@@ -46,9 +46,10 @@ __all__ = [
 ]
 
 #: Largest design, as ``n_rows * n_columns**2`` (the multiply-adds of one ``X.T W X``), fitted with one BLAS
-#: thread; larger designs keep the BLAS library's own thread count. Measured: one thread was faster for every
-#: size in benchmarks/README.md, up to the largest, 50,000 x 500 = 1.25e10 (a 14-year daily series is
-#: ~5,000 x 120 = 7e7); larger designs were not measured, so they keep the library's setting.
+#: thread; larger designs keep the BLAS library's own thread count. Measured (benchmarks/README.md): one
+#: thread was as fast or faster in 34 of 36 measurements up to the largest size, 50,000 x 500 = 1.25e10 (a
+#: 14-year daily series is ~5,000 x 120 = 7e7); larger designs were not measured, so they keep the
+#: library's setting.
 ONE_THREAD_MAX_WORK = 1.25e10
 #: Switch for benchmarks that time the engine at thread counts they set themselves.
 POLICY_ENABLED = True
