@@ -28,7 +28,7 @@ import functools
 import os
 import threading
 from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from contextlib import AbstractContextManager, contextmanager
 from typing import Any, TypeVar
 
 import numpy as np
@@ -118,7 +118,7 @@ def policy_threads(func: F) -> F:
     return fit_with_policy  # type: ignore[return-value]
 
 
-def design_threads(n_rows: int):
+def design_threads(n_rows: int) -> AbstractContextManager[None]:
     """The policy's BLAS threads while a design over ``n_rows`` days is built (spline bases, lag columns).
 
     Those products have a few dozen columns at most, so they follow the policy as a one-column fit would
