@@ -18,7 +18,7 @@ import airhealth
 from airhealth.errors import DataError, DataWarning, SpecificationError
 from airhealth.model.compare import compare
 from airhealth.model.terms import Spline
-from airhealth.prep.plausibility import POLLUTANT_RANGES, recognise_pollutant
+from airhealth.prep.plausibility import POLLUTANT_RANGES, humidity_like, recognise_pollutant, temperature_like
 from airhealth.prep.units import MOLECULAR_WEIGHTS, molar_volume
 
 BASE = {"outcome": "deaths_all", "exposure": "pm25", "lag": "0-1", "temperature": "temperature"}
@@ -50,6 +50,26 @@ def run_remedy(message: str, data: pd.DataFrame, column: str) -> pd.DataFrame:
 )  # fmt: skip
 def test_pollutants_are_recognised_from_column_names(column, pollutant):
     assert recognise_pollutant(column) == pollutant
+
+
+@pytest.mark.parametrize(
+    ("column", "temperature", "humidity"),
+    [
+        ("temperature", True, False), ("Temp", True, False), ("tmax_c", True, False), ("dewpoint", True, False),
+        ("temporal_trend", False, False), ("humidity", False, True), ("RH", False, True), ("rel_hum", False, True),
+        ("abs_humidity", False, False), ("human_cases", False, False),
+    ],
+)  # fmt: skip
+def test_weather_columns_are_recognised_from_their_names(column, temperature, humidity):
+    assert (temperature_like(column), humidity_like(column)) == (temperature, humidity)
+
+
+def test_a_trend_confounder_is_not_read_as_a_temperature(three_years):
+    # values of 200-1000 would look like kelvins if the name were read as a temperature
+    values = np.random.default_rng(3).uniform(200, 1000, len(three_years))
+    fit(three_years.assign(temporal_trend=values), confounders=["temporal_trend"])
+    with pytest.raises(DataError, match=r"'temp_trend' looks like a temperature in kelvins"):
+        fit(three_years.assign(temp_trend=values), confounders=["temp_trend"])
 
 
 def test_sample_pollutants_fit_without_any_warning(sample):

@@ -206,7 +206,9 @@ def check_exposure_values(values: np.ndarray, column: str, unit: str, dates: pd.
         warn_user(f"column {column!r} ({limits.label}) is on an unlikely scale for {unit}.{advice}", DataWarning)
 
 
-_TEMPERATURE = re.compile(r"^(?:temp|temperature|tmean|tavg|tmax|tmin|t2m|airtemp|dewpoint|dewp|tdew)\w*$")
+_TEMPERATURE = re.compile(
+    r"^(?:temp|temperature|tmean|tavg|tmax|tmin|t2m|airtemp|dewpoint|dewp|tdew)(?:mean|max|min|avg|c|lag\d*|\d+)?$"
+)
 _HUMIDITY_TOKENS = frozenset({"rh", "relhum", "hum", "hurs"})
 
 #: A daily temperature (mean, minimum or maximum) in °C lies between the lowest air temperature on record,
@@ -216,13 +218,25 @@ TEMPERATURE_RANGE_C = (-90.0, 57.0)
 
 
 def temperature_like(column: str) -> bool:
-    """Whether a column name reads as a temperature (``temperature``, ``temp_mean``, ``tmax``, ``dewpoint``)."""
+    """Whether a column name reads as a temperature (``temperature``, ``temp_mean``, ``tmax``, ``dewpoint``).
+
+    Examples
+    --------
+    >>> [temperature_like(c) for c in ["temperature", "Temp", "tmax_c", "tmean2", "temporal_trend", "pm25"]]
+    [True, True, True, True, False, False]
+    """
     tokens = re.split(r"[^a-z0-9]+", str(column).lower())
     return any(_TEMPERATURE.match(t) for t in tokens if t) or "temperature" in str(column).lower()
 
 
 def humidity_like(column: str) -> bool:
-    """Whether a column name reads as relative humidity (``humidity``, ``rh``, ``rel_hum``), not absolute."""
+    """Whether a column name reads as relative humidity (``humidity``, ``rh``, ``rel_hum``), not absolute.
+
+    Examples
+    --------
+    >>> [humidity_like(c) for c in ["humidity", "RH", "rel_hum", "abs_humidity", "human_cases"]]
+    [True, True, True, False, False]
+    """
     name = str(column).lower()
     if any(word in name for word in ("abs", "spec", "mixing", "dew")):
         return False
