@@ -131,6 +131,12 @@ def test_particles_in_a_mixing_ratio_unit_warn(three_years):
         fit(three_years, unit="ppb")
 
 
+def test_an_unknown_unit_of_a_pollutant_warns_that_values_are_not_checked(three_years):
+    with pytest.warns(DataWarning, match=r"'pm25' looks like PM2.5, but its unit 'grams per bucket' is not one"):
+        result = fit(three_years.assign(pm25=three_years["pm25"] * 1000), unit="grams per bucket")
+    assert "per 10 grams per bucket" in str(result.effect())
+
+
 def test_a_corrupted_high_value_is_named_with_its_date(three_years):
     data = three_years.copy()
     data.loc[50, "pm25"] = 3450.0

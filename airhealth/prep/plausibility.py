@@ -159,8 +159,8 @@ def _out_of_range(v: np.ndarray, mask: np.ndarray, dates: pd.DatetimeIndex) -> s
 def check_exposure_values(values: np.ndarray, column: str, unit: str, dates: pd.DatetimeIndex) -> None:
     """Check a pollutant series against the plausible ranges for its pollutant and unit.
 
-    Does nothing when the column name is not a recognised pollutant or the unit is not a concentration
-    unit known here (µg/m³, mg/m³, ng/m³, ppb, ppm, ppt).
+    Does nothing when the column name is not a recognised pollutant; warns when it is but the unit is not
+    a concentration unit known here (µg/m³, mg/m³, ng/m³, ppb, ppm, ppt).
 
     Raises
     ------
@@ -174,10 +174,18 @@ def check_exposure_values(values: np.ndarray, column: str, unit: str, dates: pd.
         When the median of the series suggests a unit 1000× smaller or larger than the one stated.
     """
     pollutant = recognise_pollutant(column)
-    scale = _unit_scale(unit)
-    if pollutant is None or scale is None:
+    if pollutant is None:
         return
     limits = POLLUTANT_RANGES[pollutant]
+    scale = _unit_scale(unit)
+    if scale is None:
+        warn_user(
+            f"column {column!r} looks like {limits.label}, but its unit {unit!r} is not one airhealth knows "
+            "(µg/m³, mg/m³, ng/m³, ppb, ppm, ppt), so its values cannot be checked against plausible levels; "
+            f"spell the unit as one of these, e.g. units={{{column!r}: 'µg/m³'}} (command line: --unit {column}=ugm3).",
+            DataWarning,
+        )
+        return
     factor = _to_ugm3(pollutant, *scale)
     if factor is None:
         warn_user(
