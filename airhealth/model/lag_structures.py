@@ -184,7 +184,8 @@ def parse_lag(spec: str | int | LagStructure) -> LagStructure:
     at least 1 day of its window; ``"dl0-5"``, ``"dl0-7:poly3"``, ``"dl0-21:spline4"``,
     ``"dl0-21:spline4:log"``, ``"dl0-21:spline:knots=2,5,10"``: distributed lags; ``"<response> x <lag>"``
     (e.g. ``"spline(df=3) x dl0-21:spline4"``, ``"above(25) x 0-3"``): an exposure-lag basis. Lag-structure
-    objects pass through. For every structure ``s``, ``parse_lag(s.label) == s``.
+    objects pass through. For every structure ``s``, ``parse_lag(s.label) == s`` (so ``"2-2"`` is the one-day
+    moving average, with the same numbers as the single day ``"2"`` but its own label).
 
     Examples
     --------
