@@ -13,8 +13,9 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 
 from ..errors import DataError
+from .suppression import counts_for_figure
 
-__all__ = ["plot_coverage", "plot_exposure_series", "plot_monitor_series", "plot_seasonal_pattern"]
+__all__ = ["plot_count_series", "plot_coverage", "plot_exposure_series", "plot_monitor_series", "plot_seasonal_pattern"]
 
 _MONTHS = ["J", "F", "M", "A", "M", "J", "J", "A", "S", "O", "N", "D"]
 
@@ -60,6 +61,30 @@ def plot_exposure_series(
         ax.plot(smooth.index, smooth.to_numpy(), lw=1.6, color="C0", label=f"{smooth_days}-day mean")
         ax.legend(loc="upper right", frameon=False, fontsize="small")
     ax.set_ylabel(label or column)
+    ax.set_xlabel("date")
+    return ax
+
+
+def plot_count_series(
+    daily: pd.DataFrame,
+    column: str,
+    *,
+    suppress_below: int | None,
+    date: str = "date",
+    ax: Axes | None = None,
+) -> Axes:
+    """Daily health counts over time under the small-count rule of :mod:`airhealth.report.suppression`.
+
+    Daily values when none is from 1 to ``suppress_below − 1``; else weekly or monthly totals; else nothing
+    but a title saying the counts are withheld. No running mean is drawn (it would be another aggregate).
+    """
+    shown = counts_for_figure(_series(daily, column, date), suppress_below)
+    ax = _axes(ax)
+    if shown.resolution != "omitted":
+        ax.plot(shown.observed.index, shown.observed.to_numpy(), lw=0.6, color="0.35", label=shown.resolution)
+    per = {"daily": "daily", "weekly": "weekly total", "monthly": "monthly total"}.get(shown.resolution, "")
+    ax.set_title(f"{column}: {per}" if per else f"{column}: counts withheld (below {suppress_below})")
+    ax.set_ylabel(column)
     ax.set_xlabel("date")
     return ax
 

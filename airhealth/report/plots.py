@@ -8,28 +8,54 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["new_axes", "plot_effects", "plot_lag_effects", "plot_observed_fitted"]
+from .document import Figure
+from .suppression import counts_for_figure
+
+__all__ = ["new_axes", "observed_fitted_figure", "plot_effects", "plot_lag_effects", "plot_observed_fitted"]
+
+_PER = {"daily": "daily", "weekly": "weekly", "monthly": "monthly", "omitted": "monthly"}  # what the line shows
 
 
 def new_axes(ax: Any = None, size: tuple[float, float] = (8, 3.5)) -> Any:
     """Return ``ax`` or the Axes of a new figure not registered with pyplot."""
     if ax is not None:
         return ax
-    from matplotlib.figure import Figure
+    from matplotlib.figure import Figure as MplFigure
 
-    return Figure(figsize=size, layout="constrained").add_subplot()
+    return MplFigure(figsize=size, layout="constrained").add_subplot()
 
 
-def plot_observed_fitted(result: Any, ax: Any = None) -> Any:
-    """Observed daily counts (points) and fitted means (line) over time."""
+def plot_observed_fitted(result: Any, ax: Any = None, suppress_below: int | None = None) -> Any:
+    """Observed daily counts (points) and fitted means (line) over time.
+
+    With ``suppress_below`` the small-count rule of :mod:`airhealth.report.suppression` decides what is
+    drawn: daily values, weekly or monthly totals of both series, or the fitted totals alone.
+    """
     ax = new_axes(ax, (9, 3.5))
-    ax.plot(result.observed.index, result.observed.to_numpy(), ".", ms=2, color="0.55", label="observed")
-    ax.plot(result.fitted.index, result.fitted.to_numpy(), "-", lw=0.8, color="C0", label="fitted")
+    shown = counts_for_figure(result.observed, suppress_below, alongside=result.fitted)
+    outcome = result.spec.outcome
+    if shown.resolution != "omitted":
+        marker = {"ms": 2} if shown.resolution == "daily" else {"ms": 3}
+        ax.plot(shown.observed.index, shown.observed.to_numpy(), ".", color="0.55", label="observed", **marker)
+    if shown.alongside is not None:
+        ax.plot(shown.alongside.index, shown.alongside.to_numpy(), "-", lw=0.8, color="C0", label="fitted")
+    per = _PER[shown.resolution]
     ax.set_xlabel("date")
-    ax.set_ylabel(f"daily {result.spec.outcome}")
-    ax.set_title(f"{result.spec.outcome}: observed and fitted")
+    ax.set_ylabel(f"{per} {outcome}")
+    what = "observed and fitted" if shown.resolution != "omitted" else "fitted (observed counts withheld)"
+    ax.set_title(f"{outcome}: {what}" + ("" if per == "daily" else f", {per} totals"))
     ax.legend(loc="upper right", frameon=False)
     return ax
+
+
+def observed_fitted_figure(result: Any, suppress_below: int | None = None, name: str = "observed_fitted") -> Figure:
+    """The report block of :func:`plot_observed_fitted`, its note saying which counts are shown and why."""
+    shown = counts_for_figure(result.observed, suppress_below)
+    spec = result.spec
+    what = "Fitted" if shown.resolution == "omitted" else "Observed and fitted"
+    title = f"{what} {_PER[shown.resolution]} {spec.outcome} ({spec.exposure}, lag {spec.lag.label})"
+    ax = plot_observed_fitted(result, suppress_below=suppress_below)
+    return Figure(title, ax.figure, name, note=shown.note or None)
 
 
 def plot_effects(table: Any, labels: Sequence[str] | None = None, ax: Any = None, per_label: str = "10 units") -> Any:
