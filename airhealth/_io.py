@@ -5,7 +5,7 @@ from __future__ import annotations
 import os
 import shutil
 import tempfile
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
 
@@ -75,7 +75,9 @@ def _usual_permissions(path: Path, mode: int) -> None:
 
 @contextmanager
 def atomic_directory(
-    path: str | os.PathLike[str], *, may_replace: Callable[[Path], bool] = lambda p: not any(p.iterdir())
+    path: str | os.PathLike[str],
+    *,
+    foreign_entries: Callable[[Path], Sequence[str]] = lambda p: sorted(e.name for e in p.iterdir()),
 ) -> Iterator[Path]:
     """Yield a new temporary folder beside ``path``; on success it becomes ``path`` as a whole.
 
@@ -90,24 +92,37 @@ def atomic_directory(
     ----------
     path : path
         The folder to create or replace. Its parent is created if missing.
-    may_replace : callable, optional
-        Called with an existing ``path``; only if it returns True is that folder replaced. The default
-        replaces only an empty folder, so a folder holding other files is never deleted.
+    foreign_entries : callable, optional
+        Called with an existing ``path``: the entries in it that must not be deleted; the folder is
+        replaced only if there are none. The default counts every entry, so only an empty folder is
+        replaced and a folder holding anything else is never deleted.
 
     Raises
     ------
     DataError
-        ``path`` is a file, or an existing folder that ``may_replace`` refuses (checked before anything is
-        written).
+        ``path`` is a file, an existing folder holding ``foreign_entries``, or the current working
+        directory or one of its parents (checked before anything is written).
+
+    Notes
+    -----
+    A process killed outright (power loss, ``kill -9``) can leave its hidden ``.<name>.tmp-XXXX`` folder
+    behind; it is never mistaken for the report and may be deleted.
     """
     target = Path(path).resolve()
     if target.exists() and not target.is_dir():
         raise DataError(f"cannot write the folder {str(path)!r}: a file of that name exists; choose another path.")
-    if target.is_dir() and not may_replace(target):
-        shown = ", ".join(sorted(p.name for p in target.iterdir())[:5])
+    here = Path.cwd().resolve()
+    if target.is_dir() and (here == target or target in here.parents):
+        raise DataError(
+            f"cannot replace the folder {str(path)!r}: it holds the current working directory; give a new "
+            "folder name (for example a sub-folder)."
+        )
+    foreign = foreign_entries(target) if target.is_dir() else ()
+    if foreign:
+        shown = ", ".join(foreign[:5]) + (", ..." if len(foreign) > 5 else "")
         raise DataError(
             f"the output folder {str(path)!r} already exists and holds files that airhealth did not write "
-            f"({shown}, ...); choose a new folder, or empty or delete this one first."
+            f"({shown}); choose a new folder, or empty or delete this one first."
         )
     target.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.tmp-", dir=target.parent))

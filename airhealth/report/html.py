@@ -19,7 +19,7 @@ import pandas as pd
 from .. import _io
 from .document import CAUTION, Figure, Section, Table, Text
 from .safe_names import file_in
-from .suppression import suppress_table, suppression_note
+from .suppression import check_threshold, suppress_table, suppression_note
 
 __all__ = ["write_html_report"]
 
@@ -88,15 +88,26 @@ def _figure_html(block: Figure, path: Path) -> str:
     )
 
 
-def _is_airhealth_report(folder: Path) -> bool:
-    """True for an empty folder or one holding only a report this module wrote (safe to replace)."""
-    entries = {p.name for p in folder.iterdir()}
-    if not entries:
-        return True
-    if not entries <= {"index.html", "tables", "figures"} or "index.html" not in entries:
-        return False
-    page = (folder / "index.html").read_text(encoding="utf-8", errors="replace")
-    return _GENERATOR in page or "Written by airhealth on" in page  # the second: reports before the marker
+_LEFT_BY_FILE_BROWSERS = frozenset({".DS_Store", "Thumbs.db", "desktop.ini"})
+_REPORT_PARTS = {"tables": ".csv", "figures": ".png"}
+
+
+def _not_from_a_report(folder: Path) -> list[str]:
+    """What in ``folder`` an earlier report of this module did not write (nothing: safe to replace)."""
+    foreign = []
+    for entry in sorted(folder.iterdir()):
+        if entry.name in _LEFT_BY_FILE_BROWSERS:
+            continue
+        if entry.name in _REPORT_PARTS and entry.is_dir():
+            suffix = _REPORT_PARTS[entry.name]
+            foreign += [f"{entry.name}/{p.name}" for p in sorted(entry.iterdir()) if not p.name.endswith(suffix)]
+        elif entry.name == "index.html" and entry.is_file():
+            page = entry.read_text(encoding="utf-8", errors="replace")
+            if _GENERATOR not in page and "Written by airhealth on" not in page:  # 2nd: reports before the marker
+                foreign.append("index.html (not an airhealth report)")
+        else:
+            foreign.append(entry.name)
+    return foreign
 
 
 def _page(sections: Sequence[Section], out: Path, title: str, threshold: int | None, subtitle: str) -> str:
@@ -166,7 +177,8 @@ def write_html_report(
     Path
         The path of ``index.html``.
     """
-    with _io.atomic_directory(out_dir, may_replace=_is_airhealth_report) as tmp:
+    check_threshold(small_count_threshold)
+    with _io.atomic_directory(out_dir, foreign_entries=_not_from_a_report) as tmp:
         page = _page(sections, tmp, title, small_count_threshold, subtitle)
         _io.write_text(tmp / "index.html", page)
     return Path(out_dir) / "index.html"

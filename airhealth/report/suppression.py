@@ -23,9 +23,12 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
+from ..errors import SpecificationError
+
 __all__ = [
     "SUPPRESSED",
     "CountSeries",
+    "check_threshold",
     "counts_for_figure",
     "has_small",
     "is_small",
@@ -39,8 +42,21 @@ SUPPRESSED = "suppressed"
 _PERIODS = {"weekly": "W-SUN", "monthly": "M"}
 
 
+def check_threshold(threshold: object) -> int | None:
+    """Return the threshold if it is None or a whole number of at least 1, else SpecificationError."""
+    if threshold is None:
+        return None
+    if isinstance(threshold, bool) or not isinstance(threshold, (int, np.integer)) or threshold < 1:
+        raise SpecificationError(
+            f"the small-count threshold must be a whole number of at least 1 (counts below it are hidden), "
+            f"not {threshold!r}; for example 5 or 10, as local disclosure rules require."
+        )
+    return int(threshold)
+
+
 def is_small(values: object, threshold: int | None) -> np.ndarray:
     """Boolean array: which ``values`` are counts from 1 to ``threshold − 1`` (never, if no threshold)."""
+    threshold = check_threshold(threshold)
     v = pd.to_numeric(pd.Series(np.asarray(values, dtype=object).ravel()), errors="coerce").to_numpy(dtype=float)
     if threshold is None:
         return np.zeros(v.shape, dtype=bool)
