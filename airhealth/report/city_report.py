@@ -20,7 +20,7 @@ from .data_quality_section import data_quality_section
 from .document import Figure, Section, Table, Text
 from .html import write_html_report
 from .lag_section import lag_structure_section
-from .plots import observed_fitted_figure, plot_effects
+from .plots import observed_fitted_figure, plain, plot_effects
 from .suppression import smallest_positive
 from .tables import effects_table, format_effects
 
@@ -81,7 +81,7 @@ def _forest_figures(table: pd.DataFrame, per: float, unit: str) -> list[Figure]:
     for outcome, rows in table.groupby("outcome", sort=False):
         labels = [f"{r.exposure} · lag {r.lag}" for r in rows.itertuples()]
         ax = plot_effects(rows, labels=labels, per_label=f"{per:g} {unit}")
-        ax.set_title(str(outcome))
+        ax.set_title(plain(outcome))
         title = f"{outcome}: relative risks per {per:g} {unit} with 95% intervals"
         figures.append(Figure(title, ax.figure, f"effects_forest_{outcome}"))
     return figures

@@ -11,7 +11,7 @@ import numpy as np
 from .document import Figure
 from .suppression import counts_for_figure
 
-__all__ = ["new_axes", "observed_fitted_figure", "plot_effects", "plot_lag_effects", "plot_observed_fitted"]
+__all__ = ["new_axes", "observed_fitted_figure", "plain", "plot_effects", "plot_lag_effects", "plot_observed_fitted"]
 
 _PER = {"daily": "daily", "weekly": "weekly", "monthly": "monthly", "omitted": "monthly"}  # what the line shows
 
@@ -25,6 +25,15 @@ def new_axes(ax: Any = None, size: tuple[float, float] = (8, 3.5)) -> Any:
     return MplFigure(figsize=size, layout="constrained").add_subplot()
 
 
+def plain(text: object) -> str:
+    """``text`` for a figure, drawn exactly as written: matplotlib would read text between two ``$`` as
+    mathematics (and fail to draw the whole figure on a column called ``a$\\x$``), so ``$`` is escaped.
+
+    Every user text (column names, units, labels) that goes into a figure passes through here.
+    """
+    return str(text).replace("$", r"\$")
+
+
 def plot_observed_fitted(result: Any, ax: Any = None, suppress_below: int | None = None) -> Any:
     """Observed daily counts (points) and fitted means (line) over time.
 
@@ -33,7 +42,7 @@ def plot_observed_fitted(result: Any, ax: Any = None, suppress_below: int | None
     """
     ax = new_axes(ax, (9, 3.5))
     shown = counts_for_figure(result.observed, suppress_below, alongside=result.fitted)
-    outcome = result.spec.outcome
+    outcome = plain(result.spec.outcome)
     if shown.resolution != "omitted":
         marker = {"ms": 2} if shown.resolution == "daily" else {"ms": 3}
         ax.plot(shown.observed.index, shown.observed.to_numpy(), ".", color="0.55", label="observed", **marker)
@@ -68,8 +77,8 @@ def plot_effects(table: Any, labels: Sequence[str] | None = None, ax: Any = None
     ax.axvline(1.0, color="0.4", lw=0.8, ls="--")
     if labels is None:
         labels = [f"{r.outcome} · {r.exposure} · lag {r.lag}" for r in table.itertuples()]
-    ax.set_yticks(y, labels)
-    ax.set_xlabel(f"relative risk per {per_label} (95% CI)")
+    ax.set_yticks(y, [plain(label) for label in labels])
+    ax.set_xlabel(plain(f"relative risk per {per_label} (95% CI)"))
     return ax
 
 
@@ -87,5 +96,5 @@ def plot_lag_effects(result: Any, per: float = 10.0, ax: Any = None) -> Any:
     ax.axhline(1.0, color="0.4", lw=0.8, ls="--")
     ax.set_xlabel("lag (days)")
     ax.set_ylabel(f"RR per {per:g} units")
-    ax.set_title(f"{result.spec.outcome} ~ {result.spec.exposure}: lag structure {result.spec.lag.label}")
+    ax.set_title(plain(f"{result.spec.outcome} ~ {result.spec.exposure}: lag structure {result.spec.lag.label}"))
     return ax
