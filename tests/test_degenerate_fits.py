@@ -1,0 +1,89 @@
+"""Responses the engine cannot fit get a FitError naming the outcome, never a traceback or an absurd statistic.
+
+The engine must be safe on its own, whatever the preparation layer lets through:
+* every count zero: the likelihood has no finite maximum (for y = 0 the Poisson log-likelihood is
+  -sum(mu), which keeps increasing as the intercept goes to minus infinity and mu to 0; the same holds for
+  the negative binomial, whose log-likelihood at y = 0 is -theta log(1 + mu/theta));
+* constant counts with quasi-Poisson: the model reproduces every count, the Pearson dispersion is 0 and
+  QAIC = -2 loglik / 0 (it was reported as 6e33): an error. With Poisson the same counts are a legal fit
+  (dispersion fixed at 1), checked against statsmodels; with a negative binomial they fall back to Poisson
+  (no over-dispersion).
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+import statsmodels.api as sm
+
+import airhealth
+from airhealth.errors import AirhealthError, FitError
+from airhealth.model.engine import fit_glm
+
+
+@pytest.fixture(scope="module")
+def design():
+    rng = np.random.default_rng(21)
+    n = 400
+    t = np.arange(n) / n
+    X = np.column_stack([np.ones(n), t, np.sin(6 * t), rng.normal(20, 5, n)])
+    y = rng.poisson(np.exp(2.5 + 0.3 * t)).astype(float)
+    return X, y
+
+
+@pytest.mark.parametrize("family", ["poisson", "quasipoisson", "negbin"])
+def test_all_zero_counts_are_refused_naming_the_outcome(design, family):
+    X, _ = design
+    with pytest.raises(FitError, match=r"the outcome 'deaths_all' is zero on all 400 days used \(no events\)"):
+        fit_glm(X, np.zeros(len(X)), family=family, response_name="deaths_all")
+
+
+def test_counts_only_on_zero_weight_rows_are_still_no_events(design):
+    X, y = design
+    w = (np.arange(len(y)) >= 10).astype(float)
+    counts = np.where(w > 0, 0.0, y)
+    with pytest.raises(FitError, match=r"y is zero on all 390 days used"):
+        fit_glm(X, counts, weights=w)
+
+
+def test_constant_counts_with_quasipoisson_are_refused(design):
+    X, _ = design
+    with pytest.raises(FitError, match=r"reproduces the outcome 'deaths_all' exactly.*dispersion cannot be estimated"):
+        fit_glm(X, np.full(len(X), 7.0), family="quasipoisson", response_name="deaths_all")
+
+
+def test_constant_counts_with_poisson_are_a_legal_fit(design):
+    X, _ = design
+    y = np.full(len(X), 7.0)
+    fit = fit_glm(X, y, family="poisson")
+    ref = sm.GLM(y, X, family=sm.families.Poisson()).fit(tol=1e-13)
+    np.testing.assert_allclose(fit.coef, ref.params, rtol=1e-8, atol=1e-10)
+    assert fit.qaic == pytest.approx(ref.aic, rel=1e-9)
+    assert np.isfinite(fit.qaic) and fit.qaic < 1e5
+
+
+def test_constant_counts_with_negbin_fall_back_to_poisson(design):
+    X, _ = design
+    fit = fit_glm(X, np.full(len(X), 7.0), family="negbin")
+    assert fit.family == "poisson" and "no over-dispersion" in fit.notes[0]
+
+
+@pytest.mark.parametrize("family", ["poisson", "quasipoisson", "negbin"])
+def test_all_zero_outcome_through_fit_is_an_error_not_a_result(family):
+    data = airhealth.load_sample()
+    data = data[data["date"] < "2012-01-01"].assign(deaths_all=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        with pytest.raises(AirhealthError, match=r"'deaths_all'.*(zero|no events)"):
+            airhealth.fit(data, "deaths_all", "pm25", temperature="temperature", family=family)
+
+
+def test_constant_outcome_through_fit_gives_no_absurd_qaic():
+    data = airhealth.load_sample()
+    data = data[data["date"] < "2012-01-01"].assign(deaths_all=12)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        with pytest.raises(AirhealthError, match=r"'deaths_all'"):
+            airhealth.fit(data, "deaths_all", "pm25", temperature="temperature")
