@@ -87,3 +87,33 @@ def test_constant_outcome_through_fit_gives_no_absurd_qaic():
         warnings.simplefilter("ignore")
         with pytest.raises(AirhealthError, match=r"'deaths_all'"):
             airhealth.fit(data, "deaths_all", "pm25", temperature="temperature")
+
+
+@pytest.fixture
+def short_sample_csv(tmp_path):
+    data = airhealth.load_sample()
+    data = data[data["date"] < "2012-01-01"]
+    paths = {}
+    for name, counts in (("zero", 0), ("constant", 9)):
+        paths[name] = tmp_path / f"{name}.csv"
+        data.assign(deaths_all=counts).to_csv(paths[name], index=False)
+    return paths
+
+
+def test_cli_poisson_on_an_all_zero_outcome_is_a_one_line_error(short_sample_csv, capsys):
+    from airhealth.cli.main import main
+
+    args = ["fit", str(short_sample_csv["zero"]), "--outcome", "deaths_all", "--exposure", "pm25", "--family"]
+    assert main([*args, "poisson"]) == 2
+    err = capsys.readouterr().err
+    assert "Traceback" not in err
+    assert "'deaths_all'" in err and ("zero" in err or "no events" in err)
+
+
+def test_cli_negbin_on_constant_counts_prints_the_poisson_note(short_sample_csv, capsys):
+    from airhealth.cli.main import main
+
+    args = ["fit", str(short_sample_csv["constant"]), "--outcome", "deaths_all", "--exposure", "pm25"]
+    assert main([*args, "--family", "negbin"]) == 0
+    out = capsys.readouterr().out
+    assert "note: negative binomial fitted as Poisson: the counts show no over-dispersion" in out

@@ -170,6 +170,23 @@ def test_an_exposure_without_support_stays_an_error_naming_it(city):
             airhealth.fit(data, "deaths_all", "pm25", temperature="temperature", trend_df_per_year=2)
 
 
+@pytest.mark.parametrize("common_days", [False, True])
+def test_compare_across_the_gap_equals_the_single_fits(city, common_days):
+    options = {"outcome": "deaths_all", "exposure": "pm25", "temperature": "temperature"}
+    with pytest.warns(DataWarning, match="aliased"):
+        table = airhealth.compare(city, ["0", "0-1"], common_days=common_days, **options)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataWarning)
+        results = airhealth.model.compare.compare_results(city, ["0", "0-1"], common_days=common_days, **options)
+        singles = [airhealth.fit(city, lag=lag, **options) for lag in ("0", "0-1")]
+    for row, full, single in zip(table.itertuples(), results, singles, strict=True):
+        assert full.aliased == ("spline(time)15", "spline(time)16", "spline(time)17", "spline(time)18")
+        assert row.coef == pytest.approx(full.exposure_coef, rel=1e-12)
+        if not common_days:  # the same days as the single fit: the same estimate (as compare promises)
+            assert row.coef == pytest.approx(single.exposure_coef, rel=1e-8)
+            assert row.se == pytest.approx(single.exposure_se, rel=1e-8)
+
+
 def test_the_caller_data_is_not_changed(city):
     before = city.copy(deep=True)
     _fit(city, FROZEN["fits"][0])
