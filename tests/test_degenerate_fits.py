@@ -117,3 +117,22 @@ def test_cli_negbin_on_constant_counts_prints_the_poisson_note(short_sample_csv,
     assert main([*args, "--family", "negbin"]) == 0
     out = capsys.readouterr().out
     assert "note: negative binomial fitted as Poisson: the counts show no over-dispersion" in out
+
+
+def test_a_single_event_is_too_few_not_a_collinear_design(design):
+    # The design is full rank; with one event the fitted means fall to zero on the other days and the
+    # weighted information matrix loses rank. The message must say that, not blame collinear columns.
+    X, _ = design
+    y = np.zeros(len(X))
+    y[5] = 3.0
+    assert np.linalg.matrix_rank(X) == X.shape[1]
+    with pytest.raises(FitError, match=r"the outcome 'deaths_all' has 3 event\(s\) on 1 of the 400 days used") as err:
+        fit_glm(X, y, response_name="deaths_all")
+    assert "too few events for this model" in str(err.value)
+    assert "collinear columns)" not in str(err.value)
+
+
+def test_a_collinear_design_is_still_named_as_collinear(design):
+    X, y = design
+    with pytest.raises(FitError, match=r"rank-deficient \(collinear columns\)"):
+        fit_glm(np.column_stack([X, 2 * X[:, 1]]), y)

@@ -24,14 +24,17 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
+from scipy.linalg import qr
 
 from ..errors import FitError
+from .engine_checks import RANK_TOL
 from .families import overdispersion_score
 
 __all__ = [
     "PERFECT_FIT_DISPERSION",
     "check_dispersion",
     "check_response",
+    "collapsed_weights_error",
     "not_converged_message",
     "poisson_boundary_note",
     "theta_not_settled_message",
@@ -72,6 +75,33 @@ def check_dispersion(family: str, pearson_chi2: float, df_resid: float, name: st
         f"on {df_resid:g} residual df, dispersion {dispersion:.3g}): the quasi-Poisson dispersion cannot be "
         "estimated, so standard errors and QAIC would be meaningless. This happens when the counts are "
         "constant or an exact function of the model's columns; check the outcome column."
+    )
+
+
+def collapsed_weights_error(
+    err: FitError, X: np.ndarray, y: np.ndarray, w: np.ndarray, name: str | None = None
+) -> FitError | None:
+    """A clearer error when the IRLS weights, not the design, made the information matrix singular.
+
+    With very few events the fitted means fall to (numerically) zero on most days; the working weights
+    ``w mu`` vanish there and the weighted design loses rank although the design itself is fine. Returns
+    None (keep ``err``) unless ``err`` is a rank-deficiency error and ``sqrt(w) X`` has full rank.
+    """
+    if not str(err).startswith("The design matrix is rank-deficient"):
+        return None
+    M = X * np.sqrt(w)[:, None]
+    norms = np.sqrt(np.einsum("ij,ij->j", M, M))
+    if np.any(norms == 0):
+        return None
+    d = np.abs(np.diag(qr(M / norms, mode="r", pivoting=True, check_finite=False)[0]))
+    if d.min() <= np.sqrt(RANK_TOL) * d[0]:
+        return None
+    used = w > 0
+    return FitError(
+        f"{_label(name)} has {float(w @ y):g} event(s) on {int(np.count_nonzero(y[used]))} of the "
+        f"{int(used.sum())} days used: the fitted means fall to zero on the other days, so the counts carry no "
+        f"information on some of the {X.shape[1]} coefficients (the design itself is not collinear). There are "
+        "too few events for this model: use fewer terms or a longer period."
     )
 
 

@@ -29,7 +29,7 @@ from scipy.linalg import blas, lapack
 
 from .._warn import warn_user
 from ..errors import ConvergenceWarning, FitError
-from .degenerate import check_dispersion, check_response, not_converged_message
+from .degenerate import check_dispersion, check_response, collapsed_weights_error, not_converged_message
 from .engine_checks import (
     RANK_TOL,
     FamilyName,
@@ -441,27 +441,34 @@ def fit_glm(
     if start is not None:
         start = as_vector("start", start, X.shape[1], 0.0)
     buf = workspace("design", X.shape, layout(X))
-    theta_estimated, notes = family == "negbin" and theta is None, ()
-    if family != "negbin":
-        fam = Poisson()
-        state = _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf)
-        _warn_if_not_converged(state, tol)
-    elif theta is not None:
-        fam = NegativeBinomial(float(theta))
-        state = _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf)
-        _warn_if_not_converged(state, tol)
-    else:
-        fam, state, notes = fit_theta(
-            lambda fam, coef: _irls(X, y, w, offset, fam, coef, tol, max_iter, names, buf),
-            y, w, float(w.sum()) - X.shape[1], start, theta_method, tol,
-            warn=lambda state, what: _warn_if_not_converged(state, tol, what),
-        )  # fmt: skip
-        if notes:  # the likelihood is largest at the Poisson limit: report the Poisson fit
-            family, theta_estimated = "poisson", False
+    try:
+        fam, state, notes = _fit_family(X, y, w, offset, family, theta, start, theta_method, tol, max_iter, names, buf)
+    except FitError as err:
+        better = collapsed_weights_error(err, X, y, w, response_name)
+        if better is None:
+            raise
+        raise better from err
+    theta_estimated = family == "negbin" and theta is None and not notes
+    if notes:  # the likelihood is largest at the Poisson limit: the Poisson fit is reported
+        family = "poisson"
     return summarise(
         coef=state.coef, eta=state.eta, mu=state.mu, info_chol=state.chol, y=y, w=w, offset=offset,
         fam=fam, family=family,
         n_iter=state.n_iter, converged=state.converged, n_halvings=state.n_halvings, names=names,
         has_intercept=intercept_column(X), theta_estimated=theta_estimated, notes=notes,
         response_name=response_name,
+    )  # fmt: skip
+
+
+def _fit_family(X, y, w, offset, family, theta, start, theta_method, tol, max_iter, names, buf):
+    """Run the IRLS for the family (alternating with theta when it is estimated): ``(family, state, notes)``."""
+    if family != "negbin" or theta is not None:
+        fam = Poisson() if family != "negbin" else NegativeBinomial(float(theta))
+        state = _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf)
+        _warn_if_not_converged(state, tol)
+        return fam, state, ()
+    return fit_theta(
+        lambda fam, coef: _irls(X, y, w, offset, fam, coef, tol, max_iter, names, buf),
+        y, w, float(w.sum()) - X.shape[1], start, theta_method, tol,
+        warn=lambda state, what: _warn_if_not_converged(state, tol, what),
     )  # fmt: skip
