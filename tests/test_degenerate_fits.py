@@ -136,3 +136,14 @@ def test_a_collinear_design_is_still_named_as_collinear(design):
     X, y = design
     with pytest.raises(FitError, match=r"rank-deficient \(collinear columns\)"):
         fit_glm(np.column_stack([X, 2 * X[:, 1]]), y)
+
+
+def test_an_overflowing_relative_risk_is_an_error_naming_the_scale():
+    # An exposure in grams instead of micrograms (x 1e-6) gives a log-RR per unit of ~1e3: exp(10 * 1e3)
+    # overflows a double (largest ~1.8e308 = exp(709.8), IEEE 754); this was a bare OverflowError.
+    from airhealth.errors import SpecificationError
+    from airhealth.model.effects import relative_risk
+
+    with pytest.raises(SpecificationError, match=r"relative risk of 'pm25' for 10 units overflows.*rescale it"):
+        relative_risk(1200.0, 300.0, per=10, exposure="pm25")
+    assert relative_risk(60.0, 1.0, per=10).rr == pytest.approx(np.exp(600.0), rel=1e-12)
