@@ -217,3 +217,17 @@ def test_aliasing_uses_r_default_relative_tolerance():
     kept = 2 * a + 1e-9 * np.linalg.norm(2 * a) * noise / np.linalg.norm(noise)
     assert aliased_columns(np.column_stack([one, a, near])).tolist() == [2]
     assert aliased_columns(np.column_stack([one, a, kept])).tolist() == []
+
+
+def test_the_report_states_the_aliased_columns(city, tmp_path):
+    from airhealth.report.city_report import write_city_report
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        path, _ = write_city_report(
+            city, tmp_path / "report", ["deaths_all"], ["pm25"], ["0-1"], lag_section=False, show_progress=False,
+            temperature="temperature",
+        )  # fmt: skip
+    page = path.read_text(encoding="utf-8")
+    assert "Note (deaths_all ~ pm25): 4 confounder column(s) cannot be estimated" in page
+    assert "spline(time)15" in page and "from 2014-01-01 to 2015-01-01" in page
