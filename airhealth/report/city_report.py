@@ -87,6 +87,13 @@ def _forest_figures(table: pd.DataFrame, per: float, unit: str) -> list[Figure]:
     return figures
 
 
+def fit_notes(results: Sequence[Any]) -> list[Text]:
+    """One paragraph per distinct note on how the fits were obtained (aliased columns, Poisson fallback)."""
+    notes = dict.fromkeys(note for r in results for note in r.notes)
+    labelled = {n: sorted({f"{r.spec.outcome} ~ {r.spec.exposure}" for r in results if n in r.notes}) for n in notes}
+    return [Text(f"Note ({', '.join(labelled[n])}): {n}") for n in notes]
+
+
 def city_sections(
     data: pd.DataFrame,
     outcomes: Sequence[str],
@@ -148,6 +155,7 @@ def city_sections(
                     main.drop_summary().rename_axis("reason").reset_index(),
                     "dropped_days",
                 ),
+                *fit_notes(results),
             ],
         ),
     ]
