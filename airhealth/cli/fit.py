@@ -95,4 +95,8 @@ def run(args: argparse.Namespace) -> int:
             f"dispersion {result.dispersion:.3f}, QAIC {result.qaic:.1f}, {result.n_days} days used, "
             f"{len(result.dropped)} dropped"
         )
+        warned = {str(w.message) for w in caught}
+        for note in result.notes:  # how the fit was obtained (e.g. a negative binomial fitted as Poisson)
+            if note not in warned:
+                print(f"note: {note}")
     return 0
