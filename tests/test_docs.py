@@ -61,6 +61,5 @@ def test_docs_name_the_r_packages_ci_installs() -> None:
     ci = _apt_packages((ROOT / ".ci" / "run").read_text(encoding="utf-8"))
     assert len(ci) == 1 and {"r-base-core", "r-cran-sandwich"} <= ci[0]
     for doc in ("README.md", "DEVELOPERS.md"):
-        assert _apt_packages((ROOT / doc).read_text(encoding="utf-8")) == ci, (
-            f"{doc} and .ci/run install different R packages"
-        )
+        named = _apt_packages((ROOT / doc).read_text(encoding="utf-8"))
+        assert named == ci, f"{doc} and .ci/run install different R packages"
