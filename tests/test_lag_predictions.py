@@ -105,9 +105,9 @@ def test_non_linear_per_lag_effects_add_up_to_the_cumulative_one(temperature_exp
 def test_non_linear_cumulative_se_by_hand(temperature_exposure_fit):
     # b = (f(x) - f(r)) ⊗ Cᵀ1, var = b V bᵀ (Gasparrini, Armstrong & Kenward 2010).
     res = temperature_exposure_fit
-    cb = res.spec.lag
-    f = cb.response.spline.evaluate(np.array([25.0, 19.0]))
-    b = np.kron(f[0] - f[1], cb.lag.basis().sum(axis=0))
+    basis = res.spec.lag
+    f = basis.response.spline.evaluate(np.array([25.0, 19.0]))
+    b = np.kron(f[0] - f[1], basis.lag.basis().sum(axis=0))
     cols = list(res.exposure_columns)
     theta, v = res.coef[cols].to_numpy(), res.cov.loc[cols, cols].to_numpy()
     row = exposure_response(res, values=[25.0], reference=19.0).iloc[0]
@@ -317,12 +317,12 @@ def test_lag_structure_section(sample):
         per_lag.loc[per_lag["lag_structure"] == "dl0-5", "rr"], dl5.lag_effects(10)["rr"], rtol=1e-9
     )
     assert list(figures) == [
-        "lag_response_dl0_5",
-        "lag_response_dl0_21_spline4",
+        "lag_response_dl0-5",
+        "lag_response_dl0-21:spline4",  # block names; the writer makes them safe file names
         "temperature_exposure_response",
         "temperature_exposure_lag_surface",
     ]
-    curve = figures["lag_response_dl0_5"].figure.axes[0].get_lines()[0]
+    curve = figures["lag_response_dl0-5"].figure.axes[0].get_lines()[0]
     np.testing.assert_allclose(curve.get_ydata(), dl5.lag_effects(10)["rr"], rtol=1e-9)
     # the temperature paragraph reports the minimum and the pollutant effect of this very model
     term = ExposureLagTerm("temperature", SplineResponse(df=4), SplineLag(0, 21, 4))

@@ -27,7 +27,7 @@ def register(sub: Any) -> None:
         type=int,
         default=None,
         metavar="N",
-        help="suppress health counts below N in the report tables (local disclosure rules)",
+        help="suppress health counts below N in the report's tables and figures (local disclosure rules)",
     )
     p.set_defaults(func=run)
 

@@ -20,7 +20,8 @@ from .data_quality_section import data_quality_section
 from .document import Figure, Section, Table, Text
 from .html import write_html_report
 from .lag_section import lag_structure_section
-from .plots import plot_effects, plot_observed_fitted
+from .plots import observed_fitted_figure, plain, plot_effects
+from .suppression import smallest_positive
 from .tables import effects_table, format_effects
 
 __all__ = ["city_sections", "count_summary", "describe_model", "write_city_report"]
@@ -80,7 +81,7 @@ def _forest_figures(table: pd.DataFrame, per: float, unit: str) -> list[Figure]:
     for outcome, rows in table.groupby("outcome", sort=False):
         labels = [f"{r.exposure} · lag {r.lag}" for r in rows.itertuples()]
         ax = plot_effects(rows, labels=labels, per_label=f"{per:g} {unit}")
-        ax.set_title(str(outcome))
+        ax.set_title(plain(outcome))
         title = f"{outcome}: relative risks per {per:g} {unit} with 95% intervals"
         figures.append(Figure(title, ax.figure, f"effects_forest_{outcome}"))
     return figures
@@ -95,6 +96,7 @@ def city_sections(
     unit: str = "µg/m³",
     show_progress: bool = True,
     lag_section: bool = True,
+    small_count_threshold: int | None = None,
     **model_options: Any,
 ) -> tuple[list[Section], pd.DataFrame]:
     """Fit every outcome × exposure × lag and build the report sections; returns (sections, effects table).
@@ -117,7 +119,9 @@ def city_sections(
                     "Daily counts per outcome",
                     count_summary(data, outcomes).round(2),
                     "daily_counts",
-                    count_columns=("total", "min", "p25", "median", "p75", "max"),
+                    count_columns=("min", "p25", "median", "p75", "max"),
+                    aggregate_columns=("total", "mean", "sd"),
+                    smallest_counts=smallest_positive(data, outcomes),
                 ),
             ],
         ),
@@ -138,11 +142,7 @@ def city_sections(
         Section(
             "Model checks",
             [
-                Figure(
-                    f"Observed and fitted daily {main.spec.outcome} ({main.spec.exposure}, lag {main.spec.lag.label})",
-                    plot_observed_fitted(main).figure,
-                    "observed_fitted",
-                ),
+                observed_fitted_figure(main, small_count_threshold),
                 Table(
                     "Days left out of the main model",
                     main.drop_summary().rename_axis("reason").reset_index(),
@@ -175,9 +175,18 @@ def write_city_report(
     """Fit, build and write the one-city report; returns the path of ``index.html`` and the effects table.
 
     ``options`` are those of :func:`city_sections` (``per``, ``unit``, ``lag_section``) and any model option.
-    Counts below ``small_count_threshold`` are suppressed in the count tables (local disclosure rules).
+    Counts below ``small_count_threshold`` are suppressed in the count tables and figures (local disclosure
+    rules: :mod:`airhealth.report.suppression`).
     """
-    sections, table = city_sections(data, outcomes, exposures, lags, show_progress=show_progress, **options)
+    sections, table = city_sections(
+        data,
+        outcomes,
+        exposures,
+        lags,
+        show_progress=show_progress,
+        small_count_threshold=small_count_threshold,
+        **options,
+    )
     path = write_html_report(
         [*sections, *extra_sections], out_dir, title=title, small_count_threshold=small_count_threshold
     )
