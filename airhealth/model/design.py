@@ -17,9 +17,11 @@ import pandas as pd
 
 from ..errors import DataError, SpecificationError
 from ..prep.align import prepare_daily
+from ..prep.degenerate import check_empty, check_usable_days
+from ..prep.guards import ColumnRoles, check_values, clean_values
 from ..prep.validate import check_counts, check_finite, check_not_all_missing, require_columns
 from .spec import ModelSpec
-from .terms import TermBlock
+from .terms import Categorical, TermBlock
 
 __all__ = [
     "ConfounderBlock",
@@ -28,6 +30,7 @@ __all__ = [
     "build_design",
     "cached_confounders",
     "clear_cache",
+    "column_roles",
     "model_frame",
     "usable_days",
 ]
@@ -82,20 +85,46 @@ class Design:
         return self.exposure_slice.start
 
 
+def column_roles(spec: ModelSpec) -> ColumnRoles:
+    """The roles of the columns ``spec`` reads, for the value guards of :mod:`airhealth.prep.guards`."""
+    text_columns = {c for t in spec.confounder_terms() if isinstance(t, Categorical) for c in t.inputs}
+    return ColumnRoles(
+        date=spec.date,
+        outcome=spec.outcome,
+        exposure=spec.exposure,
+        unit=spec.unit,
+        numeric=tuple(c for c in spec.columns_used() if c not in text_columns),
+        temperature=spec.temperature,
+        humidity=spec.humidity,
+        no_codes=(spec.offset,) if spec.offset else (),
+    )
+
+
 def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
     """Validate ``data`` for ``spec`` and return a copy on a complete daily calendar.
 
-    Checks the columns exist, dates parse and are daily, the outcome holds whole non-negative counts, and
-    neither outcome nor exposure is entirely missing. The caller's frame is not modified.
+    The single validation entry of every front end (``fit``, ``compare``, sweeps, reports, the command
+    line). In order: the columns exist and the table has rows; dates parse and are daily; ``spec.na_values``
+    become missing in every column the model reads and text columns become numbers
+    (:func:`airhealth.prep.guards.clean_values`, which also refuses common missing-value codes such as -999
+    left in a series); the outcome holds whole non-negative counts; neither outcome nor exposure is entirely
+    missing; no value is infinite; the exposure is plausible for its pollutant and unit, temperatures are
+    in °C and humidity in %; the outcome has events and varies, and the exposure varies and is not
+    measured in one season only (:func:`airhealth.prep.guards.check_values`). The caller's frame is not
+    modified.
     """
     require_columns(data, [spec.date, *spec.columns_used()], "data")
+    check_empty(data)
     frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date)
+    roles = column_roles(spec)
+    frame = clean_values(frame, roles, spec.na_values)
     check_not_all_missing(frame[spec.outcome], spec.outcome, "outcome")
     check_counts(frame[spec.outcome], spec.outcome, pd.DatetimeIndex(frame[spec.date]))
     check_not_all_missing(frame[spec.exposure], spec.exposure, "exposure")
     if not pd.api.types.is_numeric_dtype(frame[spec.exposure]):
         raise DataError(f"exposure column {spec.exposure!r} is not numeric (dtype {frame[spec.exposure].dtype}).")
     check_finite(frame, spec.columns_used(), pd.DatetimeIndex(frame[spec.date]))
+    check_values(frame, roles)
     max_lag = spec.lag.max_lag
     if max_lag >= len(frame) - 1:
         raise SpecificationError(
@@ -241,6 +270,22 @@ def _check_supported_columns(
     )
 
 
+def _too_few_days_message(n_used: int, p: int, dropped: pd.DataFrame) -> str:
+    counts = dropped["reason"].value_counts()
+    detail = "; ".join(f"{k}: {v}" for k, v in counts.head(3).items())
+    return (
+        f"too few usable days ({n_used}) for a model with {p} parameters"
+        + (f" (days dropped — {detail})" if detail else "")
+        + "; use a longer series, fewer df per year or fewer terms."
+        + (
+            " Lags over several days need consecutive exposure days: with intermittent monitoring (e.g. "
+            "every third day) use single-day lags or MovingAverage(first, last, min_count=1)."
+            if (dropped["reason"] == EXPOSURE_IN_WINDOW).any()
+            else ""
+        )
+    )
+
+
 def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBlock | None = None) -> Design:
     """Assemble the design for ``spec`` on a frame from :func:`model_frame`.
 
@@ -261,20 +306,16 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     names = conf.column_names + tuple(lag.column_names(spec.exposure))
     p = len(names)
     n_used = int(used.sum())
-    if n_used <= p:
-        counts = dropped["reason"].value_counts()
-        detail = "; ".join(f"{k}: {v}" for k, v in counts.head(3).items())
-        raise DataError(
-            f"too few usable days ({n_used}) for a model with {p} parameters"
-            + (f" (days dropped — {detail})" if detail else "")
-            + "; use a longer series, fewer df per year or fewer terms."
-            + (
-                " Lags over several days need consecutive exposure days: with intermittent monitoring (e.g. "
-                "every third day) use single-day lags or MovingAverage(first, last, min_count=1)."
-                if (dropped["reason"] == EXPOSURE_IN_WINDOW).any()
-                else ""
-            )
-        )
+    check_usable_days(
+        y,
+        raw,
+        used,
+        p,
+        calendar,
+        spec.outcome,
+        spec.exposure,
+        too_few=lambda: _too_few_days_message(n_used, p, dropped),
+    )
     matrix = np.empty((n_used, p), order="F")  # column-major: the engine's syrk is fastest on it
     k = conf.matrix.shape[1]
     matrix[:, :k] = conf.matrix[used]
