@@ -34,7 +34,6 @@ __all__ = [
     "cached_confounders",
     "clear_cache",
     "column_roles",
-    "leaves_columns_empty",
     "model_frame",
     "usable_days",
 ]
@@ -253,17 +252,6 @@ def usable_days(
 def _longest_unused_run(used: np.ndarray) -> int:
     edges = np.diff(np.r_[0, (~used).astype(np.int8), 0])
     return int(np.max(np.flatnonzero(edges == -1) - np.flatnonzero(edges == 1), initial=0))
-
-
-def leaves_columns_empty(conf: ConfounderBlock, used: np.ndarray) -> bool:
-    """Whether the days ``used`` leave some confounder column zero on all of them (columns to alias).
-
-    Checked only after a run of at least ``MIN_GAP_CHECKED`` unusable days, as :func:`build_design` does;
-    paths that share one confounder fit across structures use the plain path when this is true.
-    """
-    if used.all() or _longest_unused_run(used) < MIN_GAP_CHECKED:
-        return False
-    return not np.all(np.any(conf.matrix[used] != 0, axis=0))
 
 
 def _alias_confounders(

@@ -12,7 +12,7 @@ the maximum-likelihood estimate. Each step costs ``O(n p k)``; both iterations c
 weight change, the refinement falls back to the exact product if it stalls, and anything else the shared
 work cannot do is fitted by the full fit. Method and accuracy argument: docs/engine.md.
 
-Measured (benchmarks/bench_paths.py, one BLAS thread, 13 lag structures on the 14-year sample): 1.9x faster
+Measured (benchmarks/bench_paths.py, one BLAS thread, 13 lag structures on the 14-year sample): 1.8-2.1x faster
 than one plain fit per structure. A second path that returned full results (all coefficients) this way
 gained only 1.1x and was folded back into the plain fit.
 
