@@ -49,14 +49,31 @@ def require_columns(frame: pd.DataFrame, columns: Iterable[str | None], what: st
     missing = [c for c in wanted if c not in frame.columns]
     if missing:
         available = ", ".join(str(c) for c in frame.columns[:30]) + (" ..." if len(frame.columns) > 30 else "")
-        hint = "Check the spelling or rename the column."
-        if missing[0] in [n for n in frame.index.names if n is not None]:
-            hint = f"The index is named {missing[0]!r}: use {what}.reset_index() to make it a column."
-        raise DataError(f"column {missing[0]!r} does not exist in {what}; available columns: {available}. {hint}")
+        raise DataError(
+            f"column {missing[0]!r} does not exist in {what}; available columns: {available}. "
+            + _missing_column_hint(frame, missing[0], what)
+        )
     for column in dict.fromkeys(wanted):
         times = int((frame.columns == column).sum())
         if times > 1:
             raise DataError(f"column {column!r} appears {times} times in {what}; rename or drop one of them.")
+
+
+def _missing_column_hint(frame: pd.DataFrame, column: str, what: str) -> str:
+    """What to do about a missing column: stray spaces in the header, another case, the index, or spelling."""
+    names = [c for c in frame.columns if isinstance(c, str)]
+    spaced = [c for c in names if c.strip() == column.strip() and c != column]
+    if spaced:
+        return (
+            f"The header has stray spaces: the column is written {spaced[0]!r}. Remove the spaces from the "
+            f"header, or name the column exactly as written ({spaced[0]!r})."
+        )
+    cased = [c for c in names if c.strip().lower() == column.strip().lower()]
+    if cased:
+        return f"Names are case-sensitive: did you mean {cased[0]!r}?"
+    if column in [n for n in frame.index.names if n is not None]:
+        return f"The index is named {column!r}: use {what}.reset_index() to make it a column."
+    return "Check the spelling or rename the column."
 
 
 def parse_dates(frame: pd.DataFrame, date: str, what: str = "data", date_format: str | None = None) -> pd.DatetimeIndex:
