@@ -128,12 +128,12 @@ def parse_units(items: Sequence[str], exposures: Sequence[str]) -> dict[str, str
 
 
 def confidence_level(text: str) -> float:
-    """``--confidence`` as a level in (0, 1): ``0.9`` or ``90`` (per cent)."""
+    """``--confidence`` as a level in (0, 1): ``0.9``, or ``90`` read as per cent (from 50 to under 100)."""
     try:
         value = float(text)
     except ValueError:
         value = float("nan")
-    if 1 < value < 100:
+    if 50 <= value < 100:  # a percentage
         value /= 100
     if not 0 < value < 1:
         raise SpecificationError(f"--confidence {text!r} is not a confidence level; use e.g. 0.95 (or 95).")

@@ -36,7 +36,9 @@ def _separator_hint(path: Path, sep: str, encoding: str) -> str:
         return ""
     for mark, option in _SEPARATORS.items():
         if mark != sep and head[0].count(mark) >= 1 and head[0].count(mark) >= head[0].count(sep):
-            decimal = " --decimal ," if mark == ";" and any(re.search(r"\d,\d", line) for line in head[1:]) else ""
+            decimal = (
+                " --decimal , (a comma)" if mark == ";" and any(re.search(r"\d,\d", line) for line in head[1:]) else ""
+            )
             return f" The file seems to use {mark!r} as separator: pass {option}{decimal}."
     if sep == "," and any(re.search(r"\d,\d", line) for line in head[1:]):
         counts = {line.count(",") for line in head[1:] if line}
@@ -112,6 +114,11 @@ def read_table(
         hint = _separator_hint(path, sep, encoding)
         if hint:
             raise DataError(f"{str(path)!r} was read as one column named {str(table.columns[-1])!r}.{hint}")
+    if not isinstance(table.index, pd.RangeIndex):  # pandas made the extra first field of each row the index
+        raise DataError(
+            f"the rows of {str(path)!r} have more fields than its header ({', '.join(map(str, table.columns[:8]))})."
+            + (_separator_hint(path, sep, encoding) or " Check the separator (--sep) and the header line.")
+        )
     if table.empty:
         header = ", ".join(str(c) for c in table.columns[:10])
         raise DataError(f"{str(path)!r} has a header ({header}) but no rows of data.")
