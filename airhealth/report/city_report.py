@@ -8,7 +8,6 @@ lag window that leaves too few days, ...) is listed in the report with its error
 
 from __future__ import annotations
 
-import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -16,19 +15,14 @@ from typing import Any
 
 import pandas as pd
 
-from .._progress import progress
-from .._warn import warn_user
-from ..errors import AirhealthError, AirhealthWarning, DataError, SpecificationError
-from ..model.compare import compare_results
-from ..model.lag_structures import parse_lag
 from ..model.spec import DEFAULT_UNIT, ModelSpec
 from ..prep.describe import table_one
-from ..prep.validate import require_columns
 from .data_quality_section import data_quality_section
 from .document import Figure, Section, Table, Text
 from .html import write_html_report
 from .lag_plots import plot_lag_response
 from .plots import plot_effects, plot_observed_fitted
+from .report_fits import ReportFits, ReportRequest, check_request, fit_request
 from .tables import effects_table, format_effects
 
 __all__ = ["ReportContent", "count_summary", "describe_model", "report_content", "write_report"]
@@ -96,155 +90,26 @@ class ReportContent:
     main: Any  # the FitResult of the main model
 
 
-# -- arguments ---------------------------------------------------------------------------------------------
-
-
-def _names(values: Sequence[str] | str, what: str) -> list[str]:
-    names = [values] if isinstance(values, str) else list(values)
-    if not names or not all(isinstance(v, str) and v for v in names):
-        raise SpecificationError(f"{what} must be a list of column names, got {values!r}.")
-    repeated = [v for v in names if names.count(v) > 1]
-    if repeated:
-        raise SpecificationError(f"{what} names {repeated[0]!r} twice; give each column once.")
-    return names
-
-
-def _lags(lags: Sequence[Any], main_lag: Any) -> tuple[list[Any], int]:
-    """The lag structures (parsed, each with a unique label) and the position of the main one."""
-    given = [lags] if isinstance(lags, str) else list(lags)
-    if not given:
-        raise SpecificationError("lags is empty; give at least one lag structure, e.g. lags=['0-1'].")
-    parsed = [parse_lag(lag) for lag in given]
-    labels = [p.label for p in parsed]
-    repeated = [lab for lab in labels if labels.count(lab) > 1]
-    if repeated:
-        raise SpecificationError(f"lag {repeated[0]!r} is given twice; give each lag structure once.")
-    if main_lag is None:
-        return parsed, 0
-    main = parse_lag(main_lag)
-    for i, (text, lag) in enumerate(zip(given, parsed, strict=True)):
-        if lag == main or (isinstance(main_lag, str) and main_lag.strip().lower() == str(text).strip().lower()):
-            return parsed, i
-    raise SpecificationError(f"the main lag {main.label!r} is not among the lags asked for ({', '.join(labels)}).")
-
-
-def _units(units: Mapping[str, str] | None, exposures: list[str]) -> dict[str, str]:
-    if units is None:
-        return {}
-    if not isinstance(units, Mapping):
-        raise SpecificationError(
-            f"units must be a mapping of exposure column to unit, e.g. {{'o3': 'ppb'}}; got {units!r}."
-        )
-    unknown = [c for c in units if c not in exposures]
-    if unknown:
-        raise SpecificationError(
-            f"a unit is given for {unknown[0]!r}, which is not one of the exposures ({', '.join(exposures)})."
-        )
-    return dict(units)
-
-
-def _check_arguments(per: float, level: float, threshold: int | None) -> None:
-    if isinstance(per, bool) or not isinstance(per, int | float) or not per > 0:
-        raise SpecificationError(f"per must be a positive number of exposure units, got {per!r}.")
-    if isinstance(level, bool) or not isinstance(level, int | float) or not 0 < level < 1:
-        raise SpecificationError(f"level must be a confidence level between 0 and 1 (e.g. 0.95), got {level!r}.")
-    if threshold is not None and (isinstance(threshold, bool) or not isinstance(threshold, int) or threshold < 1):
-        raise SpecificationError(f"small_count_threshold must be a whole number >= 1 or None, got {threshold!r}.")
-
-
-# -- fitting -----------------------------------------------------------------------------------------------
-
-
-def _fit_pair(data: pd.DataFrame, lags: list[Any], options: dict[str, Any]) -> tuple[list[Any], list[tuple], list]:
-    """Fit every lag for one outcome and exposure; a failing lag is retried alone so the others complete.
-
-    Returns (results or None per lag, failures as (lag label, message), warnings caught).
-    """
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        try:
-            return compare_results(data, lags, **options), [], list(caught)
-        except AirhealthError as exc:
-            if len(lags) == 1:
-                return [None], [(lags[0].label, str(exc))], list(caught)
-    results, failures, seen = [], [], list(caught)
-    for lag in lags:
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            try:
-                results.extend(compare_results(data, [lag], **options))
-            except AirhealthError as exc:
-                results.append(None)
-                failures.append((lag.label, str(exc)))
-        seen.extend(caught)
-    return results, failures, seen
-
-
-def _fit_all(
-    data: pd.DataFrame, outcomes: list[str], exposures: list[str], lags: list[Any], options: dict[str, Any], show: bool
-) -> tuple[dict[tuple[str, str], list[Any]], pd.DataFrame, pd.DataFrame]:
-    """Fit every outcome × exposure; returns results per pair, the failures and the warnings (as tables)."""
-    fits, failed, warned = {}, [], []
-    pairs = [(o, e) for o in outcomes for e in exposures]
-    for outcome, exposure in progress(pairs, label="outcome × exposure", enabled=show):
-        results, failures, caught = _fit_pair(data, lags, {**options, "outcome": outcome, "exposure": exposure})
-        fits[(outcome, exposure)] = results
-        if len(failures) == len(lags) and len({m for _, m in failures}) == 1:
-            failures = [("all", failures[0][1])]
-        failed += [{"outcome": outcome, "exposure": exposure, "lag": lag, "error": msg} for lag, msg in failures]
-        for w in caught:
-            record = {"outcome": outcome, "exposure": exposure, "warning": str(w.message)}
-            if record not in warned:
-                if issubclass(w.category, AirhealthWarning):  # the report lists airhealth's own warnings
-                    warned.append(record)
-                warn_user(f"{outcome} and {exposure}: {w.message}", w.category)
-    return (
-        fits,
-        pd.DataFrame(failed, columns=["outcome", "exposure", "lag", "error"]),
-        pd.DataFrame(warned, columns=["outcome", "exposure", "warning"]),
-    )
-
-
-def _main_result(
-    fits: dict[tuple[str, str], list[Any]], pair: tuple[str, str], index: int, label: str
-) -> tuple[Any, str]:
-    """The main model (first outcome and exposure at the main lag), or else the first fit that worked."""
-    if fits[pair][index] is not None:
-        return fits[pair][index], ""
-    at_lag = [results[index] for results in fits.values() if results[index] is not None]
-    found = (at_lag or [r for results in fits.values() for r in results if r is not None])[0]
-    spec = found.spec
-    return found, (
-        f"The main model asked for ({pair[0]}, {pair[1]}, lag {label}) could not be fitted (see 'Analyses that "
-        f"could not be completed'); the model checks below show {spec.outcome}, {spec.exposure}, lag "
-        f"{spec.lag.label} instead."
-    )
-
-
 # -- sections ----------------------------------------------------------------------------------------------
 
 
-def _unit_of(exposure: str, units: dict[str, str]) -> str:
-    return units.get(exposure, DEFAULT_UNIT)
-
-
-def _unit_text(exposures: Sequence[str], units: dict[str, str]) -> str:
+def _unit_text(exposures: Sequence[str], request: ReportRequest) -> str:
     """The one unit of ``exposures``, or words saying that they differ."""
-    used = {_unit_of(e, units) for e in exposures}
+    used = {request.unit_of(e) for e in exposures}
     return used.pop() if len(used) == 1 else "units of each exposure (see the 'per' column)"
 
 
-def _per_text(per: float, exposures: Sequence[str], units: dict[str, str]) -> str:
-    return f"{per:g} {_unit_text(exposures, units)}"
+def _per_text(per: float, exposures: Sequence[str], request: ReportRequest) -> str:
+    return f"{per:g} {_unit_text(exposures, request)}"
 
 
-def _effects_tables(table: pd.DataFrame, per: float, level: float, units: dict[str, str]) -> list[Any]:
+def _effects_tables(table: pd.DataFrame, per: float, level: float, request: ReportRequest) -> list[Any]:
     shown = format_effects(table).rename(columns={"RR (95% CI)": f"RR ({level:.0%} CI)"})
-    shown.insert(3, "per", [f"{per:g} {_unit_of(e, units)}" for e in table["exposure"]])
+    shown.insert(3, "per", [f"{per:g} {request.unit_of(e)}" for e in table["exposure"]])
     exposures = list(dict.fromkeys(table["exposure"]))
     return [
         Table(
-            f"Relative risks per {_per_text(per, exposures, units)}",
+            f"Relative risks per {_per_text(per, exposures, request)}",
             shown,
             "effects",
             note="Each row is a separate model for one outcome, exposure and lag. QAIC compares models fitted on "
@@ -254,21 +119,21 @@ def _effects_tables(table: pd.DataFrame, per: float, level: float, units: dict[s
     ]
 
 
-def _forest_figures(table: pd.DataFrame, per: float, level: float, units: dict[str, str]) -> list[Figure]:
+def _forest_figures(table: pd.DataFrame, per: float, level: float, request: ReportRequest) -> list[Figure]:
     """One forest plot per outcome, rows labelled by exposure (with its unit) and lag."""
     figures = []
     for outcome, rows in table.groupby("outcome", sort=False):
         exposures = list(dict.fromkeys(rows["exposure"]))
-        single = len({_unit_of(e, units) for e in exposures}) == 1
+        single = len({request.unit_of(e) for e in exposures}) == 1
         labels = [
-            f"{r.exposure} · lag {r.lag}" + ("" if single else f" (per {per:g} {_unit_of(r.exposure, units)})")
+            f"{r.exposure} · lag {r.lag}" + ("" if single else f" (per {per:g} {request.unit_of(r.exposure)})")
             for r in rows.itertuples()
         ]
-        per_label = _per_text(per, exposures, units) if single else f"{per:g} units"
+        per_label = _per_text(per, exposures, request) if single else f"{per:g} units"
         ax = plot_effects(rows, labels=labels, per_label=per_label)
         ax.set_xlabel(f"relative risk per {per_label} ({level:.0%} CI)")
         ax.set_title(str(outcome))
-        title = f"{outcome}: relative risks per {_per_text(per, exposures, units)} with {level:.0%} intervals"
+        title = f"{outcome}: relative risks per {_per_text(per, exposures, request)} with {level:.0%} intervals"
         figures.append(Figure(title, ax.figure, f"effects_forest_{outcome}"))
     return figures
 
@@ -335,13 +200,53 @@ def _problem_sections(failures: pd.DataFrame, caught: pd.DataFrame) -> list[Sect
     return sections
 
 
-def _asked_text(outcomes: list[str], exposures: list[str], lags: list[Any], units: dict[str, str], main: Any) -> str:
-    with_units = ", ".join(f"{e} ({_unit_of(e, units)})" for e in exposures)
+def _asked_text(request: ReportRequest, main: Any) -> str:
+    with_units = ", ".join(f"{e} ({request.unit_of(e)})" for e in request.exposures)
     return (
-        f"Outcomes: {', '.join(outcomes)}. Exposures: {with_units}. Lag structures: "
-        f"{', '.join(lag.label for lag in lags)}. Main model: {main.spec.outcome}, {main.spec.exposure}, lag "
-        f"{main.spec.lag.label}."
+        f"Outcomes: {', '.join(request.outcomes)}. Exposures: {with_units}. Lag structures: "
+        f"{', '.join(lag.label for lag in request.lags)}. Main model: {main.spec.outcome}, {main.spec.exposure}, "
+        f"lag {main.spec.lag.label}."
     )
+
+
+def _count_section(data: pd.DataFrame, outcomes: list[str]) -> Section:
+    table = Table(
+        "Daily counts per outcome",
+        count_summary(data, outcomes).round(2),
+        "daily_counts",
+        count_columns=("total", "min", "p25", "median", "p75", "max"),
+    )
+    return Section("Daily health counts", [table])
+
+
+def _effects(fits: ReportFits, per: float, level: float) -> pd.DataFrame:
+    """The effects table: one row per successful fit, with the exposure's unit beside ``per``."""
+    table = effects_table(fits.done, per=per, level=level)
+    table.insert(table.columns.get_loc("per") + 1, "unit", [r.spec.unit for r in fits.done])
+    return table
+
+
+def _sections(
+    data: pd.DataFrame, request: ReportRequest, fits: ReportFits, table: pd.DataFrame, options: dict[str, Any]
+) -> list[Section]:
+    """Every section of the report, in order."""
+    per, level, main, done = request.per, request.level, fits.main, fits.done
+    outcomes = list(dict.fromkeys(r.spec.outcome for r in done))
+    exposures = list(dict.fromkeys(r.spec.exposure for r in done))
+    model_text = describe_model(main.spec, len(data), per, _unit_text(exposures, request), level)
+    weather = [c for c in (options.get("temperature"), options.get("humidity")) if c]
+    main_pair = fits.results[(main.spec.outcome, main.spec.exposure)]
+    return [
+        Section("Analyses", [Text(_asked_text(request, main)), Text(model_text)]),
+        *_problem_sections(fits.failures, fits.warnings),
+        _count_section(data, outcomes),
+        Section("Effect estimates", [*_effects_tables(table, per, level, request), *_forest_figures(table, per, level, request)]),  # noqa: E501
+        Section("Main model", [*_main_blocks(main, fits.main_note), *_lag_blocks(main_pair, per, level)]),
+        data_quality_section(
+            data, [*exposures, *weather], exposures=exposures, date=options.get("date", "date"),
+            units={e: request.unit_of(e) for e in exposures},
+        ),
+    ]  # fmt: skip
 
 
 def report_content(
@@ -357,56 +262,13 @@ def report_content(
     **model_options: Any,
 ) -> ReportContent:
     """Fit and build the report's sections without writing anything; see :func:`write_report`."""
-    outcomes, exposures = _names(outcomes, "outcomes"), _names(exposures, "exposures")
-    both = [c for c in outcomes if c in exposures]
-    if both:
-        raise SpecificationError(f"column {both[0]!r} is given both as an outcome and as an exposure.")
-    parsed, main_index = _lags(lags, main_lag)
-    units = _units(units, exposures)
-    _check_arguments(per, level, None)
-    extra = [model_options.get(k) for k in ("temperature", "humidity", "offset")]
-    require_columns(data, [model_options.get("date", "date"), *outcomes, *exposures, *extra], "data")
-    options = {**model_options, "units": units}
-    fits, failures, caught = _fit_all(data, outcomes, exposures, parsed, options, show_progress)
-    done = [r for results in fits.values() for r in results if r is not None]
-    if not done:
-        listing = "; ".join(f"{r.outcome} and {r.exposure}: {r.error}" for r in failures.itertuples())
-        raise DataError(f"no analysis could be completed, so no report was written. {listing}")
-    main, replaced = _main_result(fits, (outcomes[0], exposures[0]), main_index, parsed[main_index].label)
-    table = effects_table(done, per=per, level=level)
-    table.insert(table.columns.get_loc("per") + 1, "unit", [r.spec.unit for r in done])
-    ok_outcomes = list(dict.fromkeys(r.spec.outcome for r in done))
-    ok_exposures = list(dict.fromkeys(r.spec.exposure for r in done))
-    model_text = describe_model(main.spec, len(data), per, _unit_text(ok_exposures, units), level)
-    sections = [
-        Section("Analyses", [Text(_asked_text(outcomes, exposures, parsed, units, main)), Text(model_text)]),
-        *_problem_sections(failures, caught),
-        Section(
-            "Daily health counts",
-            [
-                Table(
-                    "Daily counts per outcome",
-                    count_summary(data, ok_outcomes).round(2),
-                    "daily_counts",
-                    count_columns=("total", "min", "p25", "median", "p75", "max"),
-                )
-            ],
-        ),
-        Section(
-            "Effect estimates", [*_effects_tables(table, per, level, units), *_forest_figures(table, per, level, units)]
-        ),
-        Section(
-            "Main model",
-            [*_main_blocks(main, replaced), *_lag_blocks(fits[(main.spec.outcome, main.spec.exposure)], per, level)],
-        ),
-    ]
-    weather = [c for c in (model_options.get("temperature"), model_options.get("humidity")) if c]
-    sections.append(
-        data_quality_section(
-            data, [*ok_exposures, *weather], exposures=ok_exposures, date=model_options.get("date", "date")
-        )
-    )
-    return ReportContent(sections, table, failures, caught, main)
+    columns = [model_options.get(k) for k in ("date", "temperature", "humidity", "offset")]
+    columns[0] = columns[0] or "date"
+    request = check_request(data, outcomes, exposures, lags, main_lag, units, per, level, columns=columns)
+    fits = fit_request(data, request, show_progress=show_progress, **model_options)
+    effects = _effects(fits, request.per, request.level)
+    sections = _sections(data, request, fits, effects, model_options)
+    return ReportContent(sections, effects, fits.failures, fits.warnings, fits.main)
 
 
 def write_report(
@@ -484,7 +346,7 @@ def write_report(
     ...                               lags=["0", "0-1"], out=tempfile.mkdtemp(),
     ...                               temperature="temperature")  # doctest: +SKIP
     """
-    _check_arguments(per, level, small_count_threshold)
+    check_request(data, outcomes, exposures, lags, main_lag, units, per, level, small_count_threshold)
     content = report_content(
         data, outcomes, exposures, lags, main_lag=main_lag, units=units, per=per, level=level,
         show_progress=show_progress, **model_options,

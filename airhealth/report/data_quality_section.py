@@ -5,7 +5,7 @@ The functions build :class:`~airhealth.report.document.Section` values only; wri
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 
 import pandas as pd
 
@@ -26,6 +26,7 @@ def data_quality_section(
     correlation_method: CorrelationMethod = "pearson",
     title: str = "Exposure and weather data",
     date: str = "date",
+    units: Mapping[str, str] | None = None,
 ) -> Section:
     """Table 1, correlation matrix, and time-series and seasonal plots of the daily data.
 
@@ -42,8 +43,13 @@ def data_quality_section(
         Section title.
     date : str, default "date"
         Date column.
+    units : mapping, optional
+        Unit of some columns (e.g. ``{"o3": "ppb"}``): a ``unit`` column of Table 1 and the axis labels.
     """
+    units = dict(units or {})
     describe = table_one(daily, columns).rename_axis("variable").reset_index()
+    if units:
+        describe.insert(1, "unit", [units.get(c, "") for c in describe["variable"]])
     corr = correlation_matrix(daily, columns, method=correlation_method).round(2)
     fewest = int(pair_counts(daily, columns).to_numpy().min())
     dates = pd.to_datetime(daily[date])
@@ -61,9 +67,10 @@ def data_quality_section(
         ),
     ]
     for column in exposures if exposures is not None else columns:
-        series_ax = plot_exposure_series(daily, column, date=date)
+        label = f"{column} ({units[column]})" if column in units else None
+        series_ax = plot_exposure_series(daily, column, date=date, label=label)
         blocks.append(Figure(f"{column} over time", series_ax.figure, name=f"series_{column}"))
-        season_ax = plot_seasonal_pattern(daily, column, date=date)
+        season_ax = plot_seasonal_pattern(daily, column, date=date, label=label)
         blocks.append(
             Figure(
                 f"{column} by month",
