@@ -201,10 +201,10 @@ def _excel_dates(raw: pd.Series, date: str, what: str) -> pd.Series:
     bad = ~np.isfinite(numbers) | (numbers != np.round(numbers)) | (numbers < lo) | (numbers > hi)
     if bad.any():
         rows = np.flatnonzero(bad)
-        examples = ", ".join(f"row {r}: {raw.iloc[r]!r}" for r in rows[:_SHOW])
+        examples = ", ".join(f"row {r}: {raw.iloc[r]!s}" for r in rows[:_SHOW])
         raise DataError(
-            f"column {date!r} in {what} is read as Excel serial day numbers, but {examples} "
-            f"{'is' if len(rows) == 1 else 'are'} not whole numbers from {lo} (1900-03-01) to {hi} (2199-12-31)."
+            f"column {date!r} in {what} is read as Excel serial day numbers, but some values are not whole "
+            f"numbers from {lo} (1900-03-01) to {hi} (2199-12-31): {examples}."
         )
     return pd.Series(_EXCEL_DAY_ZERO + pd.to_timedelta(numbers, unit="D"), index=raw.index)
 
