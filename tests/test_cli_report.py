@@ -199,3 +199,14 @@ def test_fit_json_carries_the_unit(city_csv: Path, capsys) -> None:
     assert record["unit"] == "ppb"
     main(["fit", str(city_csv), "--outcome", "deaths_all", "--exposure", "o3", "--unit", "ppb"])
     assert "RR per 10 ppb" in capsys.readouterr().out
+
+
+def test_failed_main_model_is_replaced_and_said_so(city: pd.DataFrame, tmp_path: Path) -> None:
+    path = airhealth.write_report(
+        city, outcomes=["deaths_all"], exposures=["broken", "pm25"], lags=["0", "1"], out=tmp_path / "r", main_lag="1"
+    )
+    page = _page(path.parent)
+    assert (
+        "The main model asked for (deaths_all, broken, lag 1) could not be fitted (see 'Analyses that could not be "
+        "completed'); the model checks below show deaths_all, pm25, lag 1 instead." in page
+    )
