@@ -210,3 +210,46 @@ def test_failed_main_model_is_replaced_and_said_so(city: pd.DataFrame, tmp_path:
         "The main model asked for (deaths_all, broken, lag 1) could not be fitted (see 'Analyses that could not be "
         "completed'); the model checks below show deaths_all, pm25, lag 1 instead." in page
     )
+
+
+def test_units_reach_the_figure_axes(city: pd.DataFrame) -> None:
+    from airhealth.report.city_report import report_content
+    from airhealth.report.document import Figure
+
+    content = report_content(
+        city, ["deaths_all"], ["pm25", "o3"], ["0", "dl0-2"], units={"o3": "ppb"}, per=5, level=0.9,
+        temperature="temperature",
+    )  # fmt: skip
+    figures = {b.name: b.figure.axes[0] for s in content.sections for b in s.blocks if isinstance(b, Figure)}
+    forest = figures["effects_forest_deaths_all"]
+    assert forest.get_xlabel() == "relative risk per 5 units (90% CI)"
+    labels = [t.get_text() for t in forest.get_yticklabels()]
+    assert "o3 · lag 0 (per 5 ppb)" in labels and "pm25 · lag dl0-2 (per 5 µg/m³)" in labels
+    assert figures["series_o3"].get_ylabel() == "o3 (ppb)"
+    assert figures["season_pm25"].get_ylabel() == "pm25 (µg/m³)"
+    assert figures["lag_response_dl0_2"].get_ylabel() == "RR per 5 µg/m³"
+
+
+def test_aliased_columns_and_notes_of_the_main_model_are_shown(city: pd.DataFrame) -> None:
+    import dataclasses
+
+    from airhealth.report.city_report import _main_blocks
+    from airhealth.report.document import Text
+
+    result = airhealth.fit(city, outcome="deaths_all", exposure="pm25", lag="0")
+    assert not [b for b in _main_blocks(result, "") if isinstance(b, Text) and "aliased" in b.text]
+    shown = dataclasses.replace(result, aliased=("spline(time)12", "spline(time)13"), notes=("fell back to Poisson",))
+    texts = [b.text for b in _main_blocks(shown, "") if isinstance(b, Text)]
+    assert any("dropped (aliased), as R's glm does: spline(time)12, spline(time)13." in t for t in texts)
+    assert "Note: fell back to Poisson" in texts
+
+
+def test_warnings_are_listed_in_the_report(city: pd.DataFrame, tmp_path: Path) -> None:
+    gapped = city.drop(index=range(400, 410))  # ten days absent from the file: a calendar gap
+    with pytest.warns(airhealth.DataWarning, match="deaths_all and pm25: .*2016-02-05"):
+        path = airhealth.write_report(
+            gapped, outcomes=["deaths_all"], exposures=["pm25"], lags=["0"], out=tmp_path / "r"
+        )
+    warned = pd.read_csv(path.parent / "tables" / "warnings.csv")
+    assert warned["warning"].str.contains("2016-02-05").any()
+    assert "Warnings raised while fitting" in _page(path.parent)
