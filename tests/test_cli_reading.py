@@ -177,3 +177,12 @@ def test_reading_does_not_guess_a_missing_value_code(year, tmp_path, capsys):
         exposure="pm25",
     )  # fmt: skip
     assert f'"n_days": {expected.n_days}' in out
+
+
+def test_a_name_given_twice_in_the_header_is_refused(year, tmp_path, capsys):
+    path = tmp_path / "twice.csv"
+    year[["date", "deaths_all", "pm25", "temperature"]].rename(columns={"temperature": "pm25"}).to_csv(
+        path, index=False
+    )
+    err = _error(capsys, _fit(path))
+    assert "names 'pm25' 2 times (columns 3, 4); rename or remove all but one" in err

@@ -66,6 +66,19 @@ def _encoding_error(path: Path, encoding: str, exc: UnicodeDecodeError) -> DataE
     )
 
 
+def _refuse_repeated_names(path: Path, sep: str, encoding: str) -> None:
+    """A name given twice in the header (pandas would silently rename the second ``name.1``)."""
+    header = pd.read_csv(path, sep=sep, header=None, nrows=1, encoding=encoding, dtype=str).iloc[0].tolist()
+    names = [str(h) for h in header]
+    for name in dict.fromkeys(names):
+        places = [i + 1 for i, n in enumerate(names) if n == name]
+        if len(places) > 1:
+            raise DataError(
+                f"the header of {str(path)!r} names {name!r} {len(places)} times (columns "
+                f"{', '.join(map(str, places))}); rename or remove all but one."
+            )
+
+
 def read_table(
     path: Path,
     sep: str = ",",
@@ -119,6 +132,7 @@ def read_table(
             f"the rows of {str(path)!r} have more fields than its header ({', '.join(map(str, table.columns[:8]))})."
             + (_separator_hint(path, sep, encoding) or " Check the separator (--sep) and the header line.")
         )
+    _refuse_repeated_names(path, sep, encoding)
     if table.empty:
         header = ", ".join(str(c) for c in table.columns[:10])
         raise DataError(f"{str(path)!r} has a header ({header}) but no rows of data.")
