@@ -165,3 +165,15 @@ def test_fit_error_names_the_command_line_remedy(city, tmp_path, capsys):
     err = capsys.readouterr().err
     assert "MovingAverage(first, last, min_count=1)" in err and "[on the command line: --min-count N]" in err
     assert _json(capsys, path, "--lag", "0-2", "--min-count", "1")["n_days"] > 0
+
+
+def test_na_values_leave_the_outcome_counts_alone(city, tmp_path, capsys):
+    """A code such as 0 for a missing reading must not erase a day with no deaths."""
+    data = city.copy()
+    data.loc[5, "deaths_all"] = 0
+    data.loc[7, "pm25"] = 0.0
+    path = tmp_path / "zeros.csv"
+    data.to_csv(path, index=False, date_format="%Y-%m-%d")
+    record = _json(capsys, path, "--na-values", "0", "--lag", "0")
+    expected = data.assign(pm25=data["pm25"].where(data.index != 7))
+    _same(record, airhealth.fit(expected, outcome="deaths_all", exposure="pm25", lag="0"))

@@ -47,7 +47,8 @@ def add_reading_options(p: argparse.ArgumentParser) -> None:
     g.add_argument(
         "--na-values",
         metavar="LIST",
-        help="comma-separated values meaning missing, e.g. -999,<LOD (besides empty cells and NA)",
+        help="comma-separated values meaning missing in the exposure and weather columns, e.g. -999,<LOD "
+        "(besides empty cells and NA; outcome counts are left as they are)",
     )
     g.add_argument(
         "--duplicates",
@@ -157,18 +158,21 @@ def check_min_count(lags: Sequence[LagStructure], min_count: int | None) -> None
         )
 
 
-def read_daily(args: argparse.Namespace, columns: Sequence[str | None]) -> pd.DataFrame:
+def read_daily(args: argparse.Namespace, columns: Sequence[str | None], outcomes: Sequence[str] = ()) -> pd.DataFrame:
     """Read the daily file: columns present, dates read, numbers numeric, duplicates merged, period restricted.
 
-    The date column of the returned frame holds dates (``--date-format`` applied), so the model reads them
-    as given. Errors name the file and the option that fixes them.
+    ``--na-values`` codes apply to ``columns`` except the ``outcomes``: a code such as ``0`` that marks a
+    missing pollutant reading must not erase days with no deaths. The date column of the returned frame
+    holds dates (``--date-format`` applied), so the model reads them as given. Errors name the file and the
+    option that fixes them.
     """
     path = Path(args.data)
     sep = "\t" if args.sep in ("tab", "\\t") else args.sep
     texts, _ = parse_na_values(args.na_values)
-    frame = read_table(path, sep=sep, decimal=args.decimal, na_values=texts or None, encoding=args.encoding)
-    what = path.name
     wanted = [c for c in columns if c is not None]
+    codes = {c: texts for c in wanted if c not in outcomes} if texts else None
+    frame = read_table(path, sep=sep, decimal=args.decimal, na_values=codes, encoding=args.encoding)
+    what = path.name
     require_columns(frame, [args.date, *wanted], what)
     dates = parse_dates(frame, args.date, what, date_format=args.date_format)
     check_numeric_columns(frame, [c for c in wanted if c != args.date], what, dates)

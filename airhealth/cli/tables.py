@@ -8,7 +8,7 @@ is refused with a message naming the option (``--sep``, ``--decimal``, ``--encod
 from __future__ import annotations
 
 import re
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 
 import numpy as np
@@ -83,7 +83,7 @@ def read_table(
     path: Path,
     sep: str = ",",
     decimal: str = ".",
-    na_values: Sequence[str] | None = None,
+    na_values: Sequence[str] | Mapping[str, Sequence[str]] | None = None,
     encoding: str = "utf-8",
 ) -> pd.DataFrame:
     """Read a CSV, turning I/O and parse failures into a clear error that names the option to pass.
@@ -94,9 +94,9 @@ def read_table(
         The CSV file.
     sep, decimal : str
         Field separator and decimal mark (``--sep``, ``--decimal``).
-    na_values : sequence of str, optional
-        Further texts meaning "missing" (``--na-values``), besides pandas' defaults (empty, ``NA``, ``NaN``,
-        ``null``, ...).
+    na_values : sequence of str, or mapping of column to them, optional
+        Further texts meaning "missing" (``--na-values``), in every column or in the columns named, besides
+        pandas' defaults (empty, ``NA``, ``NaN``, ``null``, ...).
     encoding : str
         Text encoding of the file (``--encoding``; default UTF-8).
 
