@@ -253,3 +253,23 @@ def test_warnings_are_listed_in_the_report(city: pd.DataFrame, tmp_path: Path) -
     warned = pd.read_csv(path.parent / "tables" / "warnings.csv")
     assert warned["warning"].str.contains("2016-02-05").any()
     assert "Warnings raised while fitting" in _page(path.parent)
+
+
+def test_report_reads_with_the_shared_options(city: pd.DataFrame, tmp_path: Path) -> None:
+    coded = city.assign(date=city["date"].dt.strftime("%d/%m/%Y"))
+    coded.loc[[400, 401], "o3"] = -999  # in 2016
+    path = tmp_path / "coded.csv"
+    coded.to_csv(path, index=False, sep=";")
+    out = tmp_path / "r"
+    code = main(["report", str(path), "--sep", ";", "--date-format", "%d/%m/%Y", "--na-values", "-999",
+                 "--start", "2016-01-01", "--end", "2016-12-31", "--outcome", "deaths_all", "--exposure", "o3",
+                 "--lags", "0", "--confidence", "90", "--out", str(out)])  # fmt: skip
+    assert code == 0
+    counts = pd.read_csv(out / "tables" / "daily_counts.csv")
+    assert counts["days"].tolist() == [366]  # 2016 only
+    clean = city.assign(o3=city["o3"].where(~city.index.isin([400, 401])))
+    year = clean[(clean["date"] >= "2016-01-01") & (clean["date"] <= "2016-12-31")]
+    expected = airhealth.fit(year, outcome="deaths_all", exposure="o3", lag="0").to_dict(level=0.9)
+    table = pd.read_csv(out / "tables" / "effects_full.csv")
+    assert table["rr_low"].iloc[0] == pytest.approx(expected["rr_low"], rel=SAME_FIT)
+    assert table["n_days"].iloc[0] == expected["n_days"]
