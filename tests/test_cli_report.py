@@ -273,3 +273,29 @@ def test_report_reads_with_the_shared_options(city: pd.DataFrame, tmp_path: Path
     table = pd.read_csv(out / "tables" / "effects_full.csv")
     assert table["rr_low"].iloc[0] == pytest.approx(expected["rr_low"], rel=SAME_FIT)
     assert table["n_days"].iloc[0] == expected["n_days"]
+
+
+@pytest.mark.parametrize(
+    ("extra", "message"),
+    [
+        (["--lags", ","], "--lags ',' names no lag structure; give e.g. --lags 0,1,0-1,dl0-5"),
+        (["--lags", "0,soon"], "lag 'soon' is not understood"),
+        (["--unit", "ppb", "--exposure", "o3"], "--unit 'ppb': with several exposures write COL=UNIT"),
+        (["--suppress-below", "0"], "--suppress-below must be a whole number >= 1, got 0"),
+        (["--outcome", "deaths"], "column 'deaths' does not exist in city.csv"),
+        (["--lags", "1", "--min-count", "2"], "--min-count applies to moving-average lags"),
+    ],
+)
+def test_report_cli_usage_errors_name_the_option(city_csv: Path, tmp_path: Path, capsys, extra, message) -> None:
+    args = ["report", str(city_csv), "--outcome", "deaths_all", "--exposure", "pm25", "--out", str(tmp_path / "r")]
+    assert main([*args, *extra]) == 2
+    assert message in capsys.readouterr().err
+    assert not (tmp_path / "r").exists()
+
+
+def test_report_output_that_is_a_file_is_refused_before_fitting(city_csv: Path, tmp_path: Path, capsys) -> None:
+    target = tmp_path / "report.html"
+    target.write_text("mine", encoding="utf-8")
+    assert main(["report", str(city_csv), "--outcome", "deaths_all", "--exposure", "pm25", "--out", str(target)]) == 2
+    assert f"the report goes into a folder, but {str(target)!r} is a file" in capsys.readouterr().err
+    assert target.read_text(encoding="utf-8") == "mine"

@@ -15,6 +15,7 @@ from typing import Any
 
 import pandas as pd
 
+from ..errors import SpecificationError
 from .options import (
     add_model_options,
     add_reading_options,
@@ -69,6 +70,8 @@ def register(sub: Any) -> None:
 def split_lags(text: str, min_count: int | None) -> list[Any]:
     """``--lags`` → lag structures, with ``--min-count`` applied to the moving averages."""
     lags = [with_min_count(t.strip(), min_count) for t in text.split(",") if t.strip()]
+    if not lags:
+        raise SpecificationError(f"--lags {text!r} names no lag structure; give e.g. --lags 0,1,0-1,dl0-5.")
     check_min_count(lags, min_count)
     return lags
 
@@ -78,8 +81,10 @@ def write_and_print(data: pd.DataFrame, args: argparse.Namespace, extra_sections
 
     Warnings are printed to stderr (with their command-line remedy) even when a later step fails.
     """
-    from ..report.city_report import report_content, write_content
+    from ..report.city_report import check_output_folder, report_content, write_content
     from ..report.tables import format_effects
+
+    check_output_folder(args.out)
 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
@@ -102,8 +107,6 @@ def write_and_print(data: pd.DataFrame, args: argparse.Namespace, extra_sections
 def run(args: argparse.Namespace) -> int:
     """Read the data, fit and write the report; returns the exit code."""
     if args.suppress_below is not None and args.suppress_below < 1:
-        from ..errors import SpecificationError
-
         raise SpecificationError(f"--suppress-below must be a whole number >= 1, got {args.suppress_below}.")
     lags = split_lags(args.lags, args.min_count)
     units = parse_units(args.unit, args.exposure)

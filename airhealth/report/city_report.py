@@ -15,6 +15,7 @@ from typing import Any
 
 import pandas as pd
 
+from ..errors import DataError
 from ..model.spec import DEFAULT_UNIT, ModelSpec
 from ..prep.describe import table_one
 from .data_quality_section import data_quality_section
@@ -25,7 +26,15 @@ from .plots import plot_effects, plot_observed_fitted
 from .report_fits import ReportFits, ReportRequest, check_request, fit_request
 from .tables import effects_table, format_effects
 
-__all__ = ["ReportContent", "count_summary", "describe_model", "report_content", "write_report"]
+__all__ = [
+    "ReportContent",
+    "check_output_folder",
+    "count_summary",
+    "describe_model",
+    "report_content",
+    "write_content",
+    "write_report",
+]
 
 _FAMILY = {
     "quasipoisson": "Quasi-Poisson",
@@ -271,6 +280,13 @@ def report_content(
     return ReportContent(sections, effects, fits.failures, fits.warnings, fits.main)
 
 
+def check_output_folder(out: str | Path) -> None:
+    """Refuse an output path that is an existing file before any work is done (the report is a folder)."""
+    path = Path(out)
+    if path.exists() and not path.is_dir():
+        raise DataError(f"the report goes into a folder, but {str(path)!r} is a file; give a folder path.")
+
+
 def write_report(
     data: pd.DataFrame,
     outcomes: Sequence[str],
@@ -347,6 +363,7 @@ def write_report(
     ...                               temperature="temperature")  # doctest: +SKIP
     """
     check_request(data, outcomes, exposures, lags, main_lag, units, per, level, small_count_threshold)
+    check_output_folder(out)
     content = report_content(
         data, outcomes, exposures, lags, main_lag=main_lag, units=units, per=per, level=level,
         show_progress=show_progress, **model_options,
