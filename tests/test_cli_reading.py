@@ -186,3 +186,18 @@ def test_a_name_given_twice_in_the_header_is_refused(year, tmp_path, capsys):
     )
     err = _error(capsys, _fit(path))
     assert "names 'pm25' 2 times (columns 3, 4); rename or remove all but one" in err
+
+
+def test_suppressed_counts_in_the_outcome_point_at_na_values_and_then_read(year, tmp_path, capsys):
+    frame = year.astype({"deaths_all": object})
+    frame.loc[[3, 8], "deaths_all"] = "<5"
+    path = tmp_path / "suppressed.csv"
+    frame.to_csv(path, index=False)
+    err = _error(capsys, _fit(path))
+    assert "column 'deaths_all' in suppressed.csv must hold numbers but has text: '<5' (2016-01-04)" in err
+    assert "pass --na-values '<5'" in err
+    capsys.readouterr()
+    assert main(_fit(path, "--na-values", "<5,0", "--json")) == 0  # '<5' applies to the counts, 0 does not
+    expected = airhealth.fit(year.assign(deaths_all=year["deaths_all"].where(~year.index.isin([3, 8]))),
+                             outcome="deaths_all", exposure="pm25")  # fmt: skip
+    assert f'"n_days": {expected.n_days}' in capsys.readouterr().out

@@ -47,8 +47,8 @@ def add_reading_options(p: argparse.ArgumentParser) -> None:
     g.add_argument(
         "--na-values",
         metavar="LIST",
-        help="comma-separated values meaning missing in the exposure and weather columns, e.g. -999,<LOD "
-        "(besides empty cells and NA; outcome counts are left as they are)",
+        help="comma-separated values meaning missing, e.g. -999,<LOD (besides empty cells and NA); "
+        "codes that could be a count (0, 99) are not applied to outcome columns",
     )
     g.add_argument(
         "--duplicates",
@@ -158,11 +158,16 @@ def check_min_count(lags: Sequence[LagStructure], min_count: int | None) -> None
         )
 
 
+def _could_be_count(value: Any) -> bool:
+    return isinstance(value, float) and value >= 0 and value == int(value)
+
+
 def read_daily(args: argparse.Namespace, columns: Sequence[str | None], outcomes: Sequence[str] = ()) -> pd.DataFrame:
     """Read the daily file: columns present, dates read, numbers numeric, duplicates merged, period restricted.
 
-    ``--na-values`` codes apply to ``columns`` except the ``outcomes``: a code such as ``0`` that marks a
-    missing pollutant reading must not erase days with no deaths. The date column of the returned frame
+    ``--na-values`` codes apply to ``columns``, but in the ``outcomes`` only the codes that cannot be a
+    count (text such as ``<5``, negative or fractional numbers such as ``-999``): a code such as ``0`` that
+    marks a missing pollutant reading must not erase days with no deaths. The date column of the returned frame
     holds dates (``--date-format`` applied), so the model reads them as given. Errors name the file and the
     option that fixes them.
     """
@@ -170,7 +175,8 @@ def read_daily(args: argparse.Namespace, columns: Sequence[str | None], outcomes
     sep = "\t" if args.sep in ("tab", "\\t") else args.sep
     texts, _ = parse_na_values(args.na_values)
     wanted = [c for c in columns if c is not None]
-    codes = {c: texts for c in wanted if c not in outcomes} if texts else None
+    not_counts = [t for t, v in zip(texts, parse_na_values(args.na_values)[1], strict=True) if not _could_be_count(v)]
+    codes = {c: (not_counts if c in outcomes else texts) for c in wanted} if texts else None
     frame = read_table(path, sep=sep, decimal=args.decimal, na_values=codes, encoding=args.encoding)
     what = path.name
     require_columns(frame, [args.date, *wanted], what)
