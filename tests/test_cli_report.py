@@ -299,3 +299,12 @@ def test_report_output_that_is_a_file_is_refused_before_fitting(city_csv: Path, 
     assert main(["report", str(city_csv), "--outcome", "deaths_all", "--exposure", "pm25", "--out", str(target)]) == 2
     assert f"the report goes into a folder, but {str(target)!r} is a file" in capsys.readouterr().err
     assert target.read_text(encoding="utf-8") == "mine"
+
+
+def test_bad_model_options_stop_the_report_before_any_fit(city: pd.DataFrame, tmp_path: Path) -> None:
+    args = {"outcomes": ["deaths_all"], "exposures": ["pm25", "temperature"], "lags": ["0"], "out": tmp_path / "r"}
+    with pytest.raises(SpecificationError, match=r"unknown model option 'temprature'"):
+        airhealth.write_report(city, temprature="temperature", **args)
+    with pytest.raises(SpecificationError, match=r"column 'temperature' is both the exposure and the temperature"):
+        airhealth.write_report(city, temperature="temperature", **args)
+    assert not (tmp_path / "r").exists()

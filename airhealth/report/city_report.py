@@ -273,7 +273,9 @@ def report_content(
     """Fit and build the report's sections without writing anything; see :func:`write_report`."""
     columns = [model_options.get(k) for k in ("date", "temperature", "humidity", "offset")]
     columns[0] = columns[0] or "date"
-    request = check_request(data, outcomes, exposures, lags, main_lag, units, per, level, columns=columns)
+    request = check_request(
+        data, outcomes, exposures, lags, main_lag, units, per, level, columns=columns, model_options=model_options
+    )
     fits = fit_request(data, request, show_progress=show_progress, **model_options)
     effects = _effects(fits, request.per, request.level)
     sections = _sections(data, request, fits, effects, model_options)

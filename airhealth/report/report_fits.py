@@ -20,7 +20,7 @@ from .._warn import warn_user
 from ..errors import AirhealthError, AirhealthWarning, DataError, SpecificationError
 from ..model.compare import compare_results
 from ..model.lag_structures import LagStructure, parse_lag
-from ..model.spec import DEFAULT_UNIT
+from ..model.spec import DEFAULT_UNIT, ModelSpec
 from ..prep.validate import require_columns
 
 __all__ = ["ReportFits", "ReportRequest", "check_request", "fit_request"]
@@ -189,8 +189,13 @@ def check_request(
     level: float = 0.95,
     small_count_threshold: int | None = None,
     columns: Sequence[str | None] = (),
+    model_options: Mapping[str, Any] | None = None,
 ) -> ReportRequest:
     """Validate a report's request before any fit; ``columns`` are further columns the model reads.
+
+    The model of every outcome × exposure × lag is specified once (:class:`~airhealth.model.spec.ModelSpec`),
+    so a bad model option (a misspelt name, a column in two roles) stops the report before any fit instead
+    of failing every analysis.
 
     Raises
     ------
@@ -208,6 +213,11 @@ def check_request(
     checked_units = _units(units, exposures)
     _check_arguments(per, level, small_count_threshold)
     require_columns(data, [*columns, *outcomes, *exposures], "data")
+    for outcome in outcomes:
+        for exposure in exposures:
+            for lag in parsed:
+                options = {**(model_options or {}), "units": checked_units}
+                ModelSpec.from_options(outcome=outcome, exposure=exposure, lag=lag, **options)
     return ReportRequest(outcomes, exposures, parsed, main_index, checked_units, float(per), float(level))
 
 
