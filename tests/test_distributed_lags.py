@@ -27,7 +27,7 @@ from airhealth.model.spec import ModelSpec
         ("DL 1-4", UnconstrainedLag(1, 4)),
         ("dl0-7:poly3", PolynomialLag(0, 7, 3)),
         ("dl0-21:spline4", SplineLag(0, 21, 4)),
-        ("dl0-21:spline5:log", SplineLag(0, 21, 5, log_knots=True)),
+        ("dl0-21:spline5:log", SplineLag(0, 21, 5, knot_spacing="log")),
         ("dl0-21:spline:knots=2,5,10", SplineLag(0, 21, knots=(2, 5, 10))),
     ],
 )
@@ -70,9 +70,9 @@ def test_spline_lag_knots_equal_and_log_spaced():
     assert SplineLag(0, 21, 4).interior_knots == pytest.approx((7.0, 14.0))
     assert SplineLag(3, 15, 5).interior_knots == pytest.approx((6.0, 9.0, 12.0))
     # log scale: equally spaced in log(1 + lag - first); for 0-21 and 4 df: exp(log(22)/3) - 1 = 1.802...
-    log_knots = np.array(SplineLag(0, 21, 4, log_knots=True).interior_knots)
-    assert log_knots == pytest.approx(np.exp(np.log(22) * np.array([1, 2]) / 3) - 1, rel=1e-12)
-    assert np.diff(np.log1p(np.r_[0.0, log_knots, 21.0])) == pytest.approx([np.log(22) / 3] * 3)
+    log_spaced = np.array(SplineLag(0, 21, 4, knot_spacing="log").interior_knots)
+    assert log_spaced == pytest.approx(np.exp(np.log(22) * np.array([1, 2]) / 3) - 1, rel=1e-12)
+    assert np.diff(np.log1p(np.r_[0.0, log_spaced, 21.0])) == pytest.approx([np.log(22) / 3] * 3)
 
 
 def test_spline_lag_basis_spans_constants_and_two_df_is_a_straight_line():
@@ -180,7 +180,7 @@ def _statsmodels_curve(frame, spec, lag, c: np.ndarray) -> tuple[np.ndarray, np.
         # Almon (1965): powers of the lag (over 7, for conditioning), an equivalent parametrisation of our basis
         (PolynomialLag(0, 7, 3), lambda lag: polynomial.polyvander(lag.lags / 7.0, 3)),
         (SplineLag(0, 21, 4), lambda lag: lag.basis()),
-        (SplineLag(0, 14, 4, log_knots=True), lambda lag: lag.basis()),
+        (SplineLag(0, 14, 4, knot_spacing="log"), lambda lag: lag.basis()),
         (UnconstrainedLag(0, 5), lambda lag: np.eye(6)),
     ],
     ids=["poly3-vandermonde", "spline4", "spline4-log", "unconstrained"],

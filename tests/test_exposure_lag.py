@@ -32,17 +32,17 @@ def test_columns_are_the_tensor_product_of_response_and_lag_bases():
     rng = np.random.default_rng(3)
     x = rng.gamma(4.0, 5.0, 300)
     x[[40, 41, 200]] = np.nan
-    cb = ExposureLagBasis(SplineResponse(df=3), SplineLag(0, 9, 3)).bind(x)
-    f = cb.response.spline.evaluate(x)
-    c = cb.lag.basis()
+    basis = ExposureLagBasis(SplineResponse(df=3), SplineLag(0, 9, 3)).bind(x)
+    f = basis.response.spline.evaluate(x)
+    c = basis.lag.basis()
     expected = np.column_stack(
         [sum(_shifted(f[:, j], lag) * c[i, k] for i, lag in enumerate(range(10))) for j in range(3) for k in range(3)]
     )
-    got = cb.columns(x)
+    got = basis.columns(x)
     assert got.shape == (300, 9)
     np.testing.assert_allclose(got, expected, rtol=1e-12, equal_nan=True)
     assert np.isnan(got[:9]).all() and np.isnan(got[40:51]).all() and np.isfinite(got[51:200]).all()
-    names = cb.column_names("pm25")
+    names = basis.column_names("pm25")
     assert len(set(names)) == 9
     assert names[:2] == [
         "pm25[spline(df=3) x dl0-9:spline3]x1:lagbasis1",
@@ -109,14 +109,14 @@ def test_effect_per_unit_of_a_non_linear_term_points_to_the_prediction_functions
 def test_temperature_exposure_lag_term_as_confounder_equals_its_columns_entered_by_hand(sample):
     term = ExposureLagTerm("temperature", SplineResponse(df=4), SplineLag(0, 10, 3))
     auto = fit(sample, "deaths_all", "pm25", lag="0-1", confounders=[term])
-    cb = term.exposure_lag_basis.bind(sample["temperature"].to_numpy(dtype=float))
-    cols = cb.columns(sample["temperature"].to_numpy(dtype=float))
+    basis = term.exposure_lag_basis.bind(sample["temperature"].to_numpy(dtype=float))
+    cols = basis.columns(sample["temperature"].to_numpy(dtype=float))
     data = sample.assign(**{f"t{i}": cols[:, i] for i in range(cols.shape[1])})
     by_hand = fit(data, "deaths_all", "pm25", lag="0-1", confounders=[Linear(f"t{i}") for i in range(cols.shape[1])])
     assert auto.n_days == by_hand.n_days
     assert auto.exposure_coef == pytest.approx(by_hand.exposure_coef, rel=1e-9)
     assert auto.exposure_se == pytest.approx(by_hand.exposure_se, rel=1e-9)
-    assert auto.bases[term.name] == cb
+    assert auto.bases[term.name] == basis
     # the first 10 days lack a full temperature history (day 0 is reported for the exposure's own lag)
     first = auto.dropped.set_index("date")["reason"].reindex(sample["date"].iloc[:10])
     assert first.iloc[0] == "lag window starts before the first day"

@@ -105,9 +105,9 @@ def test_non_linear_per_lag_effects_add_up_to_the_cumulative_one(temperature_exp
 def test_non_linear_cumulative_se_by_hand(temperature_exposure_fit):
     # b = (f(x) - f(r)) ⊗ Cᵀ1, var = b V bᵀ (Gasparrini, Armstrong & Kenward 2010).
     res = temperature_exposure_fit
-    cb = res.spec.lag
-    f = cb.response.spline.evaluate(np.array([25.0, 19.0]))
-    b = np.kron(f[0] - f[1], cb.lag.basis().sum(axis=0))
+    basis = res.spec.lag
+    f = basis.response.spline.evaluate(np.array([25.0, 19.0]))
+    b = np.kron(f[0] - f[1], basis.lag.basis().sum(axis=0))
     cols = list(res.exposure_columns)
     theta, v = res.coef[cols].to_numpy(), res.cov.loc[cols, cols].to_numpy()
     row = exposure_response(res, values=[25.0], reference=19.0).iloc[0]

@@ -13,15 +13,18 @@ cumulative (overall) effect of a unit rise sustained over the whole window is
   ``1, l, …, l^d`` (so the fitted per-lag curve is identical) but are far better conditioned.
 * :class:`SplineLag` — :math:`\beta_l` a natural cubic spline in the lag with ``df`` columns including the
   constant (so ``df`` equals the number of lag parameters). Interior knots are equally spaced over the lag
-  range, or equally spaced on the scale :math:`\log(1 + l - a)` with ``log_knots=True``, which puts more
-  knots at short lags where effects change fast and fewer where they fade; boundary knots are ``a`` and ``b``.
+  range (``knot_spacing="even"``), or equally spaced on the scale :math:`\log(1 + l - a)`
+  (``knot_spacing="log"``), which puts more knots at short lags where effects change fast and fewer where
+  they fade; boundary knots are ``a`` and ``b``.
 
 Days whose lag window reaches before the first day of the series, or contains a missing exposure, are left
 out of the fit (reasons ``"lag window starts before the first day"`` and ``"exposure missing in lag
-window"`` in ``FitResult.dropped``); no exposure is imputed.
+window"`` in ``FitResult.dropped``); no exposure is imputed. There is no ``min_count`` as for a moving
+average: each lag has its own coefficient, so a missing day could only be filled in by imputation.
 
 String forms (``parse_distributed_lag``): ``"dl0-5"``, ``"dl0-7:poly3"``, ``"dl0-21:spline4"``,
-``"dl0-21:spline4:log"``, ``"dl0-21:spline:knots=2,5,10"``. Each object's ``label`` is its string form.
+``"dl0-21:spline4:log"``, ``"dl0-21:spline:knots=2,5,10"``. Each object's ``label`` is its string form, and
+states every option, so different structures have different labels.
 
 References
 ----------
@@ -36,16 +39,19 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass
+from typing import Literal
 
 import numpy as np
 from numpy.polynomial import legendre
 
+from .._choices import check_choice
 from ..errors import SpecificationError
-from .lag_structures import LagStructure
+from .lag_structures import LagStructure, number_text
 from .splines import NaturalSplineBasis
 
 __all__ = [
     "DistributedLag",
+    "KnotSpacing",
     "PolynomialLag",
     "SplineLag",
     "UnconstrainedLag",
@@ -53,6 +59,9 @@ __all__ = [
 ]
 
 DEFAULT_SPLINE_DF = 4  # df of a spline lag when neither df nor knots are given
+
+#: How a spline lag spaces its interior knots: evenly over the lags, or evenly on the scale log(1 + lag - first).
+KnotSpacing = Literal["even", "log"]
 
 
 def _whole(value: object) -> bool:
@@ -167,10 +176,10 @@ class SplineLag(DistributedLag):
         Lag range in days (``0 <= first < last``).
     df : int or None
         Number of parameters (basis columns, constant included): ``2 <= df <= number of lags``; default 4
-        (when no knots are given). ``df - 2``
-        interior knots are placed equally spaced over ``first..last`` (or on the log scale, below).
-    log_knots : bool
-        Space the interior knots equally on the scale ``log(1 + lag - first)`` (denser at short lags).
+        (when no knots are given). ``df - 2`` interior knots are placed by ``knot_spacing``.
+    knot_spacing : {"even", "log"}
+        ``"even"`` (default): interior knots equally spaced over ``first..last``; ``"log"``: equally spaced
+        on the scale ``log(1 + lag - first)``, denser at short lags. String form ``"dl0-21:spline4:log"``.
     knots : tuple of float or None
         Interior knots given directly (strictly inside ``first..last``); then ``df = len(knots) + 2``.
 
@@ -180,16 +189,19 @@ class SplineLag(DistributedLag):
     (7.0, 14.0)
     >>> SplineLag(0, 21, 4).label
     'dl0-21:spline4'
+    >>> [round(k, 2) for k in SplineLag(0, 21, 4, knot_spacing="log").interior_knots]
+    [1.8, 6.85]
     """
 
     first: int = 0
     last: int = 21
     df: int | None = None
-    log_knots: bool = False
+    knot_spacing: KnotSpacing = "even"
     knots: tuple[float, ...] | None = None
 
     def __post_init__(self) -> None:
         _check_range("spline", self.first, self.last)
+        check_choice("knot_spacing", self.knot_spacing, KnotSpacing)
         if self.knots is not None and len(self.knots) == 0:
             object.__setattr__(self, "knots", None)
             object.__setattr__(self, "df", 2 if self.df is None else self.df)
@@ -212,8 +224,10 @@ class SplineLag(DistributedLag):
     def _check_knots(self) -> None:
         knots = tuple(float(k) for k in self.knots)  # type: ignore[union-attr]
         object.__setattr__(self, "knots", knots)
-        if self.log_knots:
-            raise SpecificationError("give spline lag knots either directly or with log_knots=True, not both.")
+        if self.knot_spacing != "even":
+            raise SpecificationError(
+                f"give spline lag knots either directly or with knot_spacing={self.knot_spacing!r}, not both."
+            )
         bad = [k for k in knots if not (self.first < k < self.last)]
         if bad or list(knots) != sorted(set(knots)):
             raise SpecificationError(
@@ -238,7 +252,7 @@ class SplineLag(DistributedLag):
         if self.knots is not None:
             return self.knots
         probs = np.linspace(0.0, 1.0, int(self.df))[1:-1]  # type: ignore[arg-type]
-        if self.log_knots:
+        if self.knot_spacing == "log":
             span = np.log1p(self.last - self.first)
             values = self.first + np.expm1(probs * span)
         else:
@@ -249,8 +263,8 @@ class SplineLag(DistributedLag):
     def label(self) -> str:  # type: ignore[override]
         head = f"dl{self.first}-{self.last}:spline"
         if self.knots is not None:
-            return f"{head}:knots={','.join(f'{k:g}' for k in self.knots)}"
-        return f"{head}{self.df}" + (":log" if self.log_knots else "")
+            return f"{head}:knots={','.join(number_text(k) for k in self.knots)}"
+        return f"{head}{self.df}" + (":log" if self.knot_spacing == "log" else "")
 
     def spline_basis(self) -> NaturalSplineBasis:
         """The natural-spline basis of the lag (with the constant column)."""
@@ -263,7 +277,7 @@ class SplineLag(DistributedLag):
 _DL = re.compile(
     r"^dl(?P<first>-?\d+)-(?P<last>-?\d+)"
     r"(?::(?:(?P<poly>poly)(?P<degree>\d+)"
-    r"|(?P<spline>spline)(?P<df>\d+)?(?::(?P<log>log)|:knots=(?P<knots>[-\d.,\s]+))?))?$"
+    r"|(?P<spline>spline)(?P<df>\d+)?(?::(?P<log>log)|:knots=(?P<knots>[-+\de.,\s]+))?))?$"
 )
 
 _FORMS = "'dl0-5', 'dl0-7:poly3', 'dl0-21:spline4', 'dl0-21:spline4:log' or 'dl0-21:spline:knots=2,5,10'"
@@ -288,6 +302,11 @@ def parse_distributed_lag(text: str) -> DistributedLag:
     if m is None:
         if re.match(r"^dl\s*-", clean) or re.match(r"^dl\d+--", clean):
             raise SpecificationError(f"lag {text!r}: lags are days before the outcome and cannot be negative.")
+        if "min" in clean:
+            raise SpecificationError(
+                f"distributed lag {text!r}: a distributed lag has one coefficient per lag and needs every day "
+                "of its window ('min' applies to moving averages only, e.g. '0-3 min 1')."
+            )
         raise SpecificationError(f"distributed lag {text!r} is not understood; use {_FORMS}.")
     first, last = int(m["first"]), int(m["last"])
     if m["poly"]:
@@ -302,5 +321,5 @@ def parse_distributed_lag(text: str) -> DistributedLag:
             return SplineLag(first, last, df=df, knots=knots)
         if m["df"] is None:
             raise SpecificationError(f"distributed lag {text!r}: give the spline df, e.g. 'dl0-21:spline4'.")
-        return SplineLag(first, last, int(m["df"]), log_knots=m["log"] is not None)
+        return SplineLag(first, last, int(m["df"]), knot_spacing="log" if m["log"] else "even")
     return UnconstrainedLag(first, last)

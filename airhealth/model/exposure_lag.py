@@ -33,6 +33,7 @@ curves and threshold levels. Am J Epidemiol 152:397–406 (threshold models).
 from __future__ import annotations
 
 import dataclasses
+import re
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
@@ -41,8 +42,7 @@ import pandas as pd
 
 from .._choices import check_choice
 from ..errors import DataError, SpecificationError
-from ..prep.lags import lag_matrix
-from .lag_structures import LagStructure, parse_lag
+from .lag_structures import LagStructure, number_text, parse_lag
 from .splines import NaturalSplineBasis
 from .terms import Term, TermBlock
 
@@ -54,6 +54,7 @@ __all__ = [
     "LinearResponse",
     "SplineResponse",
     "ThresholdResponse",
+    "parse_exposure_lag",
 ]
 
 Side = Literal["above", "below"]
@@ -185,7 +186,7 @@ class SplineResponse(ExposureResponse):
     @property
     def label(self) -> str:
         if self.knots is not None:
-            return f"spline(knots={','.join(f'{k:g}' for k in self.knots)})"
+            return f"spline(knots={','.join(number_text(k) for k in self.knots)})"
         return f"spline(df={self.df})"
 
     @property
@@ -230,7 +231,7 @@ class ThresholdResponse(ExposureResponse):
 
     @property
     def label(self) -> str:
-        return f"{self.side}({self.threshold:g})"
+        return f"{self.side}({number_text(self.threshold)})"
 
     @property
     def n_columns(self) -> int:
@@ -260,13 +261,19 @@ class ExposureLagBasis(LagStructure):
     response : ExposureResponse
         :class:`LinearResponse`, :class:`SplineResponse` or :class:`ThresholdResponse`.
     lag : str or LagStructure
-        Any lag structure or its string (``"0"``, ``"0-3"``, ``"dl0-5"``, ``"dl0-21:spline4"``, ...). With
-        a moving average the response is applied to each day of the window, then averaged.
+        Any lag structure or its string (``"0"``, ``"0-3"``, ``"0-3 min 1"``, ``"dl0-5"``,
+        ``"dl0-21:spline4"``, ...). With a moving average the response is applied to each day of the window,
+        then averaged, by the moving average's own missing-day rule (``min_count``): the same rule, applied by
+        the same code (:meth:`LagStructure.columns`), as for the plain lag structure.
+
+    The label is ``"<response> x <lag>"`` (e.g. ``"spline(df=3) x dl0-21:spline4"``) and reads back with
+    :func:`~airhealth.model.lag_structures.parse_lag`; it describes the specification, so a copy bound to
+    data (with its knots learnt) keeps the label of the unbound basis.
 
     Examples
     --------
-    >>> cb = ExposureLagBasis(SplineResponse(df=3), "dl0-21:spline4")
-    >>> cb.n_columns, cb.max_lag, cb.label
+    >>> basis = ExposureLagBasis(SplineResponse(df=3), "dl0-21:spline4")
+    >>> basis.n_columns, basis.max_lag, basis.label
     (12, 21, 'spline(df=3) x dl0-21:spline4')
     """
 
@@ -323,12 +330,14 @@ class ExposureLagBasis(LagStructure):
         return ExposureLagBasis(self.response.bind(x, name), self.lag)
 
     def columns(self, x: np.ndarray) -> np.ndarray:
-        """The ``n × (p·K)`` tensor-product columns for a daily series on a complete calendar."""
+        """The ``n × (p·K)`` tensor-product columns for a daily series on a complete calendar.
+
+        Each exposure-response column ``f_j(x)`` goes through the lag structure's own ``columns``, so the
+        term follows the lag structure's missing-day rule (e.g. a moving average's ``min_count``).
+        """
         fitted = self if self.is_bound else self.bind(x)
         f = fitted.response.evaluate(np.asarray(x, dtype=float))
-        c = self.lag.basis()
-        blocks = [lag_matrix(f[:, j], self.lags) @ c for j in range(f.shape[1])]
-        return np.hstack(blocks)
+        return np.hstack([self.lag.columns(f[:, j]) for j in range(f.shape[1])])
 
     def column_names(self, exposure: str) -> list[str]:
         p, k = self.response.n_columns, self.lag.n_columns
@@ -383,5 +392,47 @@ class ExposureLagTerm(Term):
             dtype = frame[self.column].dtype
             raise DataError(f"column {self.column!r} must be numeric to enter the model (dtype {dtype}).")
         x = frame[self.column].to_numpy(dtype=float, na_value=np.nan)
-        cb = self.exposure_lag_basis.bind(x, self.column)
-        return TermBlock(self.name, cb.columns(x), tuple(cb.column_names(self.column)), cb, self.inputs)
+        basis = self.exposure_lag_basis.bind(x, self.column)
+        return TermBlock(self.name, basis.columns(x), tuple(basis.column_names(self.column)), basis, self.inputs)
+
+
+_RESPONSE_FORMS = "'linear', 'spline(df=3)', 'spline(knots=10,20)', 'above(25)' or 'below(18)'"
+
+
+def _number(text: str, whole: str) -> float:
+    try:
+        return float(text)
+    except ValueError as exc:
+        raise SpecificationError(f"exposure-lag basis {whole!r}: {text!r} is not a number.") from exc
+
+
+def _parse_response(text: str, whole: str) -> ExposureResponse:
+    if text == "linear":
+        return LinearResponse()
+    if m := re.fullmatch(r"spline\(df=(\d+)\)", text):
+        return SplineResponse(df=int(m[1]))
+    if m := re.fullmatch(r"spline\(knots=([^)]*)\)", text):
+        return SplineResponse(knots=tuple(_number(k, whole) for k in m[1].split(",") if k))
+    if m := re.fullmatch(r"(above|below)\(([^)]+)\)", text):
+        return ThresholdResponse(_number(m[2], whole), side=m[1])  # type: ignore[arg-type]
+    raise SpecificationError(
+        f"exposure-lag basis {whole!r}: exposure-response {text!r} is not understood; use {_RESPONSE_FORMS}, "
+        "then ' x ' and a lag, e.g. 'spline(df=3) x dl0-21:spline4'."
+    )
+
+
+def parse_exposure_lag(text: str) -> ExposureLagBasis:
+    """Turn an exposure-lag label ``"<response> x <lag>"`` back into its basis (unbound).
+
+    Examples
+    --------
+    >>> parse_exposure_lag("above(25) x 0-3 min 2").lag
+    MovingAverage(first=0, last=3, min_count=2)
+    """
+    parts = re.split(r"\s+x\s+", str(text).strip().lower())
+    if len(parts) != 2 or not all(parts):
+        raise SpecificationError(
+            f"exposure-lag basis {text!r} is not understood; write one exposure-response, ' x ', and one lag, "
+            "e.g. 'spline(df=3) x dl0-21:spline4'."
+        )
+    return ExposureLagBasis(_parse_response(re.sub(r"\s+", "", parts[0]), text), parts[1])

@@ -24,11 +24,33 @@ import numpy as np
 from ..errors import SpecificationError
 from ..prep.lags import lag_matrix, moving_average
 
-__all__ = ["LagStructure", "MovingAverage", "SingleDay", "parse_lag"]
+__all__ = ["LagStructure", "MovingAverage", "SingleDay", "number_text", "parse_lag"]
+
+
+def number_text(value: float) -> str:
+    """A number as label text that reads back to exactly the same float (``7``, ``2.5``, ``1e-05``).
+
+    Labels are keys in comparison tables and reports and are parsed back by :func:`parse_lag`, so they
+    must not round (``f"{v:g}"`` would give 30.00001 and 30.000012 the same text).
+    """
+    v = float(value)
+    if v.is_integer() and abs(v) < 1e15:
+        return str(int(v))
+    return repr(v)
+
+
+def _whole_number(value: object) -> bool:
+    return isinstance(value, int | np.integer) and not isinstance(value, bool)
 
 
 class LagStructure:
-    """Base class: subclasses define ``label``, ``lags`` and ``basis()``; the rest follows."""
+    """Base class: subclasses define ``label``, ``lags`` and ``basis()``; the rest follows.
+
+    ``label`` states every option of the structure (``"0-3"``, ``"0-3 min 1"``, ``"dl0-21:spline4:log"``):
+    two different structures never share a label, and :func:`parse_lag` turns a label back into an equal
+    structure. ``columns(x)`` applies the structure's missing-day rule; every term built from a lag
+    structure (including :class:`~airhealth.model.exposure_lag.ExposureLagBasis`) goes through it.
+    """
 
     label: str
 
@@ -54,7 +76,11 @@ class LagStructure:
         return False
 
     def columns(self, x: np.ndarray) -> np.ndarray:
-        """Design columns ``Q C`` for a daily series on a complete calendar (missing if any lag is missing)."""
+        """Design columns ``Q C`` for a daily series on a complete calendar (missing if any lag is missing).
+
+        The one place a lag structure's missing-day rule is applied; subclasses with another rule (a moving
+        average with ``min_count``) override it.
+        """
         return lag_matrix(x, self.lags) @ self.basis()
 
     def column_names(self, exposure: str) -> list[str]:
@@ -72,7 +98,7 @@ class SingleDay(LagStructure):
     lag: int = 0
 
     def __post_init__(self) -> None:
-        if not isinstance(self.lag, int | np.integer) or self.lag < 0:
+        if not _whole_number(self.lag) or self.lag < 0:
             raise SpecificationError(f"a lag must be a whole number of days >= 0, got {self.lag!r}.")
 
     @property
@@ -92,7 +118,16 @@ class MovingAverage(LagStructure):
     """Mean exposure over lags ``first..last``.
 
     Missing when any day of the window is missing (the usual convention), unless ``min_count`` is set:
-    then the mean of the available days when at least ``min_count`` are present.
+    then the mean of the available days when at least ``min_count`` are present. A ``min_count`` equal to
+    the window's width is the usual rule and is stored as ``None``. The label states the rule: ``"0-3"``
+    (every day needed) or ``"0-3 min 1"`` (at least one day).
+
+    Examples
+    --------
+    >>> MovingAverage(0, 3, min_count=1).label
+    '0-3 min 1'
+    >>> MovingAverage(0, 3, min_count=4) == MovingAverage(0, 3)
+    True
     """
 
     first: int = 0
@@ -100,17 +135,25 @@ class MovingAverage(LagStructure):
     min_count: int | None = None
 
     def __post_init__(self) -> None:
-        if not (isinstance(self.first, int | np.integer) and isinstance(self.last, int | np.integer)):
+        if not (_whole_number(self.first) and _whole_number(self.last)):
             raise SpecificationError(f"moving-average lags must be whole days, got {self.first!r}-{self.last!r}.")
         if self.first < 0 or self.last < self.first:
             raise SpecificationError(f"a moving average needs 0 <= first <= last lag, got {self.first}-{self.last}.")
         width = self.last - self.first + 1
-        if self.min_count is not None and not 1 <= self.min_count <= width:
-            raise SpecificationError(f"min_count must be between 1 and {width} for lags {self.label}.")
+        if self.min_count is None:
+            return
+        if not _whole_number(self.min_count) or not 1 <= self.min_count <= width:
+            raise SpecificationError(
+                f"min_count must be a whole number of days between 1 and {width} for lags "
+                f"{self.first}-{self.last}, got {self.min_count!r}."
+            )
+        if self.min_count == width:  # every day needed: the usual rule, one spelling
+            object.__setattr__(self, "min_count", None)
 
     @property
     def label(self) -> str:  # type: ignore[override]
-        return f"{self.first}-{self.last}"
+        rule = "" if self.min_count is None else f" min {self.min_count}"
+        return f"{self.first}-{self.last}{rule}"
 
     @property
     def lags(self) -> np.ndarray:
@@ -121,23 +164,35 @@ class MovingAverage(LagStructure):
         return np.full((width, 1), 1.0 / width)
 
     def columns(self, x: np.ndarray) -> np.ndarray:
+        """The mean over the window, by the structure's missing-day rule (``min_count``)."""
         return moving_average(x, self.first, self.last, self.min_count)[:, None]
 
 
 _SINGLE = re.compile(r"^\s*(\d+)\s*$")
-_MEAN = re.compile(r"^\s*(\d+)\s*-\s*(\d+)\s*$")
+_MEAN = re.compile(r"^\s*(\d+)\s*-\s*(\d+)\s*(?:min\s*(\d+)\s*)?$")
+_FORMS = (
+    "a day such as '0' or '2', a moving average such as '0-1' or '0-3 min 1' (at least 1 day of the window "
+    "present), a distributed lag such as 'dl0-5', 'dl0-7:poly3' or 'dl0-21:spline4', or an exposure-lag "
+    "basis such as 'spline(df=3) x dl0-21:spline4'"
+)
 
 
 def parse_lag(spec: str | int | LagStructure) -> LagStructure:
-    """Turn a lag string into a lag structure.
+    """Turn a lag string (any structure's ``label``) into a lag structure.
 
-    ``"0"``, ``"2"``: a single day; ``"0-1"``, ``"0-3"``: a moving average; ``"dl0-5"``,
-    ``"dl0-7:poly3"``, ``"dl0-21:spline4"``: distributed lags. Lag-structure objects pass through.
+    ``"0"``, ``"2"``: a single day; ``"0-1"``, ``"0-3"``: a moving average, ``"0-3 min 1"`` one that needs
+    at least 1 day of its window; ``"dl0-5"``, ``"dl0-7:poly3"``, ``"dl0-21:spline4"``,
+    ``"dl0-21:spline4:log"``, ``"dl0-21:spline:knots=2,5,10"``: distributed lags; ``"<response> x <lag>"``
+    (e.g. ``"spline(df=3) x dl0-21:spline4"``, ``"above(25) x 0-3"``): an exposure-lag basis. Lag-structure
+    objects pass through. For every structure ``s``, ``parse_lag(s.label) == s`` (so ``"2-2"`` is the one-day
+    moving average, with the same numbers as the single day ``"2"`` but its own label).
 
     Examples
     --------
     >>> parse_lag("0-3")
     MovingAverage(first=0, last=3, min_count=None)
+    >>> parse_lag("0-3 min 1")
+    MovingAverage(first=0, last=3, min_count=1)
     >>> parse_lag(2)
     SingleDay(lag=2)
     """
@@ -148,22 +203,26 @@ def parse_lag(spec: str | int | LagStructure) -> LagStructure:
     if not isinstance(spec, str):
         raise SpecificationError(f"a lag must be a string such as '0', '0-1' or 'dl0-5', got {spec!r}.")
     text = spec.strip().lower()
+    if re.search(r"\sx\s", text):
+        from .exposure_lag import parse_exposure_lag  # the exposure-lag module builds on this one
+
+        return parse_exposure_lag(text)
     if m := _SINGLE.match(text):
         return SingleDay(int(m.group(1)))
     if m := _MEAN.match(text):
         first, last = int(m.group(1)), int(m.group(2))
         if last < first:
             raise SpecificationError(f"lag {spec!r}: the last lag must not be before the first.")
-        return SingleDay(first) if first == last else MovingAverage(first, last)
+        return MovingAverage(first, last, None if m.group(3) is None else int(m.group(3)))
     if text.startswith("dl"):
-        try:
-            from .distributed_lags import parse_distributed_lag
-        except ModuleNotFoundError as exc:  # pragma: no cover - during development only
-            raise SpecificationError("distributed lags are not available in this build.") from exc
+        from .distributed_lags import parse_distributed_lag  # the distributed-lag module builds on this one
+
         return parse_distributed_lag(text)
     if text.startswith("-") or re.match(r"^\s*-?\d+\s*-\s*-\d+", text):
         raise SpecificationError(f"lag {spec!r}: lags are days before the outcome and cannot be negative.")
-    raise SpecificationError(
-        f"lag {spec!r} is not understood; use a day such as '0' or '2', a moving average such as '0-1', "
-        "or a distributed lag such as 'dl0-5', 'dl0-7:poly3' or 'dl0-21:spline4'."
-    )
+    if re.match(r"^\s*\d+\s*min\b", text):
+        raise SpecificationError(
+            f"lag {spec!r}: a single day has no minimum count of days; 'min' belongs to a moving average "
+            "such as '0-3 min 1'."
+        )
+    raise SpecificationError(f"lag {spec!r} is not understood; use {_FORMS}.")

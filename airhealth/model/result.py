@@ -13,7 +13,9 @@ Schwartz J (2000). The distributed lag between air pollution and daily deaths. E
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from collections.abc import Mapping, Sequence
+from dataclasses import FrozenInstanceError
+from types import MappingProxyType
 from typing import Any, Literal
 
 import numpy as np
@@ -35,9 +37,20 @@ SUMMARY_COLUMNS = (
 )  # fmt: skip
 
 
-@dataclass(frozen=True)
+def _own_copy(frame: pd.Series | pd.DataFrame) -> pd.Series | pd.DataFrame:
+    """A private deep copy (data and index), so the caller's object and the result never share memory."""
+    return frame.copy(deep=True)
+
+
 class FitResult:
-    """A fitted time-series model of daily counts.
+    """A fitted time-series model of daily counts (read-only).
+
+    Read-only means more than frozen attributes: every array and frame the result gives out (``coef``,
+    ``cov``, ``fitted``, ``observed``, ``dropped``, ``std_err``, tables) is a fresh copy, and ``bases`` is
+    a read-only mapping of immutable objects, so changing what you were given (``r.coef.iloc[-1] = 0``,
+    ``r.cov.values[0, 0] = 0``, ``r.dropped.drop(..., inplace=True)``) never changes ``effect()``,
+    ``to_dict()`` or predictions. This holds with or without pandas copy-on-write. The result keeps its own
+    copies of what it is built from, too.
 
     Attributes
     ----------
@@ -65,6 +78,12 @@ class FitResult:
     exposure_iqr : float
         Interquartile range of the daily exposure (not its lagged or averaged form) on the days used, for
         effects per IQR; the same increment for every lag structure fitted on the same days.
+    converged : bool
+        Whether the engine met its convergence criterion; ``n_iter`` its iterations.
+    theta : float or None
+        Negative binomial θ (``None`` for the other families).
+    bases : mapping
+        The fitted bases of the confounder terms, by term name (read-only).
     aliased : tuple of str
         Confounder columns left out of the fit because the days used give them no support (e.g. spline
         columns of time inside a long gap), as R's ``glm`` reports aliased coefficients.
@@ -72,36 +91,115 @@ class FitResult:
         Plain-language notes on how the fit was obtained (e.g. a negative binomial that fell back to Poisson).
     """
 
+    __slots__ = (
+        "_bases", "_coef", "_cov", "_dropped", "_fitted", "_observed", "aliased", "converged", "deviance",
+        "df_resid", "dispersion", "exposure_columns", "exposure_iqr", "loglik", "n_days", "n_iter", "notes",
+        "qaic", "spec", "theta",
+    )  # fmt: skip
+
     spec: ModelSpec
-    coef: pd.Series
-    cov: pd.DataFrame
     dispersion: float
     deviance: float
     loglik: float
     qaic: float
     df_resid: int
     n_days: int
-    dropped: pd.DataFrame
-    fitted: pd.Series
-    observed: pd.Series
     exposure_columns: tuple[str, ...]
     exposure_iqr: float
     converged: bool
     n_iter: int
-    theta: float | None = None
-    bases: Any = None
-    aliased: tuple[str, ...] = ()
-    notes: tuple[str, ...] = ()
+    theta: float | None
+    aliased: tuple[str, ...]
+    notes: tuple[str, ...]
+
+    def __init__(
+        self,
+        spec: ModelSpec,
+        coef: pd.Series,
+        cov: pd.DataFrame,
+        dispersion: float,
+        deviance: float,
+        loglik: float,
+        qaic: float,
+        df_resid: int,
+        n_days: int,
+        dropped: pd.DataFrame,
+        fitted: pd.Series,
+        observed: pd.Series,
+        exposure_columns: Sequence[str],
+        exposure_iqr: float,
+        converged: bool,
+        n_iter: int,
+        theta: float | None = None,
+        bases: Mapping[str, Any] | None = None,
+        aliased: Sequence[str] = (),
+        notes: Sequence[str] = (),
+    ) -> None:
+        put = object.__setattr__
+        for name, value in (
+            ("spec", spec), ("_coef", _own_copy(coef)), ("_cov", _own_copy(cov)), ("dispersion", dispersion),
+            ("deviance", deviance), ("loglik", loglik), ("qaic", qaic), ("df_resid", df_resid),
+            ("n_days", n_days), ("_dropped", _own_copy(dropped)), ("_fitted", _own_copy(fitted)),
+            ("_observed", _own_copy(observed)), ("exposure_columns", tuple(exposure_columns)),
+            ("exposure_iqr", exposure_iqr), ("converged", converged), ("n_iter", n_iter), ("theta", theta),
+            ("_bases", MappingProxyType(dict(bases or {}))), ("aliased", tuple(aliased)), ("notes", tuple(notes)),
+        ):  # fmt: skip
+            put(self, name, value)
+
+    def __setattr__(self, name: str, value: Any) -> None:
+        raise FrozenInstanceError(f"a FitResult is read-only: {name!r} cannot be set; fit again with other options.")
+
+    def __delattr__(self, name: str) -> None:
+        raise FrozenInstanceError(f"a FitResult is read-only: {name!r} cannot be deleted.")
+
+    def __reduce__(self) -> tuple[Any, tuple[Any, ...]]:  # pickling (process pools) rebuilds through __init__
+        args = (
+            self.spec, self._coef, self._cov, self.dispersion, self.deviance, self.loglik, self.qaic,
+            self.df_resid, self.n_days, self._dropped, self._fitted, self._observed, self.exposure_columns,
+            self.exposure_iqr, self.converged, self.n_iter, self.theta, dict(self._bases), self.aliased, self.notes,
+        )  # fmt: skip
+        return (type(self), args)
+
+    # -- what the result gives out: copies, or read-only ------------------------------------------
+    @property
+    def coef(self) -> pd.Series:
+        """All coefficients (log scale), by column name (a copy)."""
+        return self._coef.copy(deep=True)
+
+    @property
+    def cov(self) -> pd.DataFrame:
+        """Covariance of the coefficients, scaled by the dispersion for quasi-Poisson (a copy)."""
+        return self._cov.copy(deep=True)
+
+    @property
+    def dropped(self) -> pd.DataFrame:
+        """Days of the calendar left out, with the reason (``date``, ``reason``; a copy)."""
+        return self._dropped.copy(deep=True)
+
+    @property
+    def fitted(self) -> pd.Series:
+        """Fitted means on the days used, indexed by date (a copy)."""
+        return self._fitted.copy(deep=True)
+
+    @property
+    def observed(self) -> pd.Series:
+        """Observed counts on the days used, indexed by date (a copy)."""
+        return self._observed.copy(deep=True)
+
+    @property
+    def bases(self) -> Mapping[str, Any]:
+        """Fitted bases of the confounder terms by term name (a read-only mapping of immutable objects)."""
+        return self._bases
 
     # -- the exposure term -------------------------------------------------------------------------
     @property
     def std_err(self) -> pd.Series:
         """Standard errors of all coefficients."""
-        return pd.Series(np.sqrt(np.diag(self.cov.to_numpy())), index=self.coef.index, name="std_err")
+        return pd.Series(np.sqrt(np.diag(self._cov.to_numpy())), index=self._coef.index.copy(), name="std_err")
 
     def _exposure_block(self) -> tuple[np.ndarray, np.ndarray]:
-        cols = list(self.exposure_columns)
-        return self.coef[cols].to_numpy(), self.cov.loc[cols, cols].to_numpy()
+        at = self._coef.index.get_indexer(list(self.exposure_columns))  # positions: no label look-ups per call
+        return self._coef.to_numpy()[at], self._cov.to_numpy()[np.ix_(at, at)]  # fancy indexing copies
 
     @property
     def lag_basis(self) -> np.ndarray:
@@ -204,7 +302,7 @@ class FitResult:
             "deviance": self.deviance,
             "df_resid": self.df_resid,
             "n_days": self.n_days,
-            "n_dropped": len(self.dropped),
+            "n_dropped": len(self._dropped),
             "family": self.spec.family,
             "converged": self.converged,
             "level": level,
@@ -225,7 +323,7 @@ class FitResult:
 
     def drop_summary(self) -> pd.Series:
         """Number of calendar days dropped for each reason."""
-        return self.dropped["reason"].value_counts().rename("days")
+        return self._dropped["reason"].value_counts().rename("days")
 
     def __repr__(self) -> str:
         if getattr(self.spec.lag, "is_nonlinear", False):  # no per-unit effect (exposure_lag.ExposureLagBasis)

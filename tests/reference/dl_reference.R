@@ -19,8 +19,8 @@
 #    - "dl0-5": the six explicit columns pm25 lag0..lag5 (one coefficient per lag);
 #    - "dl0-7:poly3": the columns Q %*% C, Q the lag-0..7 matrix and C = [1, l, l^2, l^3] (raw powers of
 #      the lag, Almon 1965), per-lag curve C theta;
-#    - "dl0-21:spline4" and "dl0-21:spline4:log": C = ns(0:21, knots, Boundary.knots = c(0, 21),
-#      intercept = TRUE), with the interior knots placed by the rule documented in
+#    - "dl0-21:spline4" and "dl0-21:spline4:log" (airhealth's knot_spacing="log"): C = ns(0:21, knots,
+#      Boundary.knots = c(0, 21), intercept = TRUE), with the interior knots placed by the rule documented in
 #      airhealth/model/distributed_lags.py (equally spaced over 0..21, or equally spaced on log(1 + lag)).
 #    For each: per-lag coefficients C theta with SEs sqrt(diag(C V C')), and the cumulative effect
 #    1' C theta with SE sqrt(1' C V C' 1), V = vcov(fit) (summary.glm's dispersion) and also V recomputed
