@@ -133,16 +133,23 @@ def test_demo_writes_report_tables_and_figures(demo_dir: Path) -> None:
 
 
 def test_demo_suppresses_small_counts(demo_dir: Path) -> None:
-    """Health counts below the threshold (5) are shown as '<5' in the page and the CSV; others are kept."""
+    """Counts below the threshold (5) are shown as '<5' in the page and the CSV; totals, means and SDs of an
+    outcome with any daily count from 1 to 4 are 'suppressed'; everything else is kept."""
     shown = pd.read_csv(demo_dir / "tables" / "daily_counts.csv", dtype=str).set_index("outcome")
-    raw = count_summary(airhealth.load_sample(), list(shown.index)).set_index("outcome")
+    data = airhealth.load_sample()
+    raw = count_summary(data, list(shown.index)).set_index("outcome")
     for outcome in shown.index:
-        for col in ("total", "min", "p25", "median", "p75", "max"):
+        positive = data[outcome][data[outcome] > 0]
+        for col in ("total", "mean", "sd", "min", "p25", "median", "p75", "max"):
             value = raw.loc[outcome, col]
-            expected = "<5" if 0 < value < 5 else None
+            if col in ("total", "mean", "sd"):
+                expected = "suppressed" if positive.min() < 5 else None
+            else:
+                expected = "<5" if 0 < value < 5 else None
             if expected:
                 assert shown.loc[outcome, col] == expected
             else:
-                assert float(shown.loc[outcome, col]) == pytest.approx(value)
+                assert float(shown.loc[outcome, col]) == pytest.approx(value, abs=0.005)  # the table rounds to 2
     assert (raw[["min"]].to_numpy() < 5).any(), "the sample should have small daily minima to suppress"
+    assert (shown["total"] == "suppressed").any() and (shown["total"] != "suppressed").any()
     assert "&lt;5" in (demo_dir / "index.html").read_text(encoding="utf-8")

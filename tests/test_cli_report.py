@@ -88,7 +88,7 @@ def test_failing_exposure_is_listed_in_the_report_with_its_message(report_dir: P
 def test_main_model_is_the_named_lag(report_dir: Path, city: pd.DataFrame) -> None:
     page = _page(report_dir)
     assert "The main model is deaths_all, pm25 (µg/m³), lag 0-1." in page
-    assert "Observed and fitted daily deaths_all (deaths_all, pm25 (µg/m³), lag 0-1)" in page
+    assert "Observed and fitted daily deaths_all (pm25, lag 0-1)" in page  # the figure of the main model
     dropped = pd.read_csv(report_dir / "tables" / "dropped_days.csv").set_index("reason")["days"]
     single = airhealth.fit(city, outcome="deaths_all", exposure="pm25", lag="0-1", temperature="temperature")
     assert dropped.to_dict() == single.drop_summary().to_dict()

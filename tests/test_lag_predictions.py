@@ -316,12 +316,12 @@ def test_lag_structure_section(sample):
         per_lag.loc[per_lag["lag_structure"] == "dl0-5", "rr"], dl5.lag_effects(10)["rr"], rtol=1e-9
     )
     assert list(figures) == [
-        "lag_response_dl0_5",
-        "lag_response_dl0_21_spline4",
+        "lag_response_dl0-5",
+        "lag_response_dl0-21:spline4",  # block names; the writer makes them safe file names
         "temperature_exposure_response",
         "temperature_exposure_lag_surface",
     ]
-    curve = figures["lag_response_dl0_5"].figure.axes[0].get_lines()[0]
+    curve = figures["lag_response_dl0-5"].figure.axes[0].get_lines()[0]
     np.testing.assert_allclose(curve.get_ydata(), dl5.lag_effects(10)["rr"], rtol=1e-9)
     # the temperature paragraph reports the minimum and the pollutant effect of this very model
     term = ExposureLagTerm("temperature", SplineResponse(df=4), SplineLag(0, 21, 4))

@@ -41,7 +41,7 @@ def add_report_options(p: argparse.ArgumentParser) -> None:
         type=int,
         default=None,
         metavar="N",
-        help="suppress health counts below N in the report (local disclosure rules)",
+        help="suppress health counts below N in the report's tables and figures (local disclosure rules)",
     )
     p.add_argument("--title", default=None, help="heading of the report")
 
@@ -89,7 +89,7 @@ def write_and_print(data: pd.DataFrame, args: argparse.Namespace, extra_sections
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            content = report_content(data, show_progress=True, **report)
+            content = report_content(data, show_progress=True, small_count_threshold=args.suppress_below, **report)
             path = write_content(content, args.out, args.title, args.suppress_below, extra_sections)
         finally:
             for w in caught:

@@ -22,8 +22,9 @@ from .data_quality_section import data_quality_section
 from .document import Figure, Section, Table, Text
 from .html import write_html_report
 from .lag_plots import plot_lag_response
-from .plots import plot_effects, plot_observed_fitted
+from .plots import observed_fitted_figure, plain, plot_effects
 from .report_fits import ReportFits, ReportRequest, check_request, fit_request
+from .suppression import smallest_positive
 from .tables import effects_table, format_effects
 
 __all__ = [
@@ -140,14 +141,14 @@ def _forest_figures(table: pd.DataFrame, per: float, level: float, request: Repo
         ]
         per_label = _per_text(per, exposures, request) if single else f"{per:g} units"
         ax = plot_effects(rows, labels=labels, per_label=per_label)
-        ax.set_xlabel(f"relative risk per {per_label} ({level:.0%} CI)")
-        ax.set_title(str(outcome))
+        ax.set_xlabel(plain(f"relative risk per {per_label} ({level:.0%} CI)"))
+        ax.set_title(plain(outcome))
         title = f"{outcome}: relative risks per {_per_text(per, exposures, request)} with {level:.0%} intervals"
         figures.append(Figure(title, ax.figure, f"effects_forest_{outcome}"))
     return figures
 
 
-def _main_blocks(main: Any, replaced: str) -> list[Any]:
+def _main_blocks(main: Any, replaced: str, small_count_threshold: int | None = None) -> list[Any]:
     spec = main.spec
     name = f"{spec.outcome}, {spec.exposure} ({spec.unit}), lag {spec.lag.label}"
     blocks: list[Any] = [Text(replaced or f"The main model is {name}.")]
@@ -160,9 +161,7 @@ def _main_blocks(main: Any, replaced: str) -> list[Any]:
         )
     blocks += [Text(f"Note: {note}") for note in main.notes]
     blocks += [
-        Figure(
-            f"Observed and fitted daily {spec.outcome} ({name})", plot_observed_fitted(main).figure, "observed_fitted"
-        ),
+        observed_fitted_figure(main, small_count_threshold),
         Table(
             "Days left out of the main model",
             main.drop_summary().rename_axis("reason").reset_index(),
@@ -182,7 +181,7 @@ def _lag_blocks(results: list[Any], per: float, level: float) -> list[Any]:
     blocks: list[Any] = [Table("Per-lag effects of the distributed lags", table, "lag_effects")]
     for r in distributed:
         ax = plot_lag_response(r, per=per, level=level)
-        ax.set_ylabel(f"RR per {per:g} {r.spec.unit}")
+        ax.set_ylabel(plain(f"RR per {per:g} {r.spec.unit}"))
         name = "lag_response_" + "".join(ch if ch.isalnum() else "_" for ch in r.spec.lag.label)
         title = f"{r.spec.exposure}: relative risk per {per:g} {r.spec.unit} at each lag, {r.spec.lag.label}"
         blocks.append(Figure(title, ax.figure, name))
@@ -219,11 +218,14 @@ def _asked_text(request: ReportRequest, main: Any) -> str:
 
 
 def _count_section(data: pd.DataFrame, outcomes: list[str]) -> Section:
+    """The daily counts per outcome; small counts, and totals and means resting on them, are suppressed."""
     table = Table(
         "Daily counts per outcome",
         count_summary(data, outcomes).round(2),
         "daily_counts",
-        count_columns=("total", "min", "p25", "median", "p75", "max"),
+        count_columns=("min", "p25", "median", "p75", "max"),
+        aggregate_columns=("total", "mean", "sd"),
+        smallest_counts=smallest_positive(data, outcomes),
     )
     return Section("Daily health counts", [table])
 
@@ -236,9 +238,14 @@ def _effects(fits: ReportFits, per: float, level: float) -> pd.DataFrame:
 
 
 def _sections(
-    data: pd.DataFrame, request: ReportRequest, fits: ReportFits, table: pd.DataFrame, options: dict[str, Any]
+    data: pd.DataFrame,
+    request: ReportRequest,
+    fits: ReportFits,
+    table: pd.DataFrame,
+    options: dict[str, Any],
+    threshold: int | None,
 ) -> list[Section]:
-    """Every section of the report, in order."""
+    """Every section of the report, in order (``threshold``: the small-count threshold of the figures)."""
     per, level, main, done = request.per, request.level, fits.main, fits.done
     outcomes = list(dict.fromkeys(r.spec.outcome for r in done))
     exposures = list(dict.fromkeys(r.spec.exposure for r in done))
@@ -250,7 +257,7 @@ def _sections(
         *_problem_sections(fits.failures, fits.warnings),
         _count_section(data, outcomes),
         Section("Effect estimates", [*_effects_tables(table, per, level, request), *_forest_figures(table, per, level, request)]),  # noqa: E501
-        Section("Main model", [*_main_blocks(main, fits.main_note), *_lag_blocks(main_pair, per, level)]),
+        Section("Main model", [*_main_blocks(main, fits.main_note, threshold), *_lag_blocks(main_pair, per, level)]),
         data_quality_section(
             data, [*exposures, *weather], exposures=exposures, date=options.get("date", "date"),
             units={e: request.unit_of(e) for e in exposures},
@@ -268,9 +275,14 @@ def report_content(
     per: float = 10.0,
     level: float = 0.95,
     show_progress: bool = False,
+    small_count_threshold: int | None = None,
     **model_options: Any,
 ) -> ReportContent:
-    """Fit and build the report's sections without writing anything; see :func:`write_report`."""
+    """Fit and build the report's sections without writing anything; see :func:`write_report`.
+
+    ``small_count_threshold`` decides what the figures of daily counts show (the tables are suppressed when
+    written); give the writer the same threshold.
+    """
     columns = [model_options.get(k) for k in ("date", "temperature", "humidity", "offset")]
     columns[0] = columns[0] or "date"
     request = check_request(
@@ -278,7 +290,7 @@ def report_content(
     )
     fits = fit_request(data, request, show_progress=show_progress, **model_options)
     effects = _effects(fits, request.per, request.level)
-    sections = _sections(data, request, fits, effects, model_options)
+    sections = _sections(data, request, fits, effects, model_options, small_count_threshold)
     return ReportContent(sections, effects, fits.failures, fits.warnings, fits.main)
 
 
@@ -368,7 +380,7 @@ def write_report(
     check_output_folder(out)
     content = report_content(
         data, outcomes, exposures, lags, main_lag=main_lag, units=units, per=per, level=level,
-        show_progress=show_progress, **model_options,
+        show_progress=show_progress, small_count_threshold=small_count_threshold, **model_options,
     )  # fmt: skip
     return write_content(content, out, title, small_count_threshold, extra_sections)
 

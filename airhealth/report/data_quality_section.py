@@ -13,7 +13,14 @@ from ..prep.describe import CorrelationMethod, correlation_matrix, pair_counts, 
 from ..prep.monitors import MAX_RATIO, MIN_CORRELATION, MIN_OVERLAP, monitor_agreement
 from ..prep.quality import days_lost, hourly_coverage, longest_gaps
 from .document import Figure, Section, Table, Text
-from .exposure_plots import plot_coverage, plot_exposure_series, plot_monitor_series, plot_seasonal_pattern
+from .exposure_plots import (
+    plot_count_series,
+    plot_coverage,
+    plot_exposure_series,
+    plot_monitor_series,
+    plot_seasonal_pattern,
+)
+from .suppression import counts_for_figure, smallest_positive, suppress_table
 
 __all__ = ["data_quality_section", "hourly_quality_section"]
 
@@ -26,9 +33,17 @@ def data_quality_section(
     correlation_method: CorrelationMethod = "pearson",
     title: str = "Exposure and weather data",
     date: str = "date",
+    count_columns: Sequence[str] = (),
+    suppress_below: int | None = None,
     units: Mapping[str, str] | None = None,
 ) -> Section:
     """Table 1, correlation matrix, and time-series and seasonal plots of the daily data.
+
+    Health counts among ``columns`` (named in ``count_columns``) follow the small-count rules of
+    :mod:`airhealth.report.suppression` when ``suppress_below`` is given: in Table 1 their small
+    quantiles are shown as ``<N`` and their mean, SD and IQR as ``suppressed`` if any day's count is small;
+    their series is drawn as weekly or monthly totals (or left out) and their by-month boxes, which show
+    daily counts, are left out if any daily count is small.
 
     Parameters
     ----------
@@ -43,11 +58,15 @@ def data_quality_section(
         Section title.
     date : str, default "date"
         Date column.
+    count_columns : sequence of str
+        Which of ``columns`` hold health counts.
+    suppress_below : int, optional
+        Disclosure threshold for the counts.
     units : mapping, optional
         Unit of some columns (e.g. ``{"o3": "ppb"}``): a ``unit`` column of Table 1 and the axis labels.
     """
     units = dict(units or {})
-    describe = table_one(daily, columns).rename_axis("variable").reset_index()
+    describe = _suppressed_table_one(daily, columns, count_columns, suppress_below)
     if units:
         describe.insert(1, "unit", [units.get(c, "") for c in describe["variable"]])
     corr = correlation_matrix(daily, columns, method=correlation_method).round(2)
@@ -58,7 +77,7 @@ def data_quality_section(
             f"{len(daily)} days from {dates.min():%d %B %Y} to {dates.max():%d %B %Y}. Percentiles by linear "
             "interpolation (R's default type 7); SD with n − 1; IQR = P75 − P25."
         ),
-        Table("Distribution of the daily variables", describe.round(3), name="table_one"),
+        Table("Distribution of the daily variables", describe, name="table_one"),
         Table(
             f"{correlation_method.capitalize()} correlations",
             corr.rename_axis("variable").reset_index(),
@@ -67,6 +86,9 @@ def data_quality_section(
         ),
     ]
     for column in exposures if exposures is not None else columns:
+        if column in count_columns and suppress_below is not None:
+            blocks += _count_figures(daily, column, date, suppress_below)
+            continue
         label = f"{column} ({units[column]})" if column in units else None
         series_ax = plot_exposure_series(daily, column, date=date, label=label)
         blocks.append(Figure(f"{column} over time", series_ax.figure, name=f"series_{column}"))
@@ -80,6 +102,37 @@ def data_quality_section(
             )
         )
     return Section(title, blocks)
+
+
+def _suppressed_table_one(
+    daily: pd.DataFrame, columns: list[str], count_columns: Sequence[str], threshold: int | None
+) -> pd.DataFrame:
+    """Table 1 (rounded), with the count rows' small quantiles and the aggregates hiding them suppressed."""
+    describe = table_one(daily, columns).round(3).rename_axis("variable").reset_index()
+    rows = describe["variable"].isin(list(count_columns)).to_numpy()
+    if threshold is None or not rows.any():
+        return describe
+    smallest = smallest_positive(daily, list(describe["variable"]))  # used on the count rows only
+    return suppress_table(
+        describe,
+        threshold,
+        counts=("min", "p5", "p25", "p50", "p75", "p95", "max"),
+        aggregates=("mean", "sd", "iqr"),
+        smallest=smallest,
+        rows=rows,
+    )
+
+
+def _count_figures(daily: pd.DataFrame, column: str, date: str, threshold: int) -> list[Figure]:
+    """The series of a count column under the small-count rule; its by-month boxes only if no day is small."""
+    ax = plot_count_series(daily, column, date=date, suppress_below=threshold)
+    counts = pd.Series(pd.to_numeric(daily[column], errors="coerce").to_numpy(), index=pd.to_datetime(daily[date]))
+    shown = counts_for_figure(counts, threshold)
+    figures = [Figure(f"{column} over time", ax.figure, name=f"series_{column}", note=shown.note or None)]
+    if shown.resolution == "daily":
+        season_ax = plot_seasonal_pattern(daily, column, date=date)
+        figures.append(Figure(f"{column} by month", season_ax.figure, name=f"season_{column}"))
+    return figures
 
 
 def hourly_quality_section(

@@ -30,10 +30,12 @@ class Text:
 
 @dataclass(frozen=True)
 class Table:
-    """A table; ``name`` is the file stem used when the table is also written as CSV.
+    """A table; ``name`` names the CSV file the table is also written to (made safe by the writer).
 
-    ``count_columns`` lists columns holding health counts, which writers suppress below the user's
-    disclosure threshold.
+    Health counts are suppressed by writers below the user's disclosure threshold, by the rules of
+    :mod:`airhealth.report.suppression`: ``count_columns`` hold counts (each cell judged alone);
+    ``aggregate_columns`` hold totals, means or SDs of counts, judged by ``smallest_counts`` (per row, the
+    smallest positive count they were computed from; when empty, aggregates are always suppressed).
     """
 
     title: str
@@ -41,12 +43,14 @@ class Table:
     name: str
     note: str | None = None
     count_columns: tuple[str, ...] = ()
+    aggregate_columns: tuple[str, ...] = ()
+    smallest_counts: tuple[float, ...] = ()
     display: bool = True  # False: written as CSV and linked, not shown in the page
 
 
 @dataclass(frozen=True)
 class Figure:
-    """A matplotlib figure; ``name`` is the file stem of its PNG."""
+    """A matplotlib figure; ``name`` names its PNG file (made safe by the writer)."""
 
     title: str
     figure: Any

@@ -13,8 +13,10 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 
 from ..errors import DataError
+from .plots import plain
+from .suppression import counts_for_figure
 
-__all__ = ["plot_coverage", "plot_exposure_series", "plot_monitor_series", "plot_seasonal_pattern"]
+__all__ = ["plot_count_series", "plot_coverage", "plot_exposure_series", "plot_monitor_series", "plot_seasonal_pattern"]
 
 _MONTHS = ["J", "F", "M", "A", "M", "J", "J", "A", "S", "O", "N", "D"]
 
@@ -59,7 +61,31 @@ def plot_exposure_series(
         smooth = series.rolling(smooth_days, center=True, min_periods=max(1, smooth_days // 2)).mean()
         ax.plot(smooth.index, smooth.to_numpy(), lw=1.6, color="C0", label=f"{smooth_days}-day mean")
         ax.legend(loc="upper right", frameon=False, fontsize="small")
-    ax.set_ylabel(label or column)
+    ax.set_ylabel(plain(label or column))
+    ax.set_xlabel("date")
+    return ax
+
+
+def plot_count_series(
+    daily: pd.DataFrame,
+    column: str,
+    *,
+    suppress_below: int | None,
+    date: str = "date",
+    ax: Axes | None = None,
+) -> Axes:
+    """Daily health counts over time under the small-count rule of :mod:`airhealth.report.suppression`.
+
+    Daily values when none is from 1 to ``suppress_below − 1``; else weekly or monthly totals; else nothing
+    but a title saying the counts are withheld. No running mean is drawn (it would be another aggregate).
+    """
+    shown = counts_for_figure(_series(daily, column, date), suppress_below)
+    ax = _axes(ax)
+    if shown.resolution != "omitted":
+        ax.plot(shown.observed.index, shown.observed.to_numpy(), lw=0.6, color="0.35", label=shown.resolution)
+    per = {"daily": "daily", "weekly": "weekly total", "monthly": "monthly total"}.get(shown.resolution, "")
+    ax.set_title(plain(f"{column}: {per}" if per else f"{column}: counts withheld (below {suppress_below})"))
+    ax.set_ylabel(plain(column))
     ax.set_xlabel("date")
     return ax
 
@@ -78,9 +104,9 @@ def plot_monitor_series(
     ax = _axes(ax)
     for i, (name, part) in enumerate(daily.groupby(monitor, sort=True)):
         series = _series(part, value, date).asfreq("D")
-        ax.plot(series.index, series.to_numpy(), lw=0.7, color=f"C{i % 10}", label=str(name))
+        ax.plot(series.index, series.to_numpy(), lw=0.7, color=f"C{i % 10}", label=plain(name))
     ax.legend(loc="upper right", frameon=False, fontsize="small", ncols=3)
-    ax.set_ylabel(value)
+    ax.set_ylabel(plain(value))
     ax.set_xlabel("date")
     return ax
 
@@ -106,7 +132,7 @@ def plot_seasonal_pattern(
     ax.set_xticks(range(1, 13), _MONTHS)
     ax.set_xlim(0.3, 12.7)
     ax.set_xlabel("month")
-    ax.set_ylabel(label or column)
+    ax.set_ylabel(plain(label or column))
     ax.legend(loc="upper right", frameon=False, fontsize="small")
     return ax
 
@@ -124,7 +150,7 @@ def plot_coverage(clean: pd.DataFrame, *, ax: Axes | None = None) -> Axes:
     share = counts.to_numpy() / hours_in_month
     ax = _axes(ax, size=(8.0, 0.5 + 0.45 * len(counts)))
     image = ax.imshow(share, aspect="auto", vmin=0, vmax=1, cmap="viridis", interpolation="nearest")
-    ax.set_yticks(range(len(counts)), [str(m) for m in counts.index])
+    ax.set_yticks(range(len(counts)), [plain(m) for m in counts.index])
     step = max(1, len(months) // 12)
     ax.set_xticks(range(0, len(months), step), [str(p) for p in months[::step]], rotation=45, ha="right")
     ax.figure.colorbar(image, ax=ax, label="share of hours present")

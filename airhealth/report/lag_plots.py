@@ -19,7 +19,7 @@ import numpy as np
 
 from .._choices import check_choice
 from ..model.lag_predictions import exposure_response, find_lag_term, lag_response, minimum_risk_exposure
-from .plots import new_axes
+from .plots import new_axes, plain
 
 __all__ = ["plot_exposure_lag_surface", "plot_exposure_response", "plot_lag_response"]
 
@@ -58,7 +58,7 @@ def plot_lag_response(
         ref = table.attrs.get("reference", reference)
         ax.set_ylabel(f"RR at {value:g} vs {ref:g}" if ref is not None else f"RR at {value:g}")
     ax.set_xlabel("lag (days)")
-    ax.set_title(f"{result.spec.outcome} ~ {lt.exposure}: lag-response ({lt.basis.lag.label})")
+    ax.set_title(plain(f"{result.spec.outcome} ~ {lt.exposure}: lag-response ({lt.basis.lag.label})"))
     return ax
 
 
@@ -108,9 +108,9 @@ def plot_exposure_response(
     if show_minimum and not lt.basis.response.is_linear and lt.summary is not None:
         mmt = minimum_risk_exposure(result, term=term, level=level)
         ax.axvline(mmt.exposure, color="C3", lw=0.9, ls=":", label=f"lowest risk {mmt.exposure:.3g}")
-    ax.set_xlabel(lt.exposure)
+    ax.set_xlabel(plain(lt.exposure))
     ax.set_ylabel(f"RR, all lags ({lt.basis.lag.label})")
-    ax.set_title(f"{result.spec.outcome} ~ {lt.exposure}: cumulative exposure-response")
+    ax.set_title(plain(f"{result.spec.outcome} ~ {lt.exposure}: cumulative exposure-response"))
     ax.legend(loc="upper center", frameon=False, fontsize="small")
     return ax
 
@@ -154,8 +154,8 @@ def plot_exposure_lag_surface(
         ax.contour(lags, exposure, rr, levels=[1.0], colors="0.3", linewidths=0.8)
         ax.figure.colorbar(filled, ax=ax, label="RR")
     ax.set_xlabel("lag (days)")
-    ax.set_ylabel(lt.exposure)
-    ax.set_title(f"{result.spec.outcome} ~ {lt.exposure}: exposure-lag-response")
+    ax.set_ylabel(plain(lt.exposure))
+    ax.set_title(plain(f"{result.spec.outcome} ~ {lt.exposure}: exposure-lag-response"))
     return ax
 
 

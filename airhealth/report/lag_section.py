@@ -143,7 +143,7 @@ def lag_structure_section(
         blocks.append(Table("Per-lag effects of the distributed lags", _per_lag_table(dist, per), "lag_effects"))
     for result in dist:
         ax = plot_lag_response(result, per=per)
-        name = "lag_response_" + "".join(ch if ch.isalnum() else "_" for ch in result.spec.lag.label)
+        name = f"lag_response_{result.spec.lag.label}"  # made a safe file name by the writer
         blocks.append(
             Figure(f"{exposure}: relative risk per {per:g} at each lag, {result.spec.lag.label}", ax.figure, name)
         )

@@ -14,7 +14,7 @@ import pandas as pd
 
 from ..model.result import SUMMARY_COLUMNS
 
-__all__ = ["effects_table", "format_effects", "result_html", "suppress_small_counts"]
+__all__ = ["effects_table", "format_effects", "result_html"]
 
 EFFECT_COLUMNS = [c for c in SUMMARY_COLUMNS if c not in ("coef", "se")]
 
@@ -41,22 +41,6 @@ def format_effects(table: pd.DataFrame, digits: int = 3) -> pd.DataFrame:
             out[c] = table[c].map(lambda v: f"{v:.2f}")
     if "n_days" in table:
         out["days"] = table["n_days"]
-    return out
-
-
-def suppress_small_counts(frame: pd.DataFrame, columns: Iterable[str], threshold: int | None) -> pd.DataFrame:
-    """Replace counts in ``columns`` below ``threshold`` (but above 0) by the text ``"<threshold"``.
-
-    The threshold is the user's, set by local disclosure rules; ``None`` disables suppression.
-    """
-    if threshold is None:
-        return frame
-    out = frame.copy()
-    for col in columns:
-        if col in out:
-            values = out[col]
-            small = values.notna() & (values > 0) & (values < threshold)
-            out[col] = values.astype(object).where(~small, f"<{threshold}")
     return out
 
 
