@@ -108,8 +108,10 @@ def test_non_integer_counts_are_named_with_their_date(three_years):
 
 
 def test_text_counts_are_rejected(three_years):
+    # numbers stored as text are read as numbers (as read_csv would); other text is named with its date
     data = three_years.astype({"deaths_all": str})
-    with pytest.raises(DataError, match=r"outcome column 'deaths_all' is not numeric"):
+    data.loc[3, "deaths_all"] = "twelve"
+    with pytest.raises(DataError, match=r"'deaths_all' must be numeric but holds text .*'twelve', on 2010-01-04"):
         fit(data)
 
 

@@ -27,8 +27,10 @@ ROOT = Path(__file__).resolve().parents[1]
 PHRASES = (
     "MovingAverage(min_count=...)",
     "MovingAverage(first, last, min_count=1)",
-    "Restrict the data to the period",
-    "lower trend_df_per_year",
+    "trend_df_per_year",
+    "temperature_df",
+    "theta_method=",
+    ".dt.month",
     "--duplicates",
 )
 
@@ -49,6 +51,14 @@ def city_csv(city: pd.DataFrame, tmp_path_factory: pytest.TempPathFactory) -> Pa
 def _json(capsys: pytest.CaptureFixture, path: Path, *extra: str) -> dict:
     capsys.readouterr()
     code = main(["fit", str(path), "--outcome", "deaths_all", "--exposure", "pm25", "--json", *extra])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    return json.loads(captured.out)
+
+
+def _json_args(capsys: pytest.CaptureFixture, args: list[str]) -> dict:
+    capsys.readouterr()
+    code = main(args)
     captured = capsys.readouterr()
     assert code == 0, captured.err
     return json.loads(captured.out)
@@ -136,7 +146,8 @@ def test_every_remedy_has_an_option_in_fit_and_report(command):
         flags = re.findall(r"--[a-z-]+", spelling)
         assert all(f in options for f in flags), (phrase, spelling)
     for flag in ("--start", "--end", "--na-values", "--date-format", "--encoding", "--min-count", "--confidence",
-                 "--unit", "--duplicates", "--sep", "--decimal"):  # fmt: skip
+                 "--unit", "--duplicates", "--sep", "--decimal", "--months", "--temperature-df",
+                 "--theta-method"):  # fmt: skip
         assert flag in options
 
 
@@ -153,7 +164,7 @@ def test_messages_in_the_tree_that_name_a_python_remedy_get_a_command_line_spell
                 found.append(phrase)
                 if not phrase.startswith("--"):
                     assert "[on the command line:" in with_command_line_remedy(f"... {phrase} ..."), phrase
-    assert {"MovingAverage(min_count=...)", "Restrict the data to the period", "--duplicates"} <= set(found)
+    assert {"MovingAverage(first, last, min_count=1)", ".dt.month", "temperature_df", "--duplicates"} <= set(found)
 
 
 def test_fit_error_names_the_command_line_remedy(city, tmp_path, capsys):
@@ -177,3 +188,29 @@ def test_na_values_leave_the_outcome_counts_alone(city, tmp_path, capsys):
     record = _json(capsys, path, "--na-values", "0", "--lag", "0")
     expected = data.assign(pm25=data["pm25"].where(data.index != 7))
     _same(record, airhealth.fit(expected, outcome="deaths_all", exposure="pm25", lag="0"))
+
+
+def test_summer_only_exposure_points_at_months_and_months_fits(city, tmp_path, capsys):
+    summer = city.assign(o3=city["o3"].where(city["date"].dt.month.between(4, 9)))
+    path = tmp_path / "summer.csv"
+    summer.to_csv(path, index=False, date_format="%Y-%m-%d")
+    args = ["fit", str(path), "--outcome", "deaths_all", "--exposure", "o3", "--lag", "0"]
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert "measured only in" in err and "[on the command line: --trend-df-per-year; --months FIRST-LAST]" in err
+    record = _json_args(capsys, [*args, "--months", "4-9", "--trend-df-per-year", "3.5", "--json"])
+    kept = summer[summer["date"].dt.month.between(4, 9)]
+    with pytest.warns(airhealth.DataWarning):  # the winters are calendar gaps
+        expected = airhealth.fit(kept, outcome="deaths_all", exposure="o3", lag="0", trend_df_per_year=3.5)
+    _same(record, expected)
+
+
+def test_na_values_take_codes_separated_by_spaces_as_the_messages_write_them(city, tmp_path, capsys):
+    coded = city.copy()
+    coded.loc[[10, 20], "pm25"] = -999
+    coded.loc[30, "pm25"] = -99
+    path = tmp_path / "two_codes.csv"
+    coded.to_csv(path, index=False, date_format="%Y-%m-%d")
+    record = _json(capsys, path, "--na-values", "-999", "-99")
+    clean = city.assign(pm25=city["pm25"].where(~city.index.isin([10, 20, 30])))
+    _same(record, airhealth.fit(clean, outcome="deaths_all", exposure="pm25"))

@@ -26,11 +26,11 @@ SAME_FIT = 1e-9
 
 @pytest.fixture(scope="module")
 def city() -> pd.DataFrame:
-    """Three invented years; ``broken`` is never measured, ``pm10`` is measured every third day only."""
+    """Three invented years; ``broken`` is never measured, ``pm10`` is measured every other day only."""
     tables = simulate_city(11, "2015-01-01", "2017-12-31")
     data = airhealth.align_daily(tables["counts"], tables["pollution"], tables["weather"])
     data["broken"] = np.nan
-    data.loc[data.index % 3 != 0, "pm10"] = np.nan
+    data.loc[data.index % 2 != 0, "pm10"] = np.nan
     return data
 
 
@@ -66,7 +66,7 @@ def test_report_holds_exactly_the_requested_outcomes_exposures_and_lags(report_d
     assert set(table["lag"]) == {"0", "2", "0-1", "dl0-3"}
     complete = table[table["exposure"] != "pm10"]
     assert len(complete) == 2 * 2 * 4
-    # pm10 every third day: the single days fit, the windows needing consecutive days do not
+    # pm10 every other day: the single days (0 and 2) fit, the windows needing consecutive days do not
     assert set(table.loc[table["exposure"] == "pm10", "lag"]) == {"0", "2"}
     assert (table["per"] == 5).all()
 
@@ -238,9 +238,9 @@ def test_aliased_columns_and_notes_of_the_main_model_are_shown(city: pd.DataFram
     assert not [b for b in _main_blocks(result, "") if isinstance(b, Text) and "aliased" in b.text]
     cls, args = result.__reduce__()  # rebuilt through the constructor, whose last two arguments these are
     shown = cls(*args[:-2], ("spline(time)12", "spline(time)13"), ("fell back to Poisson",))
-    texts = [b.text for b in _main_blocks(shown, "") if isinstance(b, Text)]
+    texts = [b.text for b in _main_blocks(shown, "", None, [shown]) if isinstance(b, Text)]
     assert any("dropped (aliased), as R's glm does: spline(time)12, spline(time)13." in t for t in texts)
-    assert "Note: fell back to Poisson" in texts
+    assert "Note (deaths_all ~ pm25): fell back to Poisson" in texts
 
 
 def test_warnings_are_listed_in_the_report(city: pd.DataFrame, tmp_path: Path) -> None:

@@ -54,13 +54,6 @@ def test_intermittent_exposure_with_a_window_explains_what_to_do(data: pd.DataFr
         airhealth.fit(one_in_three, "deaths_all", "pm25", lag="0-1")
 
 
-def test_a_long_exposure_gap_is_named_instead_of_collinear_columns(data: pd.DataFrame) -> None:
-    gap = data.copy()
-    gap.loc[5:900, "pm25"] = np.nan
-    with pytest.raises(DataError, match=r"from 2010-01-06 to 2012-06-20 cannot be used.*trend_df_per_year"):
-        airhealth.fit(gap, "deaths_all", "pm25", temperature="temperature")
-
-
 @pytest.mark.parametrize("role", ["temperature", "humidity", "confounders"])
 def test_the_exposure_cannot_also_be_a_confounder(data: pd.DataFrame, role: str) -> None:
     value = ["pm25"] if role == "confounders" else "pm25"

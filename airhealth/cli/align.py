@@ -40,7 +40,7 @@ def register(sub: Any) -> None:
     g.add_argument("--decimal", default=".", help='decimal mark (default "."; e.g. ",")')
     g.add_argument("--encoding", default="utf-8", help="text encoding (default utf-8; e.g. latin-1)")
     g.add_argument("--date-format", metavar="FMT", help="format of the dates if not ISO, e.g. %%d/%%m/%%Y, or 'excel'")
-    g.add_argument("--na-values", metavar="LIST", help="comma-separated values meaning missing, e.g. -999,<LOD")
+    g.add_argument("--na-values", nargs="+", metavar="CODE", help="values meaning missing, e.g. -999 '<LOD'")
     p.set_defaults(func=run)
 
 

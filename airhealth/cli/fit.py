@@ -86,8 +86,8 @@ def run(args: argparse.Namespace) -> int:
             f"dispersion {result.dispersion:.3f}, QAIC {result.qaic:.1f}, {result.n_days} days used, "
             f"{len(result.dropped)} dropped"
         )
-        for note in result.notes:
-            print(f"note: {note}")
-        if result.aliased:
-            print(f"aliased (dropped) columns: {', '.join(result.aliased)}")
+        warned = {str(w.message) for w in caught}
+        for note in result.notes:  # how the fit was obtained (e.g. a negative binomial fitted as Poisson)
+            if note not in warned:
+                print(f"note: {note}")
     return 0

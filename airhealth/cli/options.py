@@ -16,7 +16,7 @@ import pandas as pd
 
 from ..errors import SpecificationError
 from ..model.lag_structures import LagStructure, MovingAverage, parse_lag
-from ..prep.align import merge_duplicate_days, restrict_period
+from ..prep.align import merge_duplicate_days, restrict_months, restrict_period
 from ..prep.validate import parse_dates, require_columns
 from .tables import check_numeric_columns, read_table
 
@@ -46,8 +46,9 @@ def add_reading_options(p: argparse.ArgumentParser) -> None:
     )
     g.add_argument(
         "--na-values",
-        metavar="LIST",
-        help="comma-separated values meaning missing, e.g. -999,<LOD (besides empty cells and NA); "
+        nargs="+",
+        metavar="CODE",
+        help="values meaning missing, e.g. --na-values -999 '<LOD' (or -999,<LOD), besides empty cells and NA; "
         "codes that could be a count (0, 99) are not applied to outcome columns",
     )
     g.add_argument(
@@ -58,6 +59,11 @@ def add_reading_options(p: argparse.ArgumentParser) -> None:
     )
     g.add_argument("--start", metavar="DATE", help="restrict the period: first day to use (ISO, e.g. 2012-01-01)")
     g.add_argument("--end", metavar="DATE", help="restrict the period: last day to use (ISO, e.g. 2019-12-31)")
+    g.add_argument(
+        "--months",
+        metavar="LIST",
+        help="keep only these calendar months of each year, e.g. 4-9 or 5,6,7,8 (a season-restricted analysis)",
+    )
 
 
 def add_model_options(p: argparse.ArgumentParser) -> None:
@@ -66,8 +72,13 @@ def add_model_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--temperature", default=None, metavar="COL", help="column of daily mean temperature (default none)")
     g.add_argument("--humidity", default=None, metavar="COL", help="column of relative humidity (spline, 3 df)")
     g.add_argument("--trend-df-per-year", type=float, default=7.0, help="df per year of the time spline (default 7)")
+    g.add_argument("--temperature-df", type=int, default=6, help="df of the same-day temperature spline (default 6)")
+    g.add_argument(
+        "--temperature-lag-df", type=int, default=6, help="df of the spline of mean temperature, lags 1-3 (default 6)"
+    )
     g.add_argument("--holidays", default=None, metavar="COUNTRY", help="ISO country code for a holiday indicator")
     g.add_argument("--family", default="quasipoisson", help="quasipoisson (default), poisson or negbin")
+    g.add_argument("--theta-method", default="ml", help="negative binomial theta: ml (default) or moments")
     g.add_argument("--seasonality", default="spline", help="spline (default) or fourier")
     g.add_argument(
         "--min-count",
@@ -90,13 +101,15 @@ def add_model_options(p: argparse.ArgumentParser) -> None:
     )
 
 
-def parse_na_values(text: str | None) -> tuple[list[str], tuple[Any, ...]]:
-    """``--na-values`` → (texts for the CSV reader, values for ``ModelSpec.na_values``: numbers as floats)."""
-    if not text:
+def parse_na_values(given: str | Sequence[str] | None) -> tuple[list[str], tuple[Any, ...]]:
+    """``--na-values`` (codes separated by spaces or commas) → (texts for the CSV reader, values: numbers as
+    floats, other codes as text)."""
+    if not given:
         return [], ()
-    texts = [t.strip() for t in text.split(",") if t.strip()]
+    items = [given] if isinstance(given, str) else list(given)
+    texts = [t.strip() for item in items for t in item.split(",") if t.strip()]
     if not texts:
-        raise SpecificationError(f"--na-values {text!r} names no value; give e.g. --na-values -999,<LOD.")
+        raise SpecificationError(f"--na-values {' '.join(items)!r} names no value; give e.g. --na-values -999 '<LOD'.")
     values: list[Any] = []
     for t in texts:
         try:
@@ -186,17 +199,40 @@ def read_daily(args: argparse.Namespace, columns: Sequence[str | None], outcomes
     frame = merge_duplicate_days(frame, args.duplicates, args.date, what)
     if args.start or args.end:
         frame = restrict_period(frame, args.start, args.end, args.date, what)
+    if args.months:
+        frame = restrict_months(frame, parse_months(args.months), args.date, what)
     return frame
+
+
+def parse_months(text: str) -> list[int]:
+    """``--months 4-9`` or ``--months 5,6,7`` → calendar month numbers."""
+    months: list[int] = []
+    for part in (p.strip() for p in text.split(",") if p.strip()):
+        first, sep, last = part.partition("-")
+        try:
+            lo, hi = int(first), int(last) if sep else int(first)
+        except ValueError:
+            lo, hi = 0, 0
+        if not (1 <= lo <= hi <= 12):
+            raise SpecificationError(f"--months {text!r}: use month numbers 1-12, e.g. --months 4-9 or 5,6,7.")
+        months += range(lo, hi + 1)
+    if not months:
+        raise SpecificationError(f"--months {text!r} names no month; use e.g. --months 4-9.")
+    return sorted(set(months))
 
 
 def model_options(args: argparse.Namespace) -> dict[str, Any]:
     """The :class:`~airhealth.model.spec.ModelSpec` options of the shared command-line options."""
-    _, na_values = parse_na_values(args.na_values)
+    _, codes = parse_na_values(args.na_values)
+    na_values = tuple(v for v in codes if not _could_be_count(v))  # count-like codes were applied when reading
     return {
         "date": args.date,
         "temperature": args.temperature,
         "humidity": args.humidity,
         "trend_df_per_year": args.trend_df_per_year,
+        "temperature_df": args.temperature_df,
+        "temperature_lag_df": args.temperature_lag_df,
+        "theta_method": args.theta_method,
         "holidays": args.holidays,
         "family": args.family,
         "seasonality": args.seasonality,

@@ -28,7 +28,15 @@ import pandas as pd
 from .._progress import progress
 from .._threads import single_threaded_blas
 from ..errors import DataError, SpecificationError
-from .design import ConfounderBlock, Design, build_design, cached_confounders, model_frame, usable_days
+from .design import (
+    ConfounderBlock,
+    Design,
+    build_design,
+    cached_confounders,
+    leaves_columns_empty,
+    model_frame,
+    usable_days,
+)
 from .fitting import fit_design, result_from_fit
 from .grid_engine import ConfounderFit, fit_confounders, fit_with_exposure
 from .grid_inference import ExposureFit, fit_exposure_only
@@ -153,7 +161,7 @@ def compare_results(
         designs = [_restrict(d, keep) for d in designs]
     pairs = list(zip(grid.specs, designs, strict=True))
     shown = progress(pairs, label="lag structures", enabled=show_progress)
-    if not grid.shared:
+    if not grid.shared or any(d.aliased for d in designs):  # aliased confounders: one design per structure
         return [result_from_fit(design, spec, fit_design(design, spec)) for spec, design in shown]
     with single_threaded_blas():
         base, rows = _confounder_fit(grid)
@@ -236,6 +244,9 @@ def compare(
     if common_days:
         keep = _common([used for _, used in structures], grid)
         structures = [(exposure, keep) for exposure, _ in structures]
+    if any(leaves_columns_empty(grid.confounders, used) for _, used in structures):  # a long gap: aliasing
+        results = compare_results(data, lags, show_progress=show_progress, common_days=common_days, **model_options)
+        return pd.DataFrame([r.to_dict(per=per, level=level) for r in results])[COMPARE_COLUMNS]
     rows_out = []
     with single_threaded_blas():
         base, rows = _confounder_fit(grid)

@@ -15,11 +15,15 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..errors import DataError, SpecificationError
+from .._warn import warn_user
+from ..errors import DataError, DataWarning, SpecificationError
 from ..prep.align import prepare_daily
+from ..prep.degenerate import check_empty, check_usable_days
+from ..prep.guards import ColumnRoles, check_values, clean_values
 from ..prep.validate import check_counts, check_finite, check_not_all_missing, require_columns
+from .aliasing import aliased_columns, describe_aliased
 from .spec import ModelSpec
-from .terms import TermBlock
+from .terms import Categorical, TermBlock
 
 __all__ = [
     "ConfounderBlock",
@@ -28,6 +32,8 @@ __all__ = [
     "build_design",
     "cached_confounders",
     "clear_cache",
+    "column_roles",
+    "leaves_columns_empty",
     "model_frame",
     "usable_days",
 ]
@@ -76,26 +82,54 @@ class Design:
     exposure_values: np.ndarray  # exposure columns on the full calendar
     exposure_raw: np.ndarray  # the daily exposure series on the full calendar
     lag: Any = None  # the lag structure as fitted (an exposure-lag basis bound to the exposure), if it differs
+    aliased: tuple[str, ...] = ()  # confounder columns left out: no support on the days used (aliasing)
+    notes: tuple[str, ...] = ()  # plain-language notes for the result (why columns were aliased)
 
     @property
     def n_confounder_columns(self) -> int:
         return self.exposure_slice.start
 
 
+def column_roles(spec: ModelSpec) -> ColumnRoles:
+    """The roles of the columns ``spec`` reads, for the value guards of :mod:`airhealth.prep.guards`."""
+    text_columns = {c for t in spec.confounder_terms() if isinstance(t, Categorical) for c in t.inputs}
+    return ColumnRoles(
+        date=spec.date,
+        outcome=spec.outcome,
+        exposure=spec.exposure,
+        unit=spec.unit,
+        numeric=tuple(c for c in spec.columns_used() if c not in text_columns),
+        temperature=spec.temperature,
+        humidity=spec.humidity,
+        no_codes=(spec.offset,) if spec.offset else (),
+    )
+
+
 def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
     """Validate ``data`` for ``spec`` and return a copy on a complete daily calendar.
 
-    Checks the columns exist, dates parse and are daily, the outcome holds whole non-negative counts, and
-    neither outcome nor exposure is entirely missing. The caller's frame is not modified.
+    The single validation entry of every front end (``fit``, ``compare``, sweeps, reports, the command
+    line). In order: the columns exist and the table has rows; dates parse and are daily; ``spec.na_values``
+    become missing in every column the model reads and text columns become numbers
+    (:func:`airhealth.prep.guards.clean_values`, which also refuses common missing-value codes such as -999
+    left in a series); the outcome holds whole non-negative counts; neither outcome nor exposure is entirely
+    missing; no value is infinite; the exposure is plausible for its pollutant and unit, temperatures are
+    in °C and humidity in %; the outcome has events and varies, and the exposure varies and is not
+    measured in one season only (:func:`airhealth.prep.guards.check_values`). The caller's frame is not
+    modified.
     """
     require_columns(data, [spec.date, *spec.columns_used()], "data")
+    check_empty(data)
     frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date)
+    roles = column_roles(spec)
+    frame = clean_values(frame, roles, spec.na_values)
     check_not_all_missing(frame[spec.outcome], spec.outcome, "outcome")
     check_counts(frame[spec.outcome], spec.outcome, pd.DatetimeIndex(frame[spec.date]))
     check_not_all_missing(frame[spec.exposure], spec.exposure, "exposure")
     if not pd.api.types.is_numeric_dtype(frame[spec.exposure]):
         raise DataError(f"exposure column {spec.exposure!r} is not numeric (dtype {frame[spec.exposure].dtype}).")
     check_finite(frame, spec.columns_used(), pd.DatetimeIndex(frame[spec.date]))
+    check_values(frame, roles)
     max_lag = spec.lag.max_lag
     if max_lag >= len(frame) - 1:
         raise SpecificationError(
@@ -202,42 +236,53 @@ def usable_days(
     return used
 
 
-def _longest_unused_run(calendar: pd.DatetimeIndex, used: np.ndarray) -> tuple[pd.Timestamp, pd.Timestamp, int]:
+def _longest_unused_run(used: np.ndarray) -> int:
     edges = np.diff(np.r_[0, (~used).astype(np.int8), 0])
-    starts, ends = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
-    i = int(np.argmax(ends - starts))
-    return calendar[starts[i]], calendar[ends[i] - 1], int(ends[i] - starts[i])
+    return int(np.max(np.flatnonzero(edges == -1) - np.flatnonzero(edges == 1), initial=0))
 
 
-def _check_supported_columns(
-    matrix: np.ndarray,
-    names: tuple[str, ...],
-    conf: ConfounderBlock,
-    calendar: pd.DatetimeIndex,
-    used: np.ndarray,
-    dropped: pd.DataFrame,
-) -> None:
-    """Raise if confounder columns are zero on every usable day (a long run of unusable days).
+def leaves_columns_empty(conf: ConfounderBlock, used: np.ndarray) -> bool:
+    """Whether the days ``used`` leave some confounder column zero on all of them (columns to alias).
 
-    Spline columns whose support lies inside a long gap (e.g. months without exposure data) cannot be
-    estimated; the engine would report them as collinear, which a user cannot act on.
+    Checked only after a run of at least ``MIN_GAP_CHECKED`` unusable days, as :func:`build_design` does;
+    paths that share one confounder fit across structures use the plain path when this is true.
     """
-    if used.all():
-        return
-    first, last, length = _longest_unused_run(calendar, used)
-    if length < MIN_GAP_CHECKED:  # no spline column's support fits in a shorter run of unused days
-        return
-    k = conf.matrix.shape[1]
-    empty = np.flatnonzero(~np.any(matrix[:, 1:k] != 0, axis=0)) + 1
-    if not empty.size:
-        return
-    gap = dropped[(dropped["date"] >= first) & (dropped["date"] <= last)]["reason"].value_counts()
-    why = ", ".join(f"{r}: {c}" for r, c in gap.head(3).items())
-    shown = ", ".join(repr(names[j]) for j in empty[:4]) + (f" and {empty.size - 4} more" if empty.size > 4 else "")
-    raise DataError(
-        f"{empty.size} confounder column(s) ({shown}) are zero on every usable day: the {length} days from "
-        f"{first:%Y-%m-%d} to {last:%Y-%m-%d} cannot be used ({why}). Restrict the data to the period with "
-        "complete data, or lower trend_df_per_year."
+    if used.all() or _longest_unused_run(used) < MIN_GAP_CHECKED:
+        return False
+    return not np.all(np.any(conf.matrix[used] != 0, axis=0))
+
+
+def _alias_confounders(
+    block: np.ndarray, conf: ConfounderBlock, calendar: pd.DatetimeIndex, used: np.ndarray, reasons: np.ndarray
+) -> tuple[np.ndarray, str | None]:
+    """Indices of confounder columns the days used cannot estimate, and the warning text (None if none).
+
+    ``block`` is the confounder block on the days used. When a run of at least ``MIN_GAP_CHECKED``
+    unusable days leaves some column zero on every day used, the R ``glm.fit`` rule of
+    :func:`~airhealth.model.aliasing.aliased_columns` finds those columns and any other column the days
+    used make an exact combination of earlier ones. Other rank problems are named by the engine.
+    """
+    none = np.array([], dtype=int)
+    if used.all() or _longest_unused_run(used) < MIN_GAP_CHECKED or np.all(np.any(block != 0, axis=0)):
+        return none, None
+    aliased = aliased_columns(block)
+    names = [conf.column_names[j] for j in aliased]
+    return aliased, describe_aliased(names, conf.matrix[:, aliased], calendar, used, reasons)
+
+
+def _too_few_days_message(n_used: int, p: int, dropped: pd.DataFrame) -> str:
+    counts = dropped["reason"].value_counts()
+    detail = "; ".join(f"{k}: {v}" for k, v in counts.head(3).items())
+    return (
+        f"too few usable days ({n_used}) for a model with {p} parameters"
+        + (f" (days dropped — {detail})" if detail else "")
+        + "; use a longer series, fewer df per year or fewer terms."
+        + (
+            " Lags over several days need consecutive exposure days: with intermittent monitoring (e.g. "
+            "every third day) use single-day lags or MovingAverage(first, last, min_count=1)."
+            if (dropped["reason"] == EXPOSURE_IN_WINDOW).any()
+            else ""
+        )
     )
 
 
@@ -246,6 +291,13 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
 
     Rows missing the outcome, any exposure lag or any confounder are left out and listed in ``dropped``
     with the reason (the outcome first, then the exposure, then the first confounder term missing).
+    Confounder columns that the days used leave without support (a long gap) are left out as aliased,
+    as R's ``glm`` does (:mod:`airhealth.model.aliasing`), listed in ``aliased`` and warned about.
+
+    Warns
+    -----
+    DataWarning
+        When confounder columns are aliased: which, and the unusable days that hold them.
     """
     conf = confounders if confounders is not None else cached_confounders(frame, spec)
     raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
@@ -261,25 +313,26 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     names = conf.column_names + tuple(lag.column_names(spec.exposure))
     p = len(names)
     n_used = int(used.sum())
-    if n_used <= p:
-        counts = dropped["reason"].value_counts()
-        detail = "; ".join(f"{k}: {v}" for k, v in counts.head(3).items())
-        raise DataError(
-            f"too few usable days ({n_used}) for a model with {p} parameters"
-            + (f" (days dropped — {detail})" if detail else "")
-            + "; use a longer series, fewer df per year or fewer terms."
-            + (
-                " Lags over several days need consecutive exposure days: with intermittent monitoring (e.g. "
-                "every third day) use single-day lags or MovingAverage(first, last, min_count=1)."
-                if (dropped["reason"] == EXPOSURE_IN_WINDOW).any()
-                else ""
-            )
-        )
+    check_usable_days(
+        y,
+        raw,
+        used,
+        p,
+        calendar,
+        spec.outcome,
+        spec.exposure,
+        too_few=lambda: _too_few_days_message(n_used, p, dropped),
+    )
     matrix = np.empty((n_used, p), order="F")  # column-major: the engine's syrk is fastest on it
     k = conf.matrix.shape[1]
     matrix[:, :k] = conf.matrix[used]
     matrix[:, k:] = exposure[used]
-    _check_supported_columns(matrix, names, conf, calendar, used, dropped)
+    aliased, why = _alias_confounders(matrix[:, :k], conf, calendar, used, reasons)
+    if aliased.size:
+        warn_user(why, DataWarning)
+        keep = np.setdiff1d(np.arange(p), aliased)
+        matrix, names = np.asfortranarray(matrix[:, keep]), tuple(names[j] for j in keep)
+        k, p = k - aliased.size, keep.size
     return Design(
         matrix=matrix,
         response=y[used],
@@ -293,4 +346,6 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         exposure_values=exposure,
         exposure_raw=raw,
         lag=None if lag is spec.lag else lag,
+        aliased=tuple(conf.column_names[j] for j in aliased),
+        notes=() if why is None else (why,),
     )

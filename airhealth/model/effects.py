@@ -78,6 +78,10 @@ class Effect:
         )
 
 
+#: Largest |log relative risk| (with its interval) reported; exp(700) is near the largest double.
+MAX_LOG_RR = 700.0
+
+
 def relative_risk(
     coef: float,
     se: float,
@@ -100,6 +104,13 @@ def relative_risk(
     if not np.isfinite(se) or se < 0:
         raise SpecificationError(f"standard error must be finite and >= 0, got {se!r}.")
     z = normal_quantile(level)
+    if not abs(per) * (abs(coef) + z * se) < MAX_LOG_RR:  # also catches a non-finite coefficient
+        name = f" of {exposure!r}" if exposure else ""
+        raise SpecificationError(
+            f"the relative risk{name} for {per:g} units overflows: the log relative risk per unit is {coef:.4g} "
+            f"(SE {se:.3g}), so {per:g} units give exp({per * coef:.4g}). The exposure is probably on a much "
+            "smaller scale than its unit says (e.g. g/m³ for µg/m³); rescale it or give per= in its own scale."
+        )
     rr = math.exp(per * coef)
     low, high = math.exp(per * (coef - z * se)), math.exp(per * (coef + z * se))
     p = float(2 * special.ndtr(-abs(coef) / se)) if se > 0 else float("nan")

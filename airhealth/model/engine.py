@@ -29,6 +29,7 @@ from scipy.linalg import blas, lapack
 
 from .._warn import warn_user
 from ..errors import ConvergenceWarning, FitError
+from .degenerate import check_dispersion, check_response, collapsed_weights_error, not_converged_message
 from .engine_checks import (
     RANK_TOL,
     FamilyName,
@@ -38,12 +39,12 @@ from .engine_checks import (
     validate_inputs,
     validate_options,
 )
-from .families import NegativeBinomial, Poisson, theta_ml, theta_moments
+from .families import NegativeBinomial, Poisson
+from .theta_fit import fit_theta
 
 __all__ = ["FamilyName", "GLMFit", "ThetaMethod", "fit_glm", "information_criterion"]
 
 MAX_HALVINGS = 40
-MAX_THETA_ROUNDS = 100
 #: Refresh the information matrix when a step's predicted decrease exceeds this fraction of the last.
 REFRESH_RATIO = 0.05
 
@@ -70,6 +71,10 @@ class GLMFit:
         Pearson chi-square over ``df_resid`` for quasi-Poisson, 1 otherwise.
     theta, theta_estimated
         Negative binomial shape (``None`` for the other families) and whether it was estimated.
+    family
+        The family fitted: ``"poisson"`` when a negative binomial fell back to its Poisson limit.
+    notes
+        Plain-language notes on how the fit was obtained (e.g. that Poisson fallback and why).
     """
 
     coef: np.ndarray
@@ -93,6 +98,7 @@ class GLMFit:
     theta_estimated: bool = False
     n_step_halvings: int = 0
     column_names: tuple[str, ...] | None = None
+    notes: tuple[str, ...] = ()
 
     @property
     def qaic(self) -> float:
@@ -127,6 +133,8 @@ class _State:
     chol: np.ndarray | None = None  # Cholesky factor in use (upper)
     fresh: bool = False  # whether `chol` is the exact information at the current coefficients
     n_factorisations: int = 0
+    decrement: float = np.inf  # last predicted deviance decrease over (|deviance| + 0.1)
+    stalled: bool = False  # stopped because no step decreased the deviance along the exact Newton direction
 
 
 _WORKSPACE = threading.local()
@@ -241,13 +249,15 @@ def _iterate(s: _State, X, y, w, fam, tol, max_iter, names, buf) -> np.ndarray:
         g = X.T @ fam.score_residuals(y, s.mu, w)
         delta = lapack.dpotrs(s.chol, g, lower=0)[0]
         q = float(delta @ g)  # predicted deviance decrease (exact for a fresh factor)
-        if s.last_change <= tol and q <= tol * tol * (abs(s.deviance) + 0.1):
+        s.decrement = q / (abs(s.deviance) + 0.1)
+        if s.last_change <= tol and s.decrement <= tol * tol:
             s.converged = True
             return g
         if s.n_iter >= max_iter:
             return g
         if not _line_search(s, X, y, w, fam, delta, tol):
             if s.fresh:
+                s.stalled = True
                 return g  # no descent even along the exact Newton direction: stop, not converged
             _refresh(s, X, w, fam, names, buf)  # stale factor: refresh and retry
             continue
@@ -284,13 +294,8 @@ def _line_search(s: _State, X, y, w, fam, delta, tol) -> bool:
 
 
 def _warn_if_not_converged(s: _State, tol: float, what: str = "IRLS") -> None:
-    if not s.converged:
-        warn_user(
-            f"{what} stopped after {s.n_iter} iteration(s) without convergence: the last relative "
-            f"deviance change was {s.last_change:.3g} > tol={tol:g}. Increase max_iter, give better "
-            "starting values or simplify the model; results may be inaccurate.",
-            ConvergenceWarning,
-        )
+    if not s.converged:  # the message names only the criteria that failed
+        warn_user(not_converged_message(s, tol, what, MAX_HALVINGS), ConvergenceWarning)
 
 
 # ------------------------------------------------------------------------------------------ summaries
@@ -334,6 +339,8 @@ def summarise(
     names,
     has_intercept,
     theta_estimated=False,
+    notes=(),
+    response_name=None,
 ) -> GLMFit:
     """Assemble a :class:`GLMFit` from a converged state and the Cholesky factor of the information."""
     p = coef.size
@@ -342,6 +349,7 @@ def summarise(
     cov_unscaled = _inverse_from_cholesky(info_chol)
     pearson = fam.pearson_chi2(y, mu, w)
     dispersion = pearson / df_resid if family == "quasipoisson" else 1.0
+    check_dispersion(family, pearson, df_resid, response_name)
     cov = dispersion * cov_unscaled
     return GLMFit(
         coef=coef, cov_unscaled=cov_unscaled, cov=cov, std_err=np.sqrt(np.diag(cov)), fitted=mu,
@@ -350,7 +358,7 @@ def summarise(
         loglik=fam.loglik(y, mu, w), df_resid=df_resid, n_obs=n_obs, n_params=p, dispersion=dispersion,
         n_iter=n_iter, converged=converged, family=family,
         theta=fam.theta if isinstance(fam, NegativeBinomial) else None, theta_estimated=theta_estimated,
-        n_step_halvings=n_halvings, column_names=names,
+        n_step_halvings=n_halvings, column_names=names, notes=tuple(notes),
     )  # fmt: skip
 
 
@@ -368,6 +376,7 @@ def fit_glm(
     tol: float = 1e-10,
     max_iter: int = 100,
     column_names: Sequence[str] | None = None,
+    response_name: str | None = None,
 ) -> GLMFit:
     """Fit a log-link GLM for counts by IRLS.
 
@@ -387,15 +396,21 @@ def fit_glm(
         Starting coefficients (warm start). Default: start from ``mu = y + 0.1`` as R's ``glm`` does.
     theta : float, optional
         Known negative binomial shape. When None with family "negbin" it is estimated by alternating
-        IRLS for the coefficients with a one-dimensional solve for theta until the relative change of
-        theta is at most ``100 * tol`` and the IRLS has converged: ``theta_method="ml"`` maximises the
-        profile likelihood, ``"moments"`` solves ``sum((y - mu)^2 / (mu + mu^2/theta)) = n - p``.
+        IRLS for the coefficients with a one-dimensional solve for theta until a round changes the
+        variance function ``mu + mu^2/theta`` by at most ``100 * tol`` relative and the IRLS has converged:
+        ``theta_method="ml"`` maximises the profile likelihood, ``"moments"`` solves
+        ``sum((y - mu)^2 / (mu + mu^2/theta)) = n - p``. When the estimate is infinite (no
+        over-dispersion: the score for ``1/theta`` at the Poisson fit is not positive, or for
+        ``"moments"`` the Poisson Pearson chi-square is at most ``n - p``) the Poisson fit is returned with
+        ``family="poisson"`` and a note in ``notes``.
     tol : float
         Convergence when ``|dev - dev_old| / (|dev| + 0.1) <= tol``.
     max_iter : int
         Maximum IRLS iterations (per theta round for an estimated theta).
     column_names : sequence of str, optional
         Used in error messages and stored on the result.
+    response_name : str, optional
+        Name of the counts (the outcome column) for error messages.
 
     Returns
     -------
@@ -405,12 +420,14 @@ def fit_glm(
     ------
     FitError
         Non-finite input (naming the argument and first bad row), shape mismatch, no more rows than
-        coefficients, or a rank-deficient design (naming the collinear columns).
+        coefficients, a rank-deficient design (naming the collinear columns), every count zero (no finite
+        estimates), or a quasi-Poisson fit that reproduces every count (zero dispersion).
 
     Warns
     -----
     ConvergenceWarning
-        When the iteration limit is reached first.
+        When the iteration limit is reached first, no step lowers the deviance, or theta does not settle;
+        the message names the criterion that failed.
 
     References
     ----------
@@ -420,55 +437,38 @@ def fit_glm(
     """
     validate_options(family, theta, theta_method, tol, max_iter)
     X, y, offset, w, names = validate_inputs(X, y, offset, weights, column_names)
+    check_response(y, w, response_name)
     if start is not None:
         start = as_vector("start", start, X.shape[1], 0.0)
     buf = workspace("design", X.shape, layout(X))
-    theta_estimated = family == "negbin" and theta is None
-    if family != "negbin":
-        fam = Poisson()
-        state = _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf)
-        _warn_if_not_converged(state, tol)
-    elif theta is not None:
-        fam = NegativeBinomial(float(theta))
-        state = _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf)
-        _warn_if_not_converged(state, tol)
-    else:
-        fam, state = _fit_theta(X, y, w, offset, start, theta_method, tol, max_iter, names, buf)
+    try:
+        fam, state, notes = _fit_family(X, y, w, offset, family, theta, start, theta_method, tol, max_iter, names, buf)
+    except FitError as err:
+        better = collapsed_weights_error(err, X, y, w, response_name)
+        if better is None:
+            raise
+        raise better from err
+    theta_estimated = family == "negbin" and theta is None and not notes
+    if notes:  # the likelihood is largest at the Poisson limit: the Poisson fit is reported
+        family = "poisson"
     return summarise(
         coef=state.coef, eta=state.eta, mu=state.mu, info_chol=state.chol, y=y, w=w, offset=offset,
         fam=fam, family=family,
         n_iter=state.n_iter, converged=state.converged, n_halvings=state.n_halvings, names=names,
-        has_intercept=intercept_column(X), theta_estimated=theta_estimated,
+        has_intercept=intercept_column(X), theta_estimated=theta_estimated, notes=notes,
+        response_name=response_name,
     )  # fmt: skip
 
 
-def _fit_theta(X, y, w, offset, start, method, tol, max_iter, names, buf):
-    """Alternate IRLS for the coefficients and a 1-D solve for theta until both converge."""
-    df_resid = float(w.sum()) - X.shape[1]
-
-    def estimate(mu, previous):
-        if method == "ml":
-            return theta_ml(y, mu, w, start=previous)
-        return theta_moments(y, mu, w, df_resid)
-
-    state = _irls(X, y, w, offset, Poisson(), start, tol, max_iter, names, buf)
-    theta = estimate(state.mu, None)
-    total_iter, halvings = state.n_iter, state.n_halvings
-    converged = False
-    for _ in range(MAX_THETA_ROUNDS):
-        fam = NegativeBinomial(theta)
-        state = _irls(X, y, w, offset, fam, state.coef, tol, max_iter, names, buf)
-        total_iter, halvings = total_iter + state.n_iter, halvings + state.n_halvings
-        new_theta = estimate(state.mu, theta)
-        theta_change = abs(np.log(new_theta / theta))
-        theta = new_theta
-        if theta_change <= 100 * tol and state.converged:
-            converged = True
-            break
-    fam = NegativeBinomial(theta)
-    state = _irls(X, y, w, offset, fam, state.coef, tol, max_iter, names, buf)
-    state.n_iter += total_iter
-    state.n_halvings += halvings
-    state.converged = state.converged and converged
-    _warn_if_not_converged(state, tol, what="Negative binomial fit (IRLS alternating with theta)")
-    return fam, state
+def _fit_family(X, y, w, offset, family, theta, start, theta_method, tol, max_iter, names, buf):
+    """Run the IRLS for the family (alternating with theta when it is estimated): ``(family, state, notes)``."""
+    if family != "negbin" or theta is not None:
+        fam = Poisson() if family != "negbin" else NegativeBinomial(float(theta))
+        state = _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf)
+        _warn_if_not_converged(state, tol)
+        return fam, state, ()
+    return fit_theta(
+        lambda fam, coef: _irls(X, y, w, offset, fam, coef, tol, max_iter, names, buf),
+        y, w, float(w.sum()) - X.shape[1], start, theta_method, tol,
+        warn=lambda state, what: _warn_if_not_converged(state, tol, what),
+    )  # fmt: skip

@@ -24,7 +24,7 @@ from scipy import optimize, special
 
 from ..errors import FitError
 
-__all__ = ["NegativeBinomial", "Poisson", "theta_ml", "theta_moments"]
+__all__ = ["NegativeBinomial", "Poisson", "overdispersion_score", "theta_ml", "theta_moments"]
 
 #: Bounds on the negative binomial shape ``theta``: below, the fit is degenerate; above, it is Poisson.
 THETA_MIN = 1e-8
@@ -87,8 +87,9 @@ class NegativeBinomial:
 
     def unit_deviance(self, y: np.ndarray, mu: np.ndarray) -> np.ndarray:
         """``2 * (y log(y/mu) - (y + theta) log((y + theta)/(mu + theta)))``."""
+        # log((y + t)/(mu + t)) as log1p((y - mu)/(mu + t)): accurate when theta is far larger than the counts
         t = self.theta
-        return 2.0 * (special.xlogy(y, y) - special.xlogy(y, mu) - (y + t) * (np.log(y + t) - np.log(mu + t)))
+        return 2.0 * (special.xlogy(y, y) - special.xlogy(y, mu) - (y + t) * np.log1p((y - mu) / (mu + t)))
 
     def deviance(self, y: np.ndarray, mu: np.ndarray, w: np.ndarray) -> float:
         """Weighted sum of unit deviances."""
@@ -99,25 +100,94 @@ class NegativeBinomial:
         return float(w @ ((y - mu) ** 2 / self.variance(mu)))
 
     def loglik(self, y: np.ndarray, mu: np.ndarray, w: np.ndarray) -> float:
-        """Full NB2 log-likelihood (Lawless 1987, eq. 2.3) with frequency weights."""
+        """Full NB2 log-likelihood (Lawless 1987, eq. 2.3) with frequency weights.
+
+        Written so that it stays accurate when ``theta`` is many orders of magnitude above the counts
+        (where ``gammaln(y + theta) - gammaln(theta)`` loses every digit): with ``x = mu / theta``,
+        ``log L = [log G(y + t) - log G(t) - y log t] - log y! - t log1p(x) + y log mu - y log1p(x)``,
+        the bracket summed exactly for whole counts (:func:`_log_rising`).
+        """
         t = self.theta
-        ll = (
-            special.gammaln(y + t)
-            - special.gammaln(t)
-            - special.gammaln(y + 1.0)
-            + t * (np.log(t) - np.log(t + mu))
-            + special.xlogy(y, mu)
-            - y * np.log(t + mu)
-        )
+        x = mu / t
+        ll = _log_rising(y, t) - special.gammaln(y + 1.0) - t * np.log1p(x) + special.xlogy(y, mu) - y * np.log1p(x)
         return float(w @ ll)
 
 
+#: Whole counts up to this size use the exact finite sums below; larger or fractional counts use the
+#: gamma-function forms (accurate unless theta is far above the counts).
+_MAX_TABLE = 100_000
+
+
+def _whole_counts(y: np.ndarray) -> bool:
+    return bool(y.size) and float(y.max()) <= _MAX_TABLE and bool(np.all(y == np.floor(y)))
+
+
+def _table(terms: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """``sum(terms[k] for k < y)`` per row, from one cumulative sum over ``k = 0 .. max(y) - 1``."""
+    return np.concatenate(([0.0], np.cumsum(terms)))[y.astype(np.int64)]
+
+
+def _log_rising(y: np.ndarray, t: float) -> np.ndarray:
+    """``log G(y + t) - log G(t) - y log t`` (``= sum_{k<y} log1p(k/t)`` for whole ``y``)."""
+    if _whole_counts(y):
+        k = np.arange(int(y.max()))
+        return _table(np.log1p(k / t), y)
+    return special.gammaln(y + t) - special.gammaln(t) - y * np.log(t)
+
+
+def _x_minus_log1p(x: np.ndarray) -> np.ndarray:
+    """``x - log1p(x)`` without cancellation for small ``x`` (its Taylor series below 0.01)."""
+    x = np.asarray(x, dtype=float)
+    small = np.abs(x) < 0.01
+    out = x - np.log1p(x)
+    xs = x[small]
+    series = np.zeros_like(xs)
+    for j in range(11, 1, -1):  # sum_{j=2}^{11} (-1)^j x^j / j, Horner form; error below x^12
+        series = xs * ((-1.0) ** j / j + series)
+    out[small] = xs * series
+    return out
+
+
+def overdispersion_score(y: np.ndarray, mu: np.ndarray, w: np.ndarray) -> float:
+    """Score of the NB2 log-likelihood in ``alpha = 1/theta`` at ``alpha = 0`` (the Poisson fit).
+
+    ``dl/dalpha |_{alpha=0} = sum(w ((y - mu)^2 - y)) / 2``. At the Poisson maximum-likelihood means the
+    coefficients' score is zero, so this is also the slope of the profile likelihood in ``alpha`` at the
+    Poisson boundary: when it is not positive the likelihood does not increase away from Poisson and the
+    maximum-likelihood ``theta`` is infinite.
+
+    References
+    ----------
+    Dean C, Lawless JF (1989). Tests for detecting overdispersion in Poisson regression models. *J Am
+    Stat Assoc* 84:467-472 (the score statistic; from memory). Cameron AC, Trivedi PK (1990).
+    Regression-based tests for overdispersion in the Poisson model. *J Econometrics* 46:347-364 (from
+    memory). The formula itself is checked against a numerical derivative in tests/test_negbin_boundary.py.
+    """
+    return float(w @ ((y - mu) ** 2 - y)) / 2.0
+
+
 def _theta_score(log_theta: float, y: np.ndarray, mu: np.ndarray, w: np.ndarray) -> tuple[float, float]:
-    """Derivative of the NB2 log-likelihood in ``log(theta)`` and its second derivative."""
-    t = np.exp(log_theta)
+    """Derivative of the NB2 log-likelihood in ``log(theta)`` and its second derivative.
+
+    For whole counts the derivatives in ``t = theta`` are written without cancellation (each piece is
+    accurate to rounding however large ``t`` is; the plain digamma form loses every digit above
+    ``t ~ 1e7``): with ``x = mu / t``,
+
+    ``dl/dt = (x - log1p(x)) - (1/t) sum_{k<y} k/(t+k) - mu (mu - y) / (t (t + mu))``,
+    ``d2l/dt2 = sum_{k<y} k (2t + k) / (t^2 (t+k)^2) + mu (mu (t - y) - 2 y t) / (t^2 (t + mu)^2)``,
+
+    which follow from ``psi(y+t) - psi(t) = sum_{k<y} 1/(t+k)`` and ``psi'(y+t) - psi'(t) =
+    -sum_{k<y} 1/(t+k)^2`` (the recurrences of the digamma and trigamma functions).
+    """
+    t = float(np.exp(log_theta))
     tm = t + mu
-    d1 = w @ (special.digamma(y + t) - special.digamma(t) + np.log(t) + 1.0 - np.log(tm) - (y + t) / tm)
-    d2 = w @ (special.polygamma(1, y + t) - special.polygamma(1, t) + 1.0 / t - 2.0 / tm + (y + t) / tm**2)
+    if _whole_counts(y):
+        k = np.arange(int(y.max()))
+        d1 = w @ (_x_minus_log1p(mu / t) - _table(k / (t + k), y) / t - mu * (mu - y) / (t * tm))
+        d2 = w @ (_table(k * (2 * t + k) / (t + k) ** 2, y) / t**2 + mu * (mu * (t - y) - 2 * y * t) / (t * tm) ** 2)
+    else:
+        d1 = w @ (special.digamma(y + t) - special.digamma(t) + np.log(t) + 1.0 - np.log(tm) - (y + t) / tm)
+        d2 = w @ (special.polygamma(1, y + t) - special.polygamma(1, t) + 1.0 / t - 2.0 / tm + (y + t) / tm**2)
     # chain rule for u = log(theta): dl/du = t dl/dt, d2l/du2 = t dl/dt + t^2 d2l/dt2
     return float(t * d1), float(t * d1 + t * t * d2)
 

@@ -37,6 +37,7 @@ def fit_design(design: Design, spec: ModelSpec, start: np.ndarray | None = None)
         tol=spec.tol,
         max_iter=spec.max_iter,
         column_names=list(design.column_names),
+        response_name=spec.outcome,
     )
 
 
@@ -68,9 +69,15 @@ def _warn_suspicious(design: Design, spec: ModelSpec, glm: GLMFit) -> None:
 
 
 def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
-    """Package an engine fit and its design into a :class:`FitResult`."""
+    """Package an engine fit and its design into a :class:`FitResult`.
+
+    The result's spec describes what was fitted: a negative binomial that fell back to its Poisson limit
+    has ``family="poisson"`` and says why in ``notes`` (with any design notes, e.g. aliased columns).
+    """
     if design.lag is not None:  # keep the lag structure as fitted (e.g. an exposure-lag basis with its knots)
         spec = spec.replace(lag=design.lag)
+    if glm.family != spec.family:
+        spec = spec.replace(family=glm.family)
     names = list(design.column_names)
     dates = design.calendar[design.used]
     exposure = design.exposure_raw[design.used]
@@ -94,6 +101,8 @@ def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
         n_iter=int(glm.n_iter),
         theta=None if glm.theta is None else float(glm.theta),
         bases={b.name: b.basis for b in design.confounders.blocks if b.basis is not None},
+        aliased=design.aliased,
+        notes=design.notes + glm.notes,
     )
 
 

@@ -104,7 +104,7 @@ class ConfounderFit:
     @property
     def family_object(self) -> Poisson | NegativeBinomial:
         """The family with its fitted theta (negative binomial) or the Poisson mean model."""
-        return NegativeBinomial(self.fit.theta) if self.family == "negbin" else Poisson()
+        return NegativeBinomial(self.fit.theta) if self.fit.theta is not None else Poisson()
 
 
 def fit_confounders(
@@ -132,7 +132,7 @@ def fit_confounders(
     n = Zc.shape[0]
     off = np.zeros(n) if offset is None else np.asarray(offset, dtype=float)
     w = np.ones(n) if weights is None else np.asarray(weights, dtype=float)
-    fam = NegativeBinomial(fit.theta) if family == "negbin" else Poisson()
+    fam = NegativeBinomial(fit.theta) if fit.theta is not None else Poisson()  # None: fell back to Poisson
     w0 = fam.working_weights(fit.fitted, w)
     upper = _weighted_gram(Zc, w0, workspace("design", Zc.shape))
     info = np.triu(upper) + np.triu(upper, 1).T

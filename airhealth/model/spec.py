@@ -7,8 +7,11 @@ and hands it to the same engine, so defaults and their documentation live here a
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any, Literal
+
+import numpy as np
 
 from .._choices import check_choice
 from ..errors import SpecificationError
@@ -23,6 +26,33 @@ DEFAULT_UNIT = "µg/m³"
 Family = Literal["quasipoisson", "poisson", "negbin"]
 Seasonality = Literal["spline", "fourier"]
 ThetaMethod = Literal["ml", "moments"]
+
+
+def _checked_na_values(given: Any) -> tuple[Any, ...]:
+    """``na_values`` as a tuple of numbers and texts; anything else names the bad entry."""
+    if given is None:
+        return ()
+    if isinstance(given, str | int | float | np.number):
+        given = (given,)
+    if isinstance(given, dict) or not isinstance(given, Iterable):
+        raise SpecificationError(
+            f"na_values must be a list of values meaning 'missing', e.g. [-999, '<LOD'], got {given!r}."
+        )
+    values = []
+    for value in given:
+        if isinstance(value, str) and value.strip():
+            values.append(value.strip())
+        elif isinstance(value, int | float | np.number) and not isinstance(value, bool | np.bool_):
+            if not np.isfinite(float(value)):
+                raise SpecificationError(
+                    f"na_values entry {value!r} is not a finite number; missing values (NaN) are already missing."
+                )
+            values.append(value.item() if isinstance(value, np.number) else value)
+        else:
+            raise SpecificationError(
+                f"na_values entry {value!r} is neither a number nor a non-empty text; use e.g. [-999, '<LOD']."
+            )
+    return tuple(dict.fromkeys(values))
 
 
 @dataclass(frozen=True)
@@ -85,8 +115,12 @@ class ModelSpec:
         JSON (``"unit"``) so that a relative risk reads "per 10 ppb". :meth:`from_options` also accepts
         ``units={"o3": "ppb"}``, a mapping of column → unit, and takes the exposure's entry.
     na_values : tuple
-        Values that mean "missing" in the data columns the model reads (e.g. ``(-999,)``); they become
-        missing before any check or fit.
+        Values that mean "missing" in the data columns the model reads: numbers (e.g. ``-999``, matched by
+        value) and texts (e.g. ``"<LOD"``, matched after stripping spaces; a text that reads as a number
+        also matches that number). They become missing, on a copy, before any check or fit. The texts
+        ``pandas.read_csv`` reads as missing by default (``"NA"``, ``"n/a"``, ``""``, ...) are missing
+        without being listed; common codes such as -999 or 9999 left in a series far outside its other
+        values are an error that names them (see :mod:`airhealth.prep.missing_codes`).
     tol : float
         Convergence tolerance on the relative change in deviance (default 1e-10; strict, see Dominici
         et al. 2002).
@@ -160,12 +194,8 @@ class ModelSpec:
         TimeSpline(self.trend_df_per_year)  # validates the value
         if not isinstance(self.unit, str) or not self.unit.strip():
             raise SpecificationError(f"unit must be a non-empty text such as 'µg/m³' or 'ppb', got {self.unit!r}.")
-        given_na = self.na_values
-        if given_na is None:
-            given_na = ()
-        elif isinstance(given_na, str | int | float):
-            given_na = (given_na,)
-        object.__setattr__(self, "na_values", tuple(given_na))
+        object.__setattr__(self, "unit", self.unit.strip())
+        object.__setattr__(self, "na_values", _checked_na_values(self.na_values))
         if self.exposure == self.outcome:
             raise SpecificationError(f"outcome and exposure are the same column, {self.outcome!r}.")
         self._check_roles()

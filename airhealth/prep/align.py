@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Literal
 
 import numpy as np
@@ -13,7 +14,14 @@ from ..errors import DataError, DataWarning, SpecificationError
 from .calendar import complete_calendar
 from .validate import check_daily_dates, parse_dates, require_columns
 
-__all__ = ["DuplicateDays", "align_daily", "merge_duplicate_days", "prepare_daily", "restrict_period"]
+__all__ = [
+    "DuplicateDays",
+    "align_daily",
+    "merge_duplicate_days",
+    "prepare_daily",
+    "restrict_months",
+    "restrict_period",
+]
 
 DuplicateDays = Literal["error", "mean", "first"]
 
@@ -173,6 +181,32 @@ def restrict_period(
             f"no row of {what} falls in the period {period}: its dates run from {dates.min():%Y-%m-%d} to "
             f"{dates.max():%Y-%m-%d}."
         )
+    return frame.loc[keep].reset_index(drop=True)
+
+
+def restrict_months(frame: pd.DataFrame, months: Sequence[int], date: str = "date", what: str = "data") -> pd.DataFrame:
+    """The rows of ``frame`` in the calendar ``months`` (1-12) of every year, as a new frame.
+
+    For a season-restricted analysis, e.g. an exposure measured only from April to September: the months
+    left out become calendar gaps, which the model handles as missing days. The caller's frame is not
+    modified.
+
+    Raises
+    ------
+    SpecificationError
+        If a month is not a whole number from 1 to 12.
+    DataError
+        If no row falls in those months.
+    """
+    chosen = sorted(set(months))
+    if not chosen or any(
+        isinstance(m, bool) or not isinstance(m, int | np.integer) or not 1 <= m <= 12 for m in chosen
+    ):
+        raise SpecificationError(f"months must be whole numbers from 1 to 12, got {list(months)!r}.")
+    dates = parse_dates(frame, date, what)
+    keep = np.isin(dates.month, chosen)
+    if not keep.any():
+        raise DataError(f"no row of {what} falls in the months {chosen}.")
     return frame.loc[keep].reset_index(drop=True)
 
 

@@ -78,6 +78,30 @@ _ALIASES = {
 }
 
 
+#: Reference temperatures accepted for a conversion, °C: the usual reference conditions (0, 20, 25 °C) and any
+#: ambient temperature lie inside; 293.15 (20 °C in kelvins) or 77 (25 °C in °F) do not (common practice, no
+#: source).
+REFERENCE_TEMPERATURE_RANGE_C = (-60.0, 60.0)
+
+
+def _check_reference_temperature(temperature_c: float) -> None:
+    """Refuse a conversion temperature that is not a plausible °C value, naming the likely unit."""
+    t = float(temperature_c)
+    lo, hi = REFERENCE_TEMPERATURE_RANGE_C
+    if not np.isfinite(t) or lo <= t <= hi:
+        return
+    if 200 <= t <= 350:
+        likely = f"it looks like kelvins ({t:g} K = {t - 273.15:g} °C); give {t - 273.15:g}"
+    elif hi < t <= 140:
+        likely = f"it looks like °F ({t:g} °F = {(t - 32) * 5 / 9:g} °C); give {(t - 32) * 5 / 9:g}"
+    else:
+        likely = "give the temperature in °C"
+    raise SpecificationError(
+        f"the conversion temperature {t:g} is outside {lo:g}…{hi:g} °C: {likely} (the EU reference is 20 °C, "
+        "the WHO and US reference 25 °C)."
+    )
+
+
 def molar_volume(temperature_c: float = 25.0, pressure_kpa: float = _STANDARD_ATMOSPHERE_KPA) -> float:
     """Molar volume of an ideal gas in L/mol, ``Vm = R · T / P``.
 
@@ -95,6 +119,7 @@ def molar_volume(temperature_c: float = 25.0, pressure_kpa: float = _STANDARD_AT
     >>> round(molar_volume(20.0), 3)
     24.055
     """
+    _check_reference_temperature(temperature_c)
     kelvin = float(temperature_c) + 273.15
     if not np.isfinite(kelvin) or kelvin <= 0 or not np.isfinite(pressure_kpa) or pressure_kpa <= 0:
         raise SpecificationError(

@@ -148,18 +148,31 @@ def _forest_figures(table: pd.DataFrame, per: float, level: float, request: Repo
     return figures
 
 
-def _main_blocks(main: Any, replaced: str, small_count_threshold: int | None = None) -> list[Any]:
+def fit_notes(results: Sequence[Any]) -> list[Text]:
+    """One paragraph per distinct note on how the fits were obtained (aliased columns, Poisson fallback)."""
+    notes = dict.fromkeys(note for r in results for note in r.notes)
+    labelled = {n: sorted({f"{r.spec.outcome} ~ {r.spec.exposure}" for r in results if n in r.notes}) for n in notes}
+    return [Text(f"Note ({', '.join(labelled[n])}): {n}") for n in notes]
+
+
+def _main_blocks(
+    main: Any, replaced: str, small_count_threshold: int | None = None, results: Sequence[Any] = ()
+) -> list[Any]:
+    """The main model: which it is, its fit against the data, its dropped days; then the fits' notes.
+
+    The main model's aliased columns are listed by name unless one of its notes already names them; the
+    notes of every fit (``results``, which include the main one) follow, one paragraph per distinct note.
+    """
     spec = main.spec
     name = f"{spec.outcome}, {spec.exposure} ({spec.unit}), lag {spec.lag.label}"
     blocks: list[Any] = [Text(replaced or f"The main model is {name}.")]
-    if main.aliased:
+    if main.aliased and not any(main.aliased[0] in note for note in main.notes):
         blocks.append(
             Text(
                 "Columns of the confounder model with no support among the days used were dropped (aliased), as "
                 f"R's glm does: {', '.join(main.aliased)}."
             )
         )
-    blocks += [Text(f"Note: {note}") for note in main.notes]
     blocks += [
         observed_fitted_figure(main, small_count_threshold),
         Table(
@@ -167,6 +180,7 @@ def _main_blocks(main: Any, replaced: str, small_count_threshold: int | None = N
             main.drop_summary().rename_axis("reason").reset_index(),
             "dropped_days",
         ),
+        *fit_notes(results),
     ]
     return blocks
 
@@ -257,7 +271,7 @@ def _sections(
         *_problem_sections(fits.failures, fits.warnings),
         _count_section(data, outcomes),
         Section("Effect estimates", [*_effects_tables(table, per, level, request), *_forest_figures(table, per, level, request)]),  # noqa: E501
-        Section("Main model", [*_main_blocks(main, fits.main_note, threshold), *_lag_blocks(main_pair, per, level)]),
+        Section("Main model", [*_main_blocks(main, fits.main_note, threshold, done), *_lag_blocks(main_pair, per, level)]),  # noqa: E501
         data_quality_section(
             data, [*exposures, *weather], exposures=exposures, date=options.get("date", "date"),
             units={e: request.unit_of(e) for e in exposures},
