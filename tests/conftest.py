@@ -7,8 +7,14 @@ import shutil
 
 import pandas as pd
 import pytest
+from hypothesis import settings
 
 import airhealth
+
+# Property tests draw the same examples on every machine and run (fixed seeds, like every other test), and
+# keep no example database between runs, so a fresh clone and a developer's tree test the same cases.
+settings.register_profile("airhealth", derandomize=True, database=None)
+settings.load_profile("airhealth")
 
 
 @pytest.fixture(scope="session")

@@ -24,11 +24,15 @@ def one_monitor(tmp_path_factory) -> Path:
     return path
 
 
-def test_single_monitor_output_contract(one_monitor, tmp_path):
+def test_single_monitor_output_contract(one_monitor, tmp_path, capsys):
     out = tmp_path / "daily.csv"
     code = main(["daily", str(one_monitor), "--time", "time", "--value", "no2_ppb", "--statistic", "mean",
                  "--out", str(out)])  # fmt: skip
     assert code == 0
+    # the rule is named by its checked clause (see the project's references), without a "from memory" caveat
+    printed = capsys.readouterr().out
+    assert "rule: Directive 2008/50/EC, Annex XI A (24-hour values: 75 % of the hourly values = 18 of 24)" in printed
+    assert "memory" not in printed
     daily = pd.read_csv(out)
     assert list(daily.columns) == ["date", "no2_ppb", "n_hours"]
     expected = daily_statistic(pd.read_csv(one_monitor), time="time", value="no2_ppb")

@@ -110,13 +110,16 @@ def test_cli_poisson_on_an_all_zero_outcome_is_a_one_line_error(short_sample_csv
     assert "'deaths_all'" in err and ("zero" in err or "no events" in err)
 
 
-def test_cli_negbin_on_constant_counts_prints_the_poisson_note(short_sample_csv, capsys):
+def test_cli_negbin_on_constant_counts_is_refused_before_fitting(short_sample_csv, capsys):
+    # The preparation layer refuses constant counts for every family (airhealth.prep.degenerate), so the
+    # engine's Poisson fallback is never reached from the command line with such data.
     from airhealth.cli.main import main
 
     args = ["fit", str(short_sample_csv["constant"]), "--outcome", "deaths_all", "--exposure", "pm25"]
-    assert main([*args, "--family", "negbin"]) == 0
-    out = capsys.readouterr().out
-    assert "note: negative binomial fitted as Poisson: the counts show no over-dispersion" in out
+    assert main([*args, "--family", "negbin"]) == 2
+    err = capsys.readouterr().err
+    assert "Traceback" not in err
+    assert "'deaths_all' has the same count, 9, on all 730 days" in err
 
 
 def test_a_single_event_is_too_few_not_a_collinear_design(design):

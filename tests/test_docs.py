@@ -51,3 +51,15 @@ def test_readme_python_example_runs() -> None:
     exec(compile(blocks[0], "README.md", "exec"), namespace)
     result = namespace["result"]
     assert 0.99 < result.effect(per=10).rr < 1.03  # the sample's true RR per 10 is 1.010
+
+
+def _apt_packages(text: str) -> list[set[str]]:
+    return [set(m.split()) for m in re.findall(r"apt-get install -y ([a-z0-9 .+-]+)", text)]
+
+
+def test_docs_name_the_r_packages_ci_installs() -> None:
+    ci = _apt_packages((ROOT / ".ci" / "run").read_text(encoding="utf-8"))
+    assert len(ci) == 1 and {"r-base-core", "r-cran-sandwich"} <= ci[0]
+    for doc in ("README.md", "DEVELOPERS.md"):
+        named = _apt_packages((ROOT / doc).read_text(encoding="utf-8"))
+        assert named == ci, f"{doc} and .ci/run install different R packages"

@@ -9,7 +9,8 @@ standard errors, dispersion and deviances agree to rounding, ~1e-12; we assert 1
 room for BLAS summation-order differences but would catch any error in the formulas (a wrong df, a missed
 weight, the covariance from the wrong iterate are all > 1e-6). Coefficients close to zero are compared on
 the standard-error scale (absolute tolerance 1e-9 SE). The negative binomial with estimated theta is
-compared to 1e-6 because statsmodels' optimiser stops at a gradient tolerance, not at machine precision.
+compared to 1e-6 (theta, coefficients) and 1e-8 (log-likelihood, AIC) because both optimisers stop at their
+own tolerances, not at machine precision (reasons beside the test).
 """
 
 from __future__ import annotations
@@ -136,13 +137,22 @@ def test_negbin_ml_matches_statsmodels_discrete_model(design):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         ref = ref_model.fit(start_params=start, method="newton", maxiter=100, disp=False, tol=1e-12)
+    # a reference that stopped early would make any comparison meaningless: require its own convergence flag
+    assert ref.mle_retvals["converged"], f"statsmodels' Newton did not converge: {ref.mle_retvals}"
     alpha = ref.params[-1]
     assert fit.theta_estimated and fit.converged
     assert fit.theta == pytest.approx(1 / alpha, rel=1e-6)
     assert_coef_close(fit.coef, ref.params[:-1], ref.bse[:-1], rtol=1e-6)
-    assert fit.loglik == pytest.approx(ref.llf, rel=1e-9)
+    # Log-likelihood and AIC: two independent optimisers, each stopping at its own criterion, not at machine
+    # precision. Ours stops when the relative deviance change is <= 1e-10 and log(theta) moves <= 100 * 1e-10
+    # = 1e-8 (engine.fit_glm); statsmodels' Newton stops when no parameter moves more than tol=1e-12, a step
+    # solved with a Hessian of condition ~5e6 here, so the last digits of its answer depend on the BLAS build
+    # (cond * eps ~ 1e-9). Agreement was 1e-15 with numpy 1.26-2.4 here and 1.6e-9 on another build; we assert
+    # 1e-8 relative, 100 x our deviance criterion, still far inside what a formula error moves (a term of the
+    # likelihood or a parameter miscounted in the AIC changes either by > 1e-4 relative).
+    assert fit.loglik == pytest.approx(ref.llf, rel=1e-8)
     # AIC counts theta as a parameter, like statsmodels' discrete model (which counts alpha)
-    assert fit.qaic == pytest.approx(ref.aic, rel=1e-9)
+    assert fit.qaic == pytest.approx(ref.aic, rel=1e-8)
     # standard errors at fixed theta are the expected-information ones of the GLM with that theta
     glm = sm.GLM(y, X, family=sm.families.NegativeBinomial(alpha=1 / fit.theta)).fit(tol=1e-13)
     np.testing.assert_allclose(fit.std_err, glm.bse, rtol=RTOL)

@@ -1,14 +1,15 @@
 """Daily statistics from hourly data: worked examples at each validity threshold, DST days, bad input.
 
-Thresholds are those of EU Directive 2008/50/EC, Annexes VII and XI (from memory: 18 of 24 hours; 6 of 8 hours;
-18 of the 24 8-h means ending in the day) and US EPA 40 CFR Part 50, Appendices N, S, T, U (from memory: 18 of
-24 hours; 6 of 8 hours; 13 of the 17 8-h periods starting 07:00-23:00; "valid if above the level").
+Thresholds are those of EU Directive 2008/50/EC, Annexes VII (A.2 and B) and XI (A): 75 % of the hourly values
+(18 of 24); 6 of 8 hours; 18 of the 24 8-h means ending in the day (checked against the published text, see
+the project's references) and US EPA 40 CFR Part 50, Appendix U: the 17 8-h periods starting 07:00-23:00
+(checked); Appendices N, S, T and U otherwise from memory: 18 of 24 hours; 6 of 8 hours; 13 of the 17 periods;
+"valid if above the level".
 Expected values are computed by hand in each test.
 """
 
 from __future__ import annotations
 
-import time
 import warnings
 from pathlib import Path
 
@@ -18,7 +19,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from airhealth.errors import DataError, DataWarning, SpecificationError
+from airhealth.errors import AirhealthWarning, DataError, DataWarning, SpecificationError
 from airhealth.prep.hourly import daily_statistic, validity_rule
 from airhealth.prep.hourly_input import clean_hourly
 
@@ -407,23 +408,21 @@ def test_property_max8h_within_hourly_range_of_its_windows(values, convention):
             assert value <= same_day + 1e-9 * max(1.0, same_day)
 
 
-# ---------------------------------------------------------------- sample data and speed
+# ---------------------------------------------------------------- sample data
 
 
-def test_sample_two_years_three_monitors_aggregate_fast():
+def test_sample_two_years_three_monitors_aggregate():
     data = pd.read_csv(SAMPLE)
     with warnings.catch_warnings():
-        warnings.simplefilter("error")  # the sample has no negatives, duplicates or disorder
-        started = time.perf_counter()
+        # the sample has no negatives, duplicates or disorder (airhealth's warnings only; a library's
+        # deprecation notice is not a failure here)
+        warnings.simplefilter("error", AirhealthWarning)
         out = daily_statistic(data, time="time", value="no2_ppb", monitor="monitor", statistic="max8h")
-        elapsed = time.perf_counter() - started
     assert set(out["monitor"]) == {"NHC", "NHH", "NHP"}
     assert out.groupby("monitor")["date"].agg(["min", "max"]).loc["NHC"].tolist() == [
         pd.Timestamp("2022-01-01"),
         pd.Timestamp("2023-12-31"),
     ]
-    # ~0.1 s measured on 2 cores; 1.5 s leaves room for a loaded test machine.
-    assert elapsed < 1.5
 
 
 def test_us_daily_max8h_valid_with_few_means_if_above_level():
@@ -436,3 +435,28 @@ def test_us_daily_max8h_valid_with_few_means_if_above_level():
     assert plain["n_8h_means"] == 5 and not bool(plain["valid"])
     rescued = day_row(daily_statistic(hours_frame("2022-06-01", values), exceedance_level=70.0, **kwargs), "2022-06-02")
     assert bool(rescued["valid"]) and rescued["conc"] == pytest.approx(90.0, rel=1e-12)
+
+
+# ---------------------------------------------------------------- rule sources
+
+
+@pytest.mark.parametrize(
+    ("statistic", "clause"),
+    [("mean", "Annex XI A (24-hour values: 75 % of the hourly values = 18 of 24)"), ("max8h", "Annex VII A.2 and B")],
+)
+def test_eu_rule_sources_name_the_checked_clause_without_memory_caveat(statistic, clause):
+    # The project's references mark Annex VII A.2/B and the 75 % rule of Annex XI A as checked against the
+    # published Directive 2008/50/EC (2026-12-02), so the label printed by `airhealth daily` and shown in
+    # reports names the clause and carries no "from memory".
+    source = validity_rule(statistic, "eu").source
+    assert source.startswith("Directive 2008/50/EC, ") and clause in source
+    assert "memory" not in source
+
+
+@pytest.mark.parametrize("statistic", ["mean", "max1h", "max8h"])
+def test_us_rule_sources_still_say_which_parts_are_from_memory(statistic):
+    # The references still list the US completeness thresholds (Appendices N, S, T; 13 of 17 and 6 of 8 in
+    # Appendix U) as from memory; only Appendix U's 17 periods from 07:00 are checked.
+    source = validity_rule(statistic, "us").source
+    assert source.startswith("40 CFR Part 50, Appendi") and "from memory" in source
+    assert ("07:00-23:00" in source) == (statistic == "max8h")

@@ -35,7 +35,7 @@ import pytest
 from conftest import r_unavailable
 
 import airhealth
-from airhealth.errors import DataWarning, FitError
+from airhealth.errors import DataError, DataWarning
 from airhealth.model.aliasing import aliased_columns
 
 REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
@@ -161,10 +161,11 @@ def test_a_complete_series_aliases_nothing(city):
 
 
 def test_an_exposure_without_support_stays_an_error_naming_it(city):
-    # A second exposure-lag column that is zero on every day used cannot be dropped: it is the effect asked for.
+    # An exposure that is zero on every day used cannot be dropped as aliased: it is the effect asked for.
+    # (The preparation layer names it before the engine would.)
     data = city.assign(pm25=city["pm25"].where(city["date"].dt.year != 2013, 0.0))
     data = data[data["date"].dt.year.isin([2013, 2014])].reset_index(drop=True)
-    with pytest.raises(FitError, match=r"'pm25\[0-1\]' is zero on every row used"):
+    with pytest.raises(DataError, match=r"exposure column 'pm25' never varies: it is 0 on all 365 days"):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", DataWarning)
             airhealth.fit(data, "deaths_all", "pm25", temperature="temperature", trend_df_per_year=2)

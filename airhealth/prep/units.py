@@ -9,17 +9,21 @@ For an ideal gas, a mixing ratio ``x`` (mol/mol) corresponds to the mass concent
 because 1e-9 mol/mol · M g/mol / (Vm L/mol) = M / Vm · 1e-9 g/L = M / Vm µg/m³. The same factor turns ppm into
 mg/m³. At 25 °C and 1 atm (101.325 kPa) ``Vm`` = 24.465 L/mol with the CODATA 2018 gas constant; many tables
 round it to 24.45 L/mol. EU Directive 2008/50/EC standardises gaseous pollutants to 293 K (20 °C) and
-101.3 kPa (``Vm`` ≈ 24.04–24.06 L/mol); the WHO 2021 guidelines convert at 25 °C and 1 atm (from memory).
+101.3 kPa (``Vm`` ≈ 24.04–24.06 L/mol); the WHO 2021 guidelines convert at 25 °C and 1 atm.
 
 References
 ----------
 .. [1] Rumble JR (ed.). CRC Handbook of Chemistry and Physics. CRC Press (molecular weights O3 48.00, NO2 46.01,
-   SO2 64.07, CO 28.01 g/mol, i.e. the sums of the standard atomic weights O 15.999, N 14.007, S 32.06,
-   C 12.011; from memory, consistent with the IUPAC standard atomic weights).
+   SO2 64.07, CO 28.01 g/mol, as the handbook lists them; the sums of the IUPAC conventional atomic weights
+   O 15.999, N 14.007, S 32.06, C 12.011 agree to 0.01 g/mol: 48.00, 46.01, 64.06, 28.01).
 .. [2] Tiesinga E, Mohr PJ, Newell DB, Taylor BN (2021). CODATA recommended values of the fundamental physical
    constants: 2018. Rev Mod Phys 93:025010 (R = 8.314462618 J/(mol·K)).
 .. [3] Directive 2008/50/EC of the European Parliament and of the Council on ambient air quality and cleaner air
-   for Europe, Annex VII (ozone: "volume standardised at 293 K and 101.3 kPa"; from memory).
+   for Europe: gaseous pollutants are reported as volumes standardised at 293 K and 101.3 kPa (checked in the
+   national transposition of the ozone rules, 2026-12-02); particulate matter at ambient conditions (from
+   memory).
+.. [4] World Health Organization (2021). WHO global air quality guidelines. Geneva: WHO (ppb converted to
+   µg/m³ at 25 °C and 1 atm).
 """
 
 from __future__ import annotations

@@ -73,7 +73,9 @@ def plot_effects(table: Any, labels: Sequence[str] | None = None, ax: Any = None
     ax = new_axes(ax, (6.5, 0.35 * n + 1.2))
     y = np.arange(n)[::-1]
     rr, lo, hi = (table[c].to_numpy(dtype=float) for c in ("rr", "rr_low", "rr_high"))
-    ax.errorbar(rr, y, xerr=[rr - lo, hi - rr], fmt="o", color="C0", ms=4, capsize=2)
+    # a 2 x n array, not a list of two arrays: matplotlib 3.8 turns the list of one-element arrays of a one-row
+    # table into scalars, which numpy >= 1.25 deprecates
+    ax.errorbar(rr, y, xerr=np.vstack([rr - lo, hi - rr]), fmt="o", color="C0", ms=4, capsize=2)
     ax.axvline(1.0, color="0.4", lw=0.8, ls="--")
     if labels is None:
         labels = [f"{r.outcome} · {r.exposure} · lag {r.lag}" for r in table.itertuples()]
