@@ -24,6 +24,7 @@ from .model.result import FitResult
 from .model.spec import ModelSpec
 from .model.terms import Categorical, Linear, Spline
 from .prep.align import align_daily
+from .report.city_report import write_report
 from .sample import load_sample, load_sample_tables
 
 __version__ = "0.1.0"
@@ -62,4 +63,5 @@ __all__ = [
     "load_sample_tables",
     "minimum_risk_exposure",
     "parse_lag",
+    "write_report",
 ]

@@ -118,9 +118,10 @@ def test_demo_writes_report_tables_and_figures(demo_dir: Path) -> None:
     assert "not proof of causation" in page
     assert "Counts below 5 are suppressed" in page
     table = pd.read_csv(demo_dir / "tables" / "effects_full.csv")
-    assert set(table["lag"].astype(str)) == {"0", "1", "2", "0-1"}
+    assert set(table["lag"].astype(str)) == {"0", "1", "2", "0-1", "dl0-5"}
     assert set(table["exposure"]) == {"pm25", "pm10", "no2", "o3"}
-    assert len(table) == 3 * 4 * 4
+    assert len(table) == 3 * 4 * 5
+    assert "Hourly monitoring data: coverage and completeness" in page  # the demo's extra section
     pngs = list((demo_dir / "figures").glob("*.png"))
     assert len(pngs) >= 4 and all(p.stat().st_size > 5000 for p in pngs)
     # the table equals the single fit for one row

@@ -11,7 +11,6 @@ import pandas as pd
 import pytest
 
 import airhealth
-from airhealth.report.city_report import write_city_report
 from airhealth.report.exposure_plots import (
     plot_count_series,
     plot_coverage,
@@ -82,8 +81,8 @@ def test_exposure_figures_draw_with_dollar_names(data: pd.DataFrame) -> None:
 
 
 def test_a_whole_report_on_dollar_names_completes(data: pd.DataFrame, tmp_path: Path) -> None:
-    path, _ = write_city_report(
-        data, tmp_path / "r", [MATH_BREAKER], ["pm $2.5$ \\mu"], ["0"], lag_section=False, show_progress=False,
+    path = airhealth.write_report(
+        data, outcomes=[MATH_BREAKER], exposures=["pm $2.5$ \\mu"], lags=["0"], out=tmp_path / "r",
         temperature="temperature", small_count_threshold=10,
     )  # fmt: skip
     assert path.is_file() and len(list((tmp_path / "r" / "figures").glob("*.png"))) >= 3

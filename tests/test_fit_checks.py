@@ -72,3 +72,22 @@ def test_temperature_as_the_exposure_needs_temperature_none(data: pd.DataFrame) 
 def test_effect_html_is_escaped() -> None:
     e = relative_risk(0.001, 0.0005, exposure="<b>pm</b>", lag="0")
     assert "<b>pm</b>" not in e._repr_html_() and "&lt;b&gt;pm&lt;/b&gt;" in e._repr_html_()
+
+
+def test_iqr_falls_back_to_every_measured_day_when_no_day_used_has_a_same_day_value(sample):
+    # Monitoring every third day fitted at lag 1: no day used has its own same-day value, so the IQR is taken
+    # over every day with a value (numpy's quartiles, linear interpolation, as R's type 7).
+    import warnings
+
+    import numpy as np
+
+    import airhealth
+
+    data = sample[sample["date"] < "2013-01-01"].reset_index(drop=True)
+    data = data.assign(pm25=data["pm25"].where(data.index % 3 == 0))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = airhealth.fit(data, "deaths_all", "pm25", lag="1", temperature="temperature", trend_df_per_year=2)
+    measured = data["pm25"].dropna().to_numpy()
+    q1, q3 = np.percentile(measured, [25, 75])
+    assert result.exposure_iqr == q3 - q1

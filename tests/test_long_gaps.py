@@ -221,12 +221,12 @@ def test_aliasing_uses_r_default_relative_tolerance():
 
 
 def test_the_report_states_the_aliased_columns(city, tmp_path):
-    from airhealth.report.city_report import write_city_report
+    import airhealth
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        path, _ = write_city_report(
-            city, tmp_path / "report", ["deaths_all"], ["pm25"], ["0-1"], lag_section=False, show_progress=False,
+        path = airhealth.write_report(
+            city, outcomes=["deaths_all"], exposures=["pm25"], lags=["0-1"], out=tmp_path / "report",
             temperature="temperature",
         )  # fmt: skip
     page = path.read_text(encoding="utf-8")

@@ -184,3 +184,21 @@ def test_compare_gives_the_same_errors_and_honours_na_values(three_years):
         compare(coded, lags=["0", "0-1"], **options)
     table = compare(coded, lags=["0", "0-1"], na_values=[-999], **options)
     assert table["rr"].iloc[1] == pytest.approx(fit(coded, na_values=[-999]).effect().rr, rel=1e-9)  # grid path
+
+
+def test_a_code_that_could_be_a_count_never_erases_outcome_days(three_years):
+    # na_values=[0] declares 0 as "missing" in the exposure and weather columns; applied to the outcome it
+    # would silently drop every day with no deaths. Only codes that cannot be counts reach count columns.
+    data = three_years.assign(deaths_all=three_years["deaths_all"].where(three_years.index % 50 != 0, 0))
+    data.loc[[10, 20], "deaths_all"] = -999
+    cleaned = apply_na_values(
+        data, ["deaths_all", "pm25"], [0, -999], pd.DatetimeIndex(data["date"]), counts=["deaths_all"]
+    )
+    zero_days = (data["deaths_all"] == 0).sum()
+    assert zero_days > 0 and (cleaned["deaths_all"] == 0).sum() == zero_days
+    assert cleaned["deaths_all"].isna().sum() == 2  # the -999 codes
+    result = fit(data, na_values=[0, -999])
+    assert (
+        result.n_days
+        == fit(data.assign(deaths_all=data["deaths_all"].where(data["deaths_all"] >= 0)), na_values=[0]).n_days
+    )

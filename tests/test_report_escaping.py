@@ -10,7 +10,6 @@ import pandas as pd
 import pytest
 
 import airhealth
-from airhealth.report.city_report import write_city_report
 from airhealth.report.document import Figure, Section, Table, Text
 from airhealth.report.html import write_html_report
 from airhealth.report.plots import new_axes
@@ -91,15 +90,13 @@ def test_a_report_on_hostile_column_names_escapes_them(tmp_path: Path) -> None:
     """Outcome and exposure columns named with markup and quotes, through the whole one-city report."""
     data = airhealth.load_sample()
     data = data[data["date"] < "2013-01-01"].rename(columns={"deaths_all": SCRIPT, "pm25": QUOTES})
-    path, _ = write_city_report(
+    path = airhealth.write_report(
         data,
-        tmp_path / "report",
-        [SCRIPT],
-        [QUOTES],
-        ["0"],
+        outcomes=[SCRIPT],
+        exposures=[QUOTES],
+        lags=["0"],
+        out=tmp_path / "report",
         title=f"{SCRIPT} report",
-        lag_section=False,
-        show_progress=False,
         temperature="temperature",
     )
     page = path.read_text(encoding="utf-8")

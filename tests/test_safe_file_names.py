@@ -133,15 +133,13 @@ def test_repeated_block_names_get_distinct_files(tmp_path: Path) -> None:
 def test_the_measured_outcome_name_stays_inside_the_city_report(tmp_path: Path) -> None:
     """Before: write_city_report on an outcome called x/../../../escaped wrote <out>/../escaped.png."""
     import airhealth
-    from airhealth.report.city_report import write_city_report
 
     data = airhealth.load_sample()
     data = data[data["date"] < "2013-01-01"].rename(columns={"deaths_all": "x/../../../escaped"})
     out = tmp_path / "a" / "b" / "out"
-    write_city_report(
-        data, out, ["x/../../../escaped"], ["pm25"], ["0"], lag_section=False, show_progress=False,
-        temperature="temperature",
-    )  # fmt: skip
+    airhealth.write_report(
+        data, outcomes=["x/../../../escaped"], exposures=["pm25"], lags=["0"], out=out, temperature="temperature"
+    )
     written = [p for p in tmp_path.rglob("*") if p.is_file()]
     assert all(out in p.parents for p in written), [str(p) for p in written if out not in p.parents]
     forest = [p.name for p in (out / "figures").iterdir() if p.name.startswith("effects_forest_")]

@@ -13,7 +13,7 @@ import pytest
 
 import airhealth
 from airhealth.errors import SpecificationError
-from airhealth.report.city_report import city_sections
+from airhealth.report.city_report import report_content
 from airhealth.report.data_quality_section import data_quality_section
 from airhealth.report.document import Figure, Table
 from airhealth.report.html import write_html_report
@@ -180,11 +180,11 @@ def test_a_rare_outcome_is_left_out_of_the_figure(sample: pd.DataFrame) -> None:
 
 def test_the_city_report_applies_the_threshold_to_its_figure_and_count_table(sample: pd.DataFrame) -> None:
     data = sample[sample["date"] < "2013-01-01"]
-    sections, _ = city_sections(
-        data, ["admissions_respiratory", "deaths_all"], ["pm25"], ["0"], show_progress=False,
-        lag_section=False, small_count_threshold=10, temperature="temperature",
+    content = report_content(
+        data, ["admissions_respiratory", "deaths_all"], ["pm25"], ["0"], small_count_threshold=10,
+        temperature="temperature",
     )  # fmt: skip
-    blocks = [b for s in sections for b in s.blocks]
+    blocks = [b for s in content.sections for b in s.blocks]
     figure = next(b for b in blocks if isinstance(b, Figure) and b.name == "observed_fitted")
     observed = _line(figure.figure.axes[0], "observed")
     assert observed is None or not ((observed.get_ydata() > 0) & (observed.get_ydata() < 10)).any()

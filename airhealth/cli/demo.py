@@ -1,35 +1,32 @@
-"""``airhealth demo [--out DIR]``: the full one-city analysis on the bundled Norhaven sample."""
+"""``airhealth demo [--out DIR]``: ``airhealth report`` on the bundled Norhaven sample, plus its hourly NO2.
+
+The demo is the report command with fixed arguments: the sample's three outcomes, four pollutants and
+:data:`LAGS`, temperature as the weather control, and an extra section on the invented hourly NO2 readings.
+"""
 
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
 from typing import Any
+
+from .report import add_report_options, write_and_print
 
 OUTCOMES = ("deaths_all", "admissions_respiratory", "admissions_cardiovascular")
 POLLUTANTS = ("pm25", "pm10", "no2", "o3")
-LAGS = ("0", "1", "2", "0-1")
+LAGS = ("0", "1", "2", "0-1", "dl0-5")
+TITLE = "Norhaven (invented city): short-term effects of air pollution, 2010–2023"
 
 
 def register(sub: Any) -> None:
     """Add the ``demo`` sub-command."""
     p = sub.add_parser(
         "demo",
-        help="run the one-city analysis on the bundled sample data",
-        description="Fit every outcome × pollutant × lag on the invented Norhaven data and "
-        "write an HTML report with CSV tables and PNG figures.",
+        help="run the report on the bundled sample data",
+        description="Write the report (as 'airhealth report') for every outcome x pollutant x lag of the invented "
+        f"Norhaven data (lags {', '.join(LAGS)}), with a section on its hourly NO2 monitoring data.",
     )
-    p.add_argument(
-        "--out", type=Path, default=Path("airhealth-report"), help="output directory (default ./airhealth-report)"
-    )
-    p.add_argument(
-        "--suppress-below",
-        type=int,
-        default=None,
-        metavar="N",
-        help="suppress health counts below N in the report's tables and figures (local disclosure rules)",
-    )
-    p.set_defaults(func=run)
+    add_report_options(p)
+    p.set_defaults(func=run, title=TITLE)
 
 
 def hourly_section() -> Any:
@@ -47,29 +44,9 @@ def hourly_section() -> Any:
 
 def run(args: argparse.Namespace) -> int:
     """Run the demo; returns the exit code."""
-    import matplotlib
-
-    matplotlib.use("Agg")
-    from ..report.city_report import write_city_report
-    from ..report.tables import format_effects
     from ..sample import load_sample
 
-    data = load_sample()
-    path, table = write_city_report(
-        data,
-        args.out,
-        OUTCOMES,
-        POLLUTANTS,
-        LAGS,
-        temperature="temperature",
-        title="Norhaven (invented city): short-term effects of air pollution, 2010–2023",
-        small_count_threshold=args.suppress_below,
-        extra_sections=[hourly_section()],
-    )
-    import pandas as pd
-
-    with pd.option_context("display.width", 160, "display.max_rows", 200):
-        print(format_effects(table).to_string(index=False))
-    print(f"\nreport written to {path}")
-    print("Results are statistical associations, not proof of causation.")
-    return 0
+    return write_and_print(
+        load_sample(), args, [hourly_section()], outcomes=list(OUTCOMES), exposures=list(POLLUTANTS),
+        lags=list(LAGS), temperature="temperature",
+    )  # fmt: skip

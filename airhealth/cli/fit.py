@@ -10,9 +10,17 @@ import warnings
 from pathlib import Path
 from typing import Any
 
-import pandas as pd
-
-from .tables import read_table
+from .options import (
+    add_model_options,
+    add_reading_options,
+    check_min_count,
+    confidence_level,
+    model_options,
+    parse_units,
+    read_daily,
+    with_min_count,
+)
+from .remedies import with_command_line_remedy
 
 
 def register(sub: Any) -> None:
@@ -25,18 +33,10 @@ def register(sub: Any) -> None:
     p.add_argument("data", type=Path, help="CSV file with one row per day")
     p.add_argument("--outcome", required=True, help="column of daily counts")
     p.add_argument("--exposure", required=True, help="column of the daily pollutant level")
-    p.add_argument("--temperature", default=None, help="column of daily mean temperature (default: none)")
-    p.add_argument("--date", default="date", help='date column (default "date")')
     p.add_argument("--lag", default="0-1", help='lag: "0", "2", "0-1", "dl0-5", "dl0-7:poly3", ... (default "0-1")')
-    p.add_argument("--trend-df-per-year", type=float, default=7.0, help="df per year of the time spline (default 7)")
-    p.add_argument("--per", type=float, default=10.0, help="exposure increase for the relative risk (default 10)")
-    p.add_argument("--humidity", default=None, help="column of relative humidity (spline, 3 df)")
-    p.add_argument("--holidays", default=None, metavar="COUNTRY", help="ISO country code for a holiday indicator")
-    p.add_argument("--family", default="quasipoisson", help="quasipoisson (default), poisson or negbin")
-    p.add_argument("--seasonality", default="spline", help="spline (default) or fourier")
-    p.add_argument("--sep", default=",", help='field separator of the CSV (default ","; e.g. ";" or tab)')
-    p.add_argument("--decimal", default=".", help='decimal mark of the CSV (default "."; e.g. ",")')
     p.add_argument("--json", action="store_true", help="print the result as JSON")
+    add_model_options(p)
+    add_reading_options(p)
     p.set_defaults(func=run)
 
 
@@ -53,22 +53,14 @@ def _clean(value: Any) -> Any:
     return value
 
 
-def _fit(data: pd.DataFrame, args: argparse.Namespace) -> Any:
+def _fit(args: argparse.Namespace) -> Any:
     from ..model.fitting import fit
 
-    return fit(
-        data,
-        outcome=args.outcome,
-        exposure=args.exposure,
-        lag=args.lag,
-        temperature=args.temperature,
-        trend_df_per_year=args.trend_df_per_year,
-        date=args.date,
-        humidity=args.humidity,
-        holidays=args.holidays,
-        family=args.family,
-        seasonality=args.seasonality,
-    )
+    lag = with_min_count(args.lag, args.min_count)
+    check_min_count([lag], args.min_count)
+    units = parse_units(args.unit, [args.exposure])
+    data = read_daily(args, [args.outcome, args.exposure, args.temperature, args.humidity], [args.outcome])
+    return fit(data, outcome=args.outcome, exposure=args.exposure, lag=lag, units=units, **model_options(args))
 
 
 def run(args: argparse.Namespace) -> int:
@@ -77,20 +69,19 @@ def run(args: argparse.Namespace) -> int:
     Warnings raised while reading and fitting are printed to stderr even when the fit then fails, so a
     warning that explains an error (a calendar gap, say) is not lost.
     """
-    sep = "\t" if args.sep in ("tab", "\\t") else args.sep
-    data = read_table(args.data, sep=sep, decimal=args.decimal)
+    level = confidence_level(args.confidence)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            result = _fit(data, args)
+            result = _fit(args)
         finally:
             for w in caught:
-                print(f"warning: {w.message}", file=sys.stderr)
-    record = result.to_dict(per=args.per)
+                print(f"warning: {with_command_line_remedy(str(w.message))}", file=sys.stderr)
+    record = result.to_dict(per=args.per, level=level)
     if args.json:
         print(json.dumps(_clean(record), indent=2))
     else:
-        print(result.effect(per=args.per))
+        print(result.effect(per=args.per, level=level))
         print(
             f"dispersion {result.dispersion:.3f}, QAIC {result.qaic:.1f}, {result.n_days} days used, "
             f"{len(result.dropped)} dropped"

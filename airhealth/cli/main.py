@@ -11,9 +11,11 @@ import importlib
 import sys
 from collections.abc import Sequence
 
+from .. import __version__
 from ..errors import AirhealthError
+from .remedies import with_command_line_remedy
 
-COMMANDS = ("demo", "fit", "daily")
+COMMANDS = ("report", "fit", "align", "daily", "demo")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -22,6 +24,7 @@ def build_parser() -> argparse.ArgumentParser:
         prog="airhealth",
         description="Short-term health effects of air pollution from daily time series.",
     )
+    parser.add_argument("--version", action="version", version=f"airhealth {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name in COMMANDS:
         try:
@@ -44,7 +47,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return int(args.func(args) or 0)
     except AirhealthError as exc:
-        print(f"airhealth {args.command}: error: {exc}", file=sys.stderr)
+        print(f"airhealth {args.command}: error: {with_command_line_remedy(str(exc))}", file=sys.stderr)
         return 2
     except BrokenPipeError:  # output piped into a program that stopped reading (e.g. head)
         sys.stderr.close()

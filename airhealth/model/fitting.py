@@ -76,6 +76,17 @@ def warn_if_suspicious(design: Design, spec: ModelSpec, dispersion: float) -> No
         )
 
 
+def _exposure_quartiles(design: Design) -> tuple[float, float]:
+    """Quartiles of the daily exposure on the days used, or on every day with a value when none of the days
+    used has a same-day value (e.g. monitoring every third day fitted at lag 1)."""
+    exposure = design.exposure_raw[design.used]
+    exposure = exposure[np.isfinite(exposure)]
+    if exposure.size == 0:
+        exposure = design.exposure_raw[np.isfinite(design.exposure_raw)]
+    q1, q3 = np.percentile(exposure, [25, 75])
+    return float(q1), float(q3)
+
+
 def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
     """Package an engine fit and its design into a :class:`FitResult`.
 
@@ -88,8 +99,7 @@ def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
         spec = spec.replace(family=glm.family)
     names = list(design.column_names)
     dates = design.calendar[design.used]
-    exposure = design.exposure_raw[design.used]
-    q1, q3 = np.nanpercentile(exposure, [25, 75])
+    q1, q3 = _exposure_quartiles(design)
     return FitResult(
         spec=spec,
         coef=pd.Series(glm.coef, index=names, name="coef"),

@@ -1,7 +1,7 @@
 """Data preparation: validate daily tables and align them on a complete calendar; lags; calendar terms;
 hourly monitoring data to daily series; units; description of exposures."""
 
-from .align import align_daily, prepare_daily
+from .align import align_daily, merge_duplicate_days, prepare_daily, restrict_months, restrict_period
 from .calendar import complete_calendar, day_of_week, holiday_indicator
 from .describe import correlation_matrix, table_one
 from .hourly import aggregate_daily, daily_statistic, validity_rule
@@ -24,9 +24,12 @@ __all__ = [
     "holiday_indicator",
     "lag_matrix",
     "lagged",
+    "merge_duplicate_days",
     "monitor_agreement",
     "moving_average",
     "prepare_daily",
+    "restrict_months",
+    "restrict_period",
     "screen_monitor_years",
     "table_one",
     "validity_rule",

@@ -2,14 +2,28 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+from typing import Literal
+
 import numpy as np
 import pandas as pd
 
-from ..errors import DataError
+from .._choices import check_choice
+from .._warn import warn_user
+from ..errors import DataError, DataWarning, SpecificationError
 from .calendar import complete_calendar
 from .validate import check_daily_dates, parse_dates, require_columns
 
-__all__ = ["align_daily", "prepare_daily"]
+__all__ = [
+    "DuplicateDays",
+    "align_daily",
+    "merge_duplicate_days",
+    "prepare_daily",
+    "restrict_months",
+    "restrict_period",
+]
+
+DuplicateDays = Literal["error", "mean", "first"]
 
 
 def prepare_daily(frame: pd.DataFrame, date: str = "date", what: str = "data") -> pd.DataFrame:
@@ -113,3 +127,125 @@ def align_daily(
     calendar = pd.date_range(lo, hi, freq="D", name=date)
     joined = pd.concat([p.reindex(calendar) for p in prepared], axis=1)
     return joined.reset_index()
+
+
+def _as_day(value: str | pd.Timestamp, name: str) -> pd.Timestamp:
+    try:
+        day = pd.Timestamp(value)
+    except (ValueError, TypeError) as exc:
+        raise SpecificationError(f"{name} {value!r} is not a date; use an ISO date such as 2015-03-31.") from exc
+    if day != day.normalize():
+        raise SpecificationError(f"{name} {value!r} has a time of day; give a whole day such as 2015-03-31.")
+    return day
+
+
+def restrict_period(
+    frame: pd.DataFrame,
+    start: str | pd.Timestamp | None = None,
+    end: str | pd.Timestamp | None = None,
+    date: str = "date",
+    what: str = "data",
+) -> pd.DataFrame:
+    """The rows of ``frame`` dated from ``start`` to ``end`` (both included), as a new frame.
+
+    Use it to fit a period with complete data, or to leave out a long gap at either end. ``None`` leaves
+    that end open. The caller's frame is not modified; the rows keep their order and values.
+
+    Raises
+    ------
+    SpecificationError
+        If ``start`` or ``end`` is not a whole day, or ``end`` is before ``start``.
+    DataError
+        If the dates cannot be read (see :func:`~airhealth.prep.validate.parse_dates`) or no row falls in the
+        period (the message gives the period the data cover).
+
+    Examples
+    --------
+    >>> data = pd.DataFrame({"date": ["2020-01-01", "2020-01-02", "2020-01-03"], "deaths": [3, 5, 4]})
+    >>> restrict_period(data, start="2020-01-02")["deaths"].tolist()
+    [5, 4]
+    """
+    lo = None if start is None else _as_day(start, "start")
+    hi = None if end is None else _as_day(end, "end")
+    if lo is not None and hi is not None and hi < lo:
+        raise SpecificationError(f"the period is empty: end {hi:%Y-%m-%d} is before start {lo:%Y-%m-%d}.")
+    dates = parse_dates(frame, date, what)
+    keep = np.ones(len(frame), dtype=bool)
+    if lo is not None:
+        keep &= dates >= lo
+    if hi is not None:
+        keep &= dates <= hi
+    if not keep.any():
+        period = f"{'the start' if lo is None else f'{lo:%Y-%m-%d}'} to {'the end' if hi is None else f'{hi:%Y-%m-%d}'}"
+        raise DataError(
+            f"no row of {what} falls in the period {period}: its dates run from {dates.min():%Y-%m-%d} to "
+            f"{dates.max():%Y-%m-%d}."
+        )
+    return frame.loc[keep].reset_index(drop=True)
+
+
+def restrict_months(frame: pd.DataFrame, months: Sequence[int], date: str = "date", what: str = "data") -> pd.DataFrame:
+    """The rows of ``frame`` in the calendar ``months`` (1-12) of every year, as a new frame.
+
+    For a season-restricted analysis, e.g. an exposure measured only from April to September: the months
+    left out become calendar gaps, which the model handles as missing days. The caller's frame is not
+    modified.
+
+    Raises
+    ------
+    SpecificationError
+        If a month is not a whole number from 1 to 12.
+    DataError
+        If no row falls in those months.
+    """
+    chosen = sorted(set(months))
+    if not chosen or any(
+        isinstance(m, bool) or not isinstance(m, int | np.integer) or not 1 <= m <= 12 for m in chosen
+    ):
+        raise SpecificationError(f"months must be whole numbers from 1 to 12, got {list(months)!r}.")
+    dates = parse_dates(frame, date, what)
+    keep = np.isin(dates.month, chosen)
+    if not keep.any():
+        raise DataError(f"no row of {what} falls in the months {chosen}.")
+    return frame.loc[keep].reset_index(drop=True)
+
+
+def merge_duplicate_days(
+    frame: pd.DataFrame, how: DuplicateDays = "error", date: str = "date", what: str = "data"
+) -> pd.DataFrame:
+    """One row per date: several rows of the same date are averaged (``"mean"``) or the first is kept.
+
+    ``"error"`` returns ``frame`` unchanged (duplicated dates are then an error of the date checks). With
+    ``"mean"``, numeric columns are averaged (a count averaged over rows that differ is no longer a whole
+    number, and is refused later as a count) and other columns keep their first value. Dates are parsed
+    (:func:`~airhealth.prep.validate.parse_dates`) and the rows keep the order of each date's first
+    appearance. A :class:`~airhealth.errors.DataWarning` says how many dates were merged and how.
+
+    Examples
+    --------
+    >>> data = pd.DataFrame({"date": ["2020-01-01", "2020-01-01", "2020-01-02"], "pm25": [10.0, 12.0, 9.0]})
+    >>> merge_duplicate_days(data, "mean")["pm25"].tolist()  # doctest: +SKIP
+    [11.0, 9.0]
+    """
+    check_choice("duplicates", how, DuplicateDays)
+    if how == "error":
+        return frame
+    dates = parse_dates(frame, date, what)
+    repeated = dates[dates.duplicated()].unique()
+    if not len(repeated):
+        return frame
+    keyed = frame.assign(**{date: dates})
+    if how == "first":
+        merged = keyed.loc[~dates.duplicated()]
+    else:
+        groups = keyed.groupby(date, sort=False)
+        numeric = [c for c in frame.columns if c != date and pd.api.types.is_numeric_dtype(frame[c])]
+        merged = groups.first()
+        merged[numeric] = groups[numeric].mean()
+        merged = merged.reset_index()[list(frame.columns)]
+    shown = ", ".join(f"{d:%Y-%m-%d}" for d in repeated[:5]) + (" ..." if len(repeated) > 5 else "")
+    action = "averaged their rows" if how == "mean" else "kept the first row of each"
+    n = len(repeated)
+    lead = f"{n} dates appear" if n > 1 else "1 date appears"
+    warn_user(f"{lead} more than once in {what} ({shown}); {action}.", DataWarning)
+    return merged.reset_index(drop=True)

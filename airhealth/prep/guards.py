@@ -81,7 +81,7 @@ def clean_values(frame: pd.DataFrame, roles: ColumnRoles, na_values: Iterable[ob
     The caller's frame is not modified.
     """
     dates = pd.DatetimeIndex(frame[roles.date])
-    out = apply_na_values(frame, roles.numeric, na_values, dates)
+    out = apply_na_values(frame, roles.numeric, na_values, dates, counts=[roles.outcome])
     searched = [c for c in roles.numeric if c not in roles.no_codes]
     check_missing_codes(out, searched, dates, counts=[roles.outcome])
     return out

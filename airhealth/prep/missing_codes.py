@@ -153,8 +153,12 @@ def apply_na_values(
     columns: Iterable[str],
     na_values: Iterable[object],
     dates: pd.DatetimeIndex,
+    counts: Iterable[str] = (),
 ) -> pd.DataFrame:
     """``frame`` with declared missing-value codes set missing and text columns made numeric.
+
+    In the ``counts`` columns (the outcome) only codes that cannot be a count are applied (text, negative or
+    fractional numbers): a declared code 0 or 999 must not erase days with no (or 999) deaths.
 
     Returns a copy when anything changes, ``frame`` itself otherwise (it is never modified).
 
@@ -169,6 +173,8 @@ def apply_na_values(
         stripping spaces, and a text that reads as a number matches that number.
     dates : DatetimeIndex
         The dates of the rows, for messages.
+    counts : iterable of str
+        Count columns, where whole non-negative codes are left alone.
 
     Raises
     ------
@@ -189,14 +195,17 @@ def apply_na_values(
     if not columns:
         return frame
     out = frame.copy()
+    count_columns = set(counts)
+    not_counts = [v for v in codes.numbers if v < 0 or v != round(v)]
     for column in columns:
         values = out[column]
         if pd.api.types.is_bool_dtype(values):
             continue
         if _is_text(values):
             values = _text_to_numbers(values, column, dates, codes.texts)
-        if codes.numbers and pd.api.types.is_numeric_dtype(values):
-            values = values.where(~values.isin(list(codes.numbers)))
+        numbers = not_counts if column in count_columns else list(codes.numbers)
+        if numbers and pd.api.types.is_numeric_dtype(values):
+            values = values.where(~values.isin(numbers))
         out[column] = values
     return out
 

@@ -1,30 +1,41 @@
-"""The one-city analysis report: effect estimates for several outcomes, pollutants and lags.
+"""The one-city report for the user's own data: the outcomes, exposures and lag structures asked for, and no more.
 
-:func:`city_sections` fits the models and returns report sections; :func:`write_city_report` writes them
-as HTML with CSV tables and PNG figures.
+:func:`write_report` fits every outcome × exposure × lag structure, builds the report sections and writes
+them as HTML with CSV tables and PNG figures (``airhealth report`` on the command line; ``airhealth demo``
+runs it on the bundled sample). An outcome or exposure whose data fail (no events, a constant series, a
+lag window that leaves too few days, ...) is listed in the report with its error, and the rest completes.
 """
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import pandas as pd
 
-from .._progress import progress
-from ..model.compare import compare_results
-from ..model.spec import ModelSpec
+from ..errors import DataError
+from ..model.spec import DEFAULT_UNIT, ModelSpec
 from ..prep.describe import table_one
 from .data_quality_section import data_quality_section
 from .document import Figure, Section, Table, Text
 from .html import write_html_report
-from .lag_section import lag_structure_section
+from .lag_plots import plot_lag_response
 from .plots import observed_fitted_figure, plain, plot_effects
+from .report_fits import ReportFits, ReportRequest, check_request, fit_request
 from .suppression import smallest_positive
 from .tables import effects_table, format_effects
 
-__all__ = ["city_sections", "count_summary", "describe_model", "write_city_report"]
+__all__ = [
+    "ReportContent",
+    "check_output_folder",
+    "count_summary",
+    "describe_model",
+    "report_content",
+    "write_content",
+    "write_report",
+]
 
 _FAMILY = {
     "quasipoisson": "Quasi-Poisson",
@@ -33,7 +44,9 @@ _FAMILY = {
 }
 
 
-def describe_model(spec: ModelSpec, n_calendar: int, per: float = 10.0, unit: str = "µg/m³") -> str:
+def describe_model(
+    spec: ModelSpec, n_calendar: int, per: float = 10.0, unit: str = DEFAULT_UNIT, level: float = 0.95
+) -> str:
     """A plain-English description of the confounder model of ``spec``, for a report's methods section."""
     years = n_calendar / 365.25
     if spec.seasonality == "spline":
@@ -58,8 +71,9 @@ def describe_model(spec: ModelSpec, n_calendar: int, per: float = 10.0, unit: st
     parts += [f"{t.name}" for t in spec.confounders]
     return (
         "; ".join(parts)
-        + f". Relative risks are per {per:g} {unit} with 95% Wald intervals; single-day lags use the exposure "
-        "of that day, moving averages the mean of the days shown."
+        + f". Relative risks are per {per:g} {unit} with {level:.0%} Wald intervals; single-day lags use the "
+        "exposure of that day, moving averages the mean of the days shown, distributed lags the sum of the "
+        "effects of every lag day (the cumulative effect)."
     )
 
 
@@ -75,14 +89,61 @@ def count_summary(data: pd.DataFrame, outcomes: Sequence[str]) -> pd.DataFrame:
     })  # fmt: skip
 
 
-def _forest_figures(table: pd.DataFrame, per: float, unit: str) -> list[Figure]:
-    """One forest plot per outcome, rows labelled by pollutant and lag."""
+@dataclass
+class ReportContent:
+    """What a report holds before it is written: sections, the effects table and what could not be done."""
+
+    sections: list[Section]
+    effects: pd.DataFrame
+    failures: pd.DataFrame  # outcome, exposure, lag, error
+    warnings: pd.DataFrame  # outcome, exposure, warning
+    main: Any  # the FitResult of the main model
+
+
+# -- sections ----------------------------------------------------------------------------------------------
+
+
+def _unit_text(exposures: Sequence[str], request: ReportRequest) -> str:
+    """The one unit of ``exposures``, or words saying that they differ."""
+    used = {request.unit_of(e) for e in exposures}
+    return used.pop() if len(used) == 1 else "units of each exposure (see the 'per' column)"
+
+
+def _per_text(per: float, exposures: Sequence[str], request: ReportRequest) -> str:
+    return f"{per:g} {_unit_text(exposures, request)}"
+
+
+def _effects_tables(table: pd.DataFrame, per: float, level: float, request: ReportRequest) -> list[Any]:
+    shown = format_effects(table).rename(columns={"RR (95% CI)": f"RR ({level:.0%} CI)"})
+    shown.insert(3, "per", [f"{per:g} {request.unit_of(e)}" for e in table["exposure"]])
+    exposures = list(dict.fromkeys(table["exposure"]))
+    return [
+        Table(
+            f"Relative risks per {_per_text(per, exposures, request)}",
+            shown,
+            "effects",
+            note="Each row is a separate model for one outcome, exposure and lag. QAIC compares models fitted on "
+            "the same days only: rows with different day counts are not comparable.",
+        ),
+        Table("Estimates at full precision", table, "effects_full", display=False),
+    ]
+
+
+def _forest_figures(table: pd.DataFrame, per: float, level: float, request: ReportRequest) -> list[Figure]:
+    """One forest plot per outcome, rows labelled by exposure (with its unit) and lag."""
     figures = []
     for outcome, rows in table.groupby("outcome", sort=False):
-        labels = [f"{r.exposure} · lag {r.lag}" for r in rows.itertuples()]
-        ax = plot_effects(rows, labels=labels, per_label=f"{per:g} {unit}")
+        exposures = list(dict.fromkeys(rows["exposure"]))
+        single = len({request.unit_of(e) for e in exposures}) == 1
+        labels = [
+            f"{r.exposure} · lag {r.lag}" + ("" if single else f" (per {per:g} {request.unit_of(r.exposure)})")
+            for r in rows.itertuples()
+        ]
+        per_label = _per_text(per, exposures, request) if single else f"{per:g} units"
+        ax = plot_effects(rows, labels=labels, per_label=per_label)
+        ax.set_xlabel(plain(f"relative risk per {per_label} ({level:.0%} CI)"))
         ax.set_title(plain(outcome))
-        title = f"{outcome}: relative risks per {per:g} {unit} with 95% intervals"
+        title = f"{outcome}: relative risks per {_per_text(per, exposures, request)} with {level:.0%} intervals"
         figures.append(Figure(title, ax.figure, f"effects_forest_{outcome}"))
     return figures
 
@@ -94,108 +155,260 @@ def fit_notes(results: Sequence[Any]) -> list[Text]:
     return [Text(f"Note ({', '.join(labelled[n])}): {n}") for n in notes]
 
 
-def city_sections(
+def _main_blocks(
+    main: Any, replaced: str, small_count_threshold: int | None = None, results: Sequence[Any] = ()
+) -> list[Any]:
+    """The main model: which it is, its fit against the data, its dropped days; then the fits' notes.
+
+    The main model's aliased columns are listed by name unless one of its notes already names them; the
+    notes of every fit (``results``, which include the main one) follow, one paragraph per distinct note.
+    """
+    spec = main.spec
+    name = f"{spec.outcome}, {spec.exposure} ({spec.unit}), lag {spec.lag.label}"
+    blocks: list[Any] = [Text(replaced or f"The main model is {name}.")]
+    if main.aliased and not any(main.aliased[0] in note for note in main.notes):
+        blocks.append(
+            Text(
+                "Columns of the confounder model with no support among the days used were dropped (aliased), as "
+                f"R's glm does: {', '.join(main.aliased)}."
+            )
+        )
+    blocks += [
+        observed_fitted_figure(main, small_count_threshold),
+        Table(
+            "Days left out of the main model",
+            main.drop_summary().rename_axis("reason").reset_index(),
+            "dropped_days",
+        ),
+        *fit_notes(results),
+    ]
+    return blocks
+
+
+def _lag_blocks(results: list[Any], per: float, level: float) -> list[Any]:
+    """Per-lag effects and lag-response figures of the distributed lags of the main outcome and exposure."""
+    distributed = [r for r in results if r is not None and r.spec.lag.is_distributed]
+    if not distributed:
+        return []
+    frames = [r.lag_effects(per=per, level=level).assign(lag_structure=r.spec.lag.label) for r in distributed]
+    table = pd.concat(frames, ignore_index=True)[["lag_structure", "lag", "coef", "se", "rr", "rr_low", "rr_high"]]
+    blocks: list[Any] = [Table("Per-lag effects of the distributed lags", table, "lag_effects")]
+    for r in distributed:
+        ax = plot_lag_response(r, per=per, level=level)
+        ax.set_ylabel(plain(f"RR per {per:g} {r.spec.unit}"))
+        name = "lag_response_" + "".join(ch if ch.isalnum() else "_" for ch in r.spec.lag.label)
+        title = f"{r.spec.exposure}: relative risk per {per:g} {r.spec.unit} at each lag, {r.spec.lag.label}"
+        blocks.append(Figure(title, ax.figure, name))
+    return blocks
+
+
+def _problem_sections(failures: pd.DataFrame, caught: pd.DataFrame) -> list[Section]:
+    sections = []
+    if len(failures):
+        sections.append(
+            Section(
+                "Analyses that could not be completed",
+                [
+                    Text(
+                        "These outcome and exposure combinations failed on their data; every other analysis below "
+                        "is complete. 'all' means every lag structure failed with the same message."
+                    ),
+                    Table("Failed analyses", failures, "failed_analyses"),
+                ],
+            )
+        )
+    if len(caught):
+        sections.append(Section("Warnings", [Table("Warnings raised while fitting", caught, "warnings")]))
+    return sections
+
+
+def _asked_text(request: ReportRequest, main: Any) -> str:
+    with_units = ", ".join(f"{e} ({request.unit_of(e)})" for e in request.exposures)
+    return (
+        f"Outcomes: {', '.join(request.outcomes)}. Exposures: {with_units}. Lag structures: "
+        f"{', '.join(lag.label for lag in request.lags)}. Main model: {main.spec.outcome}, {main.spec.exposure}, "
+        f"lag {main.spec.lag.label}."
+    )
+
+
+def _count_section(data: pd.DataFrame, outcomes: list[str]) -> Section:
+    """The daily counts per outcome; small counts, and totals and means resting on them, are suppressed."""
+    table = Table(
+        "Daily counts per outcome",
+        count_summary(data, outcomes).round(2),
+        "daily_counts",
+        count_columns=("min", "p25", "median", "p75", "max"),
+        aggregate_columns=("total", "mean", "sd"),
+        smallest_counts=smallest_positive(data, outcomes),
+    )
+    return Section("Daily health counts", [table])
+
+
+def _effects(fits: ReportFits, per: float, level: float) -> pd.DataFrame:
+    """The effects table: one row per successful fit, with the exposure's unit beside ``per``."""
+    table = effects_table(fits.done, per=per, level=level)
+    table.insert(table.columns.get_loc("per") + 1, "unit", [r.spec.unit for r in fits.done])
+    return table
+
+
+def _sections(
     data: pd.DataFrame,
-    outcomes: Sequence[str],
-    exposures: Sequence[str],
-    lags: Sequence[str] = ("0", "1", "2", "0-1"),
+    request: ReportRequest,
+    fits: ReportFits,
+    table: pd.DataFrame,
+    options: dict[str, Any],
+    threshold: int | None,
+) -> list[Section]:
+    """Every section of the report, in order (``threshold``: the small-count threshold of the figures)."""
+    per, level, main, done = request.per, request.level, fits.main, fits.done
+    outcomes = list(dict.fromkeys(r.spec.outcome for r in done))
+    exposures = list(dict.fromkeys(r.spec.exposure for r in done))
+    model_text = describe_model(main.spec, len(data), per, _unit_text(exposures, request), level)
+    weather = [c for c in (options.get("temperature"), options.get("humidity")) if c]
+    main_pair = fits.results[(main.spec.outcome, main.spec.exposure)]
+    return [
+        Section("Analyses", [Text(_asked_text(request, main)), Text(model_text)]),
+        *_problem_sections(fits.failures, fits.warnings),
+        _count_section(data, outcomes),
+        Section("Effect estimates", [*_effects_tables(table, per, level, request), *_forest_figures(table, per, level, request)]),  # noqa: E501
+        Section("Main model", [*_main_blocks(main, fits.main_note, threshold, done), *_lag_blocks(main_pair, per, level)]),  # noqa: E501
+        data_quality_section(
+            data, [*exposures, *weather], exposures=exposures, date=options.get("date", "date"),
+            units={e: request.unit_of(e) for e in exposures},
+        ),
+    ]  # fmt: skip
+
+
+def report_content(
+    data: pd.DataFrame,
+    outcomes: Sequence[str] | str,
+    exposures: Sequence[str] | str,
+    lags: Sequence[Any],
+    main_lag: Any = None,
+    units: Mapping[str, str] | None = None,
     per: float = 10.0,
-    unit: str = "µg/m³",
-    show_progress: bool = True,
-    lag_section: bool = True,
+    level: float = 0.95,
+    show_progress: bool = False,
     small_count_threshold: int | None = None,
     **model_options: Any,
-) -> tuple[list[Section], pd.DataFrame]:
-    """Fit every outcome × exposure × lag and build the report sections; returns (sections, effects table).
+) -> ReportContent:
+    """Fit and build the report's sections without writing anything; see :func:`write_report`.
 
-    The first outcome and exposure are the main model: its fit is shown against the data and its lag
-    structures are explored in a section of their own (``lag_section=False`` leaves that out).
+    ``small_count_threshold`` decides what the figures of daily counts show (the tables are suppressed when
+    written); give the writer the same threshold.
     """
-    results: list[Any] = []
-    pairs = [(o, e) for o in outcomes for e in exposures]
-    for outcome, exposure in progress(pairs, label="outcome × pollutant", enabled=show_progress):
-        results.extend(compare_results(data, lags, outcome=outcome, exposure=exposure, **model_options))
-    main = results[len(lags) - 1]
-    table = effects_table(results, per=per)
-    sections = [
-        Section("Model", [Text(describe_model(main.spec, len(data), per, unit))]),
-        Section(
-            "Daily health counts",
-            [
-                Table(
-                    "Daily counts per outcome",
-                    count_summary(data, outcomes).round(2),
-                    "daily_counts",
-                    count_columns=("min", "p25", "median", "p75", "max"),
-                    aggregate_columns=("total", "mean", "sd"),
-                    smallest_counts=smallest_positive(data, outcomes),
-                ),
-            ],
-        ),
-        Section(
-            "Effect estimates",
-            [
-                Table(
-                    f"Relative risks per {per:g} {unit}",
-                    format_effects(table),
-                    "effects",
-                    note="Each row is a separate model for one outcome, pollutant and lag. QAIC compares models "
-                    "fitted on the same days only: rows with different day counts are not comparable.",
-                ),
-                Table("Estimates at full precision", table, "effects_full", display=False),
-                *_forest_figures(table, per, unit),
-            ],
-        ),
-        Section(
-            "Model checks",
-            [
-                observed_fitted_figure(main, small_count_threshold),
-                Table(
-                    "Days left out of the main model",
-                    main.drop_summary().rename_axis("reason").reset_index(),
-                    "dropped_days",
-                ),
-                *fit_notes(results),
-            ],
-        ),
-    ]
-    weather = [c for c in (model_options.get("temperature"), model_options.get("humidity")) if c]
-    sections.append(data_quality_section(data, [*exposures, *weather], exposures=list(exposures)))
-    if lag_section:
-        sections.append(
-            lag_structure_section(data, outcome=outcomes[0], exposure=exposures[0], per=per, **model_options)
-        )
-    return sections, table
+    columns = [model_options.get(k) for k in ("date", "temperature", "humidity", "offset")]
+    columns[0] = columns[0] or "date"
+    request = check_request(
+        data, outcomes, exposures, lags, main_lag, units, per, level, columns=columns, model_options=model_options
+    )
+    fits = fit_request(data, request, show_progress=show_progress, **model_options)
+    effects = _effects(fits, request.per, request.level)
+    sections = _sections(data, request, fits, effects, model_options, small_count_threshold)
+    return ReportContent(sections, effects, fits.failures, fits.warnings, fits.main)
 
 
-def write_city_report(
+def check_output_folder(out: str | Path) -> None:
+    """Refuse an output path that is an existing file before any work is done (the report is a folder)."""
+    path = Path(out)
+    if path.exists() and not path.is_dir():
+        raise DataError(f"the report goes into a folder, but {str(path)!r} is a file; give a folder path.")
+
+
+def write_report(
     data: pd.DataFrame,
-    out_dir: str | Path,
     outcomes: Sequence[str],
     exposures: Sequence[str],
-    lags: Sequence[str] = ("0", "1", "2", "0-1"),
-    title: str = "Short-term effects of air pollution",
+    lags: Sequence[Any],
+    out: str | Path,
+    main_lag: Any = None,
+    units: Mapping[str, str] | None = None,
+    per: float = 10.0,
     small_count_threshold: int | None = None,
-    show_progress: bool = True,
+    *,
+    level: float = 0.95,
+    title: str | None = None,
+    show_progress: bool = False,
     extra_sections: Sequence[Section] = (),
-    **options: Any,
-) -> tuple[Path, pd.DataFrame]:
-    """Fit, build and write the one-city report; returns the path of ``index.html`` and the effects table.
+    **model_options: Any,
+) -> Path:
+    """Fit the outcomes × exposures × lag structures asked for and write an HTML report of them.
 
-    ``options`` are those of :func:`city_sections` (``per``, ``unit``, ``lag_section``) and any model option.
-    Counts below ``small_count_threshold`` are suppressed in the count tables and figures (local disclosure
-    rules: :mod:`airhealth.report.suppression`).
+    Parameters
+    ----------
+    data : DataFrame
+        One row per day (see :func:`airhealth.align_daily` to build it from separate tables). Not modified.
+    outcomes, exposures : sequence of str
+        Columns of daily counts and of daily exposure levels. Every combination is fitted.
+    lags : sequence
+        Lag structures (``"0"``, ``"0-1"``, ``"dl0-5"``, ``"dl0-21:spline4"`` or objects such as
+        ``MovingAverage(0, 3, min_count=2)``).
+    out : path
+        Output folder: ``index.html``, ``tables/*.csv``, ``figures/*.png``.
+    main_lag : str or LagStructure, optional
+        The lag of the main model (default: the first of ``lags``). The main model is the first outcome and
+        the first exposure at this lag: its fit is shown against the data, with its dropped days, its aliased
+        columns and notes, and the per-lag effects of the distributed lags.
+    units : mapping, optional
+        Unit of each exposure, e.g. ``{"o3": "ppb"}`` (default µg/m³); carried into every label, table, axis
+        and the ``unit`` column of the effects table.
+    per : float
+        Exposure increase for the relative risks (default 10).
+    small_count_threshold : int, optional
+        Health counts from 1 to this threshold − 1 are suppressed in the report (local disclosure rules).
+    level : float
+        Confidence level of the intervals (default 0.95).
+    title : str, optional
+        Page heading.
+    show_progress : bool
+        Report progress on stderr.
+    extra_sections : sequence of Section
+        Further sections appended to the report (the demo's hourly monitoring data).
+    **model_options
+        Any :class:`~airhealth.model.spec.ModelSpec` option (``temperature``, ``trend_df_per_year``,
+        ``humidity``, ``family``, ``na_values``, ...).
+
+    Returns
+    -------
+    Path
+        The path of ``index.html``.
+
+    Raises
+    ------
+    SpecificationError
+        For a bad argument (a lag not understood, a main lag not among ``lags``, a unit for a column that is
+        not an exposure, ...).
+    DataError
+        For a column that does not exist, or when no analysis at all could be completed (the message lists
+        each failure). An analysis that fails while others succeed does not raise: it is listed in the report
+        under "Analyses that could not be completed", with its message.
+
+    Examples
+    --------
+    >>> import airhealth, tempfile
+    >>> path = airhealth.write_report(airhealth.load_sample(), outcomes=["deaths_all"], exposures=["pm25"],
+    ...                               lags=["0", "0-1"], out=tempfile.mkdtemp(),
+    ...                               temperature="temperature")  # doctest: +SKIP
     """
-    sections, table = city_sections(
-        data,
-        outcomes,
-        exposures,
-        lags,
-        show_progress=show_progress,
-        small_count_threshold=small_count_threshold,
-        **options,
+    check_request(data, outcomes, exposures, lags, main_lag, units, per, level, small_count_threshold)
+    check_output_folder(out)
+    content = report_content(
+        data, outcomes, exposures, lags, main_lag=main_lag, units=units, per=per, level=level,
+        show_progress=show_progress, small_count_threshold=small_count_threshold, **model_options,
+    )  # fmt: skip
+    return write_content(content, out, title, small_count_threshold, extra_sections)
+
+
+def write_content(
+    content: ReportContent,
+    out: str | Path,
+    title: str | None = None,
+    small_count_threshold: int | None = None,
+    extra_sections: Sequence[Section] = (),
+) -> Path:
+    """Write built report content as HTML (see :func:`write_report`)."""
+    outcomes = ", ".join(dict.fromkeys(content.effects["outcome"]))
+    heading = title or f"Short-term effects of air pollution on daily {outcomes}"
+    return write_html_report(
+        [*content.sections, *extra_sections], out, title=heading, small_count_threshold=small_count_threshold
     )
-    path = write_html_report(
-        [*sections, *extra_sections], out_dir, title=title, small_count_threshold=small_count_threshold
-    )
-    return path, table

@@ -5,7 +5,7 @@ The functions build :class:`~airhealth.report.document.Section` values only; wri
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 
 import pandas as pd
 
@@ -35,6 +35,7 @@ def data_quality_section(
     date: str = "date",
     count_columns: Sequence[str] = (),
     suppress_below: int | None = None,
+    units: Mapping[str, str] | None = None,
 ) -> Section:
     """Table 1, correlation matrix, and time-series and seasonal plots of the daily data.
 
@@ -61,8 +62,13 @@ def data_quality_section(
         Which of ``columns`` hold health counts.
     suppress_below : int, optional
         Disclosure threshold for the counts.
+    units : mapping, optional
+        Unit of some columns (e.g. ``{"o3": "ppb"}``): a ``unit`` column of Table 1 and the axis labels.
     """
+    units = dict(units or {})
     describe = _suppressed_table_one(daily, columns, count_columns, suppress_below)
+    if units:
+        describe.insert(1, "unit", [units.get(c, "") for c in describe["variable"]])
     corr = correlation_matrix(daily, columns, method=correlation_method).round(2)
     fewest = int(pair_counts(daily, columns).to_numpy().min())
     dates = pd.to_datetime(daily[date])
@@ -83,9 +89,10 @@ def data_quality_section(
         if column in count_columns and suppress_below is not None:
             blocks += _count_figures(daily, column, date, suppress_below)
             continue
-        series_ax = plot_exposure_series(daily, column, date=date)
+        label = f"{column} ({units[column]})" if column in units else None
+        series_ax = plot_exposure_series(daily, column, date=date, label=label)
         blocks.append(Figure(f"{column} over time", series_ax.figure, name=f"series_{column}"))
-        season_ax = plot_seasonal_pattern(daily, column, date=date)
+        season_ax = plot_seasonal_pattern(daily, column, date=date, label=label)
         blocks.append(
             Figure(
                 f"{column} by month",

@@ -1,0 +1,119 @@
+"""``airhealth report DATA.csv --outcome COL --exposure COL --lags 0,1,0-1,dl0-5 --out DIR``: the HTML report.
+
+Fits every outcome × exposure × lag structure asked for and writes ``DIR/index.html`` with CSV tables and
+PNG figures (:func:`airhealth.write_report`). An outcome or exposure whose data fail is listed in the report
+with its error (and on stderr) while the rest completes.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import warnings
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from ..errors import SpecificationError
+from .options import (
+    add_model_options,
+    add_reading_options,
+    check_min_count,
+    confidence_level,
+    model_options,
+    parse_units,
+    read_daily,
+    with_min_count,
+)
+from .remedies import with_command_line_remedy
+
+__all__ = ["add_report_options", "register", "run", "write_and_print"]
+
+
+def add_report_options(p: argparse.ArgumentParser) -> None:
+    """Options of the written report (shared with ``demo``)."""
+    p.add_argument(
+        "--out", type=Path, default=Path("airhealth-report"), help="output folder (default ./airhealth-report)"
+    )
+    p.add_argument(
+        "--suppress-below",
+        type=int,
+        default=None,
+        metavar="N",
+        help="suppress health counts below N in the report's tables and figures (local disclosure rules)",
+    )
+    p.add_argument("--title", default=None, help="heading of the report")
+
+
+def register(sub: Any) -> None:
+    """Add the ``report`` sub-command."""
+    p = sub.add_parser(
+        "report",
+        help="write an HTML report for your own daily data",
+        description="Fit every outcome x exposure x lag structure asked for and write an HTML report with CSV "
+        "tables and PNG figures. Analyses that fail on their data are listed in the report; the rest completes.",
+    )
+    p.add_argument("data", type=Path, help="CSV file with one row per day")
+    p.add_argument("--outcome", action="append", required=True, metavar="COL", help="column of daily counts (repeat)")
+    p.add_argument("--exposure", action="append", required=True, metavar="COL", help="pollutant column (repeat)")
+    p.add_argument("--lags", default="0-1", help='comma-separated lag structures, e.g. "0,1,0-1,dl0-5" (default "0-1")')
+    p.add_argument(
+        "--main-lag", default=None, metavar="LAG", help="lag of the main model (default: the first of --lags)"
+    )
+    add_report_options(p)
+    add_model_options(p)
+    add_reading_options(p)
+    p.set_defaults(func=run)
+
+
+def split_lags(text: str, min_count: int | None) -> list[Any]:
+    """``--lags`` → lag structures, with ``--min-count`` applied to the moving averages."""
+    lags = [with_min_count(t.strip(), min_count) for t in text.split(",") if t.strip()]
+    if not lags:
+        raise SpecificationError(f"--lags {text!r} names no lag structure; give e.g. --lags 0,1,0-1,dl0-5.")
+    check_min_count(lags, min_count)
+    return lags
+
+
+def write_and_print(data: pd.DataFrame, args: argparse.Namespace, extra_sections: Any = (), **report: Any) -> int:
+    """Build and write the report, print its effects table, failures and where it is; returns the exit code.
+
+    Warnings are printed to stderr (with their command-line remedy) even when a later step fails.
+    """
+    from ..report.city_report import check_output_folder, report_content, write_content
+    from ..report.tables import format_effects
+
+    check_output_folder(args.out)
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            content = report_content(data, show_progress=True, small_count_threshold=args.suppress_below, **report)
+            path = write_content(content, args.out, args.title, args.suppress_below, extra_sections)
+        finally:
+            for w in caught:
+                print(f"warning: {with_command_line_remedy(str(w.message))}", file=sys.stderr)
+    with pd.option_context("display.width", 160, "display.max_rows", 500, "display.max_colwidth", 60):
+        print(format_effects(content.effects).to_string(index=False))
+    for row in content.failures.itertuples():
+        message = with_command_line_remedy(row.error)
+        print(f"could not fit {row.outcome} and {row.exposure} (lag {row.lag}): {message}", file=sys.stderr)
+    print(f"\nreport written to {path}")
+    print("Results are statistical associations, not proof of causation.")
+    return 0
+
+
+def run(args: argparse.Namespace) -> int:
+    """Read the data, fit and write the report; returns the exit code."""
+    if args.suppress_below is not None and args.suppress_below < 1:
+        raise SpecificationError(f"--suppress-below must be a whole number >= 1, got {args.suppress_below}.")
+    lags = split_lags(args.lags, args.min_count)
+    units = parse_units(args.unit, args.exposure)
+    level = confidence_level(args.confidence)
+    main_lag = None if args.main_lag is None else with_min_count(args.main_lag, args.min_count)
+    data = read_daily(args, [*args.outcome, *args.exposure, args.temperature, args.humidity], args.outcome)
+    return write_and_print(
+        data, args, outcomes=args.outcome, exposures=args.exposure, lags=lags, main_lag=main_lag, units=units,
+        per=args.per, level=level, **model_options(args),
+    )  # fmt: skip
