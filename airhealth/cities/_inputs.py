@@ -35,7 +35,7 @@ class CityEstimates:
 
 
 def _describe(labels: Sequence[str], rows: np.ndarray, values: np.ndarray, limit: int = 5) -> str:
-    shown = [f"{labels[i]!s} ({values[i]!r})" for i in rows[:limit]]
+    shown = [f"{labels[i]!s} ({float(values[i])!r})" for i in rows[:limit]]
     more = f" and {len(rows) - limit} more" if len(rows) > limit else ""
     return ", ".join(shown) + more
 
@@ -193,7 +193,7 @@ def check_vectors(coefs: Any) -> tuple[np.ndarray, tuple[str, ...], tuple[str, .
     if bad.size:
         i, j = bad[0]
         raise DataError(
-            f"coefficient {names[j]!r} of {labels[i]} is {values[i, j]!r}; every city needs all its coefficients "
+            f"coefficient {names[j]!r} of {labels[i]} is {float(values[i, j])!r}; every city needs all its coefficients "
             "(leave out cities whose fit failed)."
         )
     if len(set(labels)) != len(labels):
