@@ -193,8 +193,8 @@ def check_vectors(coefs: Any) -> tuple[np.ndarray, tuple[str, ...], tuple[str, .
     if bad.size:
         i, j = bad[0]
         raise DataError(
-            f"coefficient {names[j]!r} of {labels[i]} is {float(values[i, j])!r}; every city needs all its coefficients "
-            "(leave out cities whose fit failed)."
+            f"coefficient {names[j]!r} of {labels[i]} is {float(values[i, j])!r}; every city needs all its "
+            "coefficients (leave out cities whose fit failed)."
         )
     if len(set(labels)) != len(labels):
         raise DataError("the coefficient table has duplicate city labels in its index; give one row per city.")

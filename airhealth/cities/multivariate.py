@@ -55,8 +55,10 @@ __all__ = ["MultivariateMethod", "MultivariatePooled", "pool_multivariate"]
 
 MultivariateMethod = Literal["reml", "mm"]
 
-#: REML is accepted when every entry of the gradient with respect to Σ (scaled units) is below this.
+#: REML is accepted when the gradient with respect to Σ (scaled units, per city) is below this (see _is_reml_optimum).
 GRADIENT_TOLERANCE = 1e-6
+#: Eigenvalues of Σ below this (in units of the mean within-city variance) count as zero: on the boundary.
+NULL_EIGENVALUE = 1e-6
 
 
 def pool_multivariate(coefs: Any, covs: Any, method: MultivariateMethod = "reml") -> MultivariatePooled:
@@ -152,16 +154,25 @@ def reml_between_cov(y: np.ndarray, S: np.ndarray, start: np.ndarray) -> tuple[n
     L = np.zeros((p, p))
     L[rows, cols] = result.x
     sigma = L @ L.T
-    _, grad = _reml_parts(y, S, sigma)
-    # At an interior optimum the gradient in Σ vanishes; on the boundary (Σ singular) only along its range.
-    values, vectors = np.linalg.eigh(sigma)
-    support = vectors[:, values > 1e-8 * max(values.max(), 1e-300)]
-    if not np.isfinite(result.fun) or np.abs(support.T @ grad @ support).max(initial=0) > GRADIENT_TOLERANCE:
+    if not np.isfinite(result.fun) or not _is_reml_optimum(y, S, sigma):
         raise FitError(
             f"the REML estimate of the between-city covariance did not converge ({result.message}); "
             "use method='mm' or check the city vectors and covariances for outliers."
         )
     return sigma, int(result.nit)
+
+
+def _is_reml_optimum(y: np.ndarray, S: np.ndarray, sigma: np.ndarray) -> bool:
+    """Optimality over positive semi-definite Σ (scaled units): zero gradient along the range of Σ, and no
+    descent direction out of its null space (the gradient of the objective restricted there is PSD)."""
+    _, grad = _reml_parts(y, S, sigma)
+    tolerance = GRADIENT_TOLERANCE * len(y)  # the gradient is a sum over cities
+    values, vectors = np.linalg.eigh(sigma)
+    active = values > NULL_EIGENVALUE
+    span, null = vectors[:, active], vectors[:, ~active]
+    if span.size and np.abs(span.T @ grad @ span).max() > tolerance:
+        return False
+    return not (null.size and np.linalg.eigvalsh(null.T @ grad @ null).min() < -tolerance)
 
 
 def q_test(y: np.ndarray, S: np.ndarray) -> tuple[float, int, float]:
