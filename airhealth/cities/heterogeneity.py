@@ -31,7 +31,7 @@ import numpy as np
 
 from ..errors import FitError
 
-__all__ = ["WeightedFit", "residual_projection", "tau2_dl", "tau2_reml", "weighted_fit"]
+__all__ = ["WeightedFit", "cochran_q", "tau2_dl", "tau2_reml", "typical_within_variance", "weighted_fit"]
 
 #: REML stops when a Fisher step changes tau² by less than this fraction of (tau² + mean within variance):
 #: far below any reported digit, so the estimate is the optimum and not the point where iterations stopped.
@@ -42,46 +42,53 @@ MAX_HALVINGS = 60
 
 @dataclass(frozen=True)
 class WeightedFit:
-    """Weighted least squares at one value of tau²."""
+    r"""Weighted least squares at one value of tau², with the traces of :math:`P` and :math:`PP`.
+
+    :math:`P` itself (k × k) is never formed, so memory stays linear in the number of cities:
+    :math:`Py = W(y - X\hat\beta)`, :math:`\mathrm{tr}P = \sum w_i - \mathrm{tr}(C X^\top W^2 X)` and
+    :math:`\mathrm{tr}PP = \sum w_i^2 - 2\,\mathrm{tr}(C X^\top W^3 X) + \mathrm{tr}\{(C X^\top W^2 X)^2\}`
+    with :math:`C = (X^\top W X)^{-1}`.
+    """
 
     coef: np.ndarray
     cov: np.ndarray
-    projection: np.ndarray
-
-
-def residual_projection(w: np.ndarray, X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """:math:`P = W - W X (X^\\top W X)^{-1} X^\\top W` and :math:`(X^\\top W X)^{-1}` for weights ``w``."""
-    WX = X * w[:, None]
-    cov = np.linalg.inv(X.T @ WX)
-    P = np.diag(w) - WX @ cov @ WX.T
-    return (P + P.T) / 2, (cov + cov.T) / 2
+    projected: np.ndarray  # P y
+    trace: float  # tr P
+    trace_squared: float  # tr PP
 
 
 def weighted_fit(y: np.ndarray, v: np.ndarray, X: np.ndarray, tau2: float) -> WeightedFit:
     """Weighted least squares with weights ``1 / (v + tau2)``."""
     w = 1.0 / (v + tau2)
-    P, cov = residual_projection(w, X)
+    cov = np.linalg.inv(X.T @ (X * w[:, None]))
+    cov = (cov + cov.T) / 2
     coef = cov @ (X.T @ (w * y))
-    return WeightedFit(coef=coef, cov=cov, projection=P)
+    m2 = cov @ (X.T @ (X * (w**2)[:, None]))
+    m3 = cov @ (X.T @ (X * (w**3)[:, None]))
+    return WeightedFit(
+        coef=coef,
+        cov=cov,
+        projected=w * (y - X @ coef),
+        trace=float(w.sum() - np.trace(m2)),
+        trace_squared=float((w**2).sum() - 2 * np.trace(m3) + np.trace(m2 @ m2)),
+    )
 
 
 def cochran_q(y: np.ndarray, v: np.ndarray, X: np.ndarray) -> float:
-    """Cochran's Q (the residual heterogeneity statistic ``Q_E`` with moderators)."""
-    P0, _ = residual_projection(1.0 / v, X)
-    return float(y @ P0 @ y)
+    r"""Cochran's Q (the residual heterogeneity statistic ``Q_E`` with moderators): :math:`y^\top P_0 y`."""
+    fit = weighted_fit(y, v, X, 0.0)
+    return float(fit.projected @ (y - X @ fit.coef))
 
 
 def typical_within_variance(v: np.ndarray, X: np.ndarray) -> float:
-    """:math:`s^2 = (k - p) / \\mathrm{tr}\\,P_0`, the 'typical' within-city variance of Higgins & Thompson (2002)."""
-    P0, _ = residual_projection(1.0 / v, X)
-    return (len(v) - X.shape[1]) / float(np.trace(P0))
+    r""":math:`s^2 = (k - p) / \mathrm{tr}\,P_0`, the 'typical' within-city variance of Higgins & Thompson (2002)."""
+    return (len(v) - X.shape[1]) / weighted_fit(np.zeros(len(v)), v, X, 0.0).trace
 
 
 def tau2_dl(y: np.ndarray, v: np.ndarray, X: np.ndarray) -> float:
     """DerSimonian–Laird moment estimate of tau² (truncated at zero)."""
-    P0, _ = residual_projection(1.0 / v, X)
-    q = float(y @ P0 @ y)
-    return max(0.0, (q - (len(y) - X.shape[1])) / float(np.trace(P0)))
+    q = cochran_q(y, v, X)
+    return max(0.0, (q - (len(y) - X.shape[1])) / weighted_fit(y, v, X, 0.0).trace)
 
 
 def tau2_reml(y: np.ndarray, v: np.ndarray, X: np.ndarray) -> tuple[float, float, int]:
@@ -92,10 +99,8 @@ def tau2_reml(y: np.ndarray, v: np.ndarray, X: np.ndarray) -> tuple[float, float
     tau2 = tau2_dl(y, v, X)
     scale = tau2 + float(np.mean(v))
     for iteration in range(1, REML_MAX_ITER + 1):
-        P = weighted_fit(y, v, X, tau2).projection
-        Py = P @ y
-        info = float(np.sum(P * P))  # tr(PP); P is symmetric
-        step = (float(Py @ Py) - float(np.trace(P))) / info
+        fit = weighted_fit(y, v, X, tau2)
+        step = (float(fit.projected @ fit.projected) - fit.trace) / fit.trace_squared
         halvings = 0
         while tau2 + step < 0 and halvings < MAX_HALVINGS:
             step /= 2
@@ -104,8 +109,7 @@ def tau2_reml(y: np.ndarray, v: np.ndarray, X: np.ndarray) -> tuple[float, float
             step = -tau2
         tau2 += step
         if abs(step) <= REML_TOLERANCE * scale:
-            P = weighted_fit(y, v, X, tau2).projection
-            return tau2, float(np.sqrt(2.0 / np.sum(P * P))), iteration
+            return tau2, float(np.sqrt(2.0 / weighted_fit(y, v, X, tau2).trace_squared)), iteration
     raise FitError(
         f"the REML estimate of the between-city variance did not converge in {REML_MAX_ITER} Fisher scoring steps "
         f"(last tau² {tau2:.4g}, last step {step:.3g}); use method='dl' or check the estimates for outliers."
