@@ -93,6 +93,12 @@ def check_univariate(result, ref: dict) -> None:
         assert d["qm_df"] == ref["qm_df"] == len(ref["moderators"])
     else:
         assert "qm" not in d
+    if "predictions" in ref:
+        at = np.asarray(ref["predictions"]["at"], dtype=float)
+        predicted = result.predict(dict(zip(ref["moderators"], at.T, strict=True)))
+        for ours, theirs in [("coef", "pred"), ("se", "se"), ("ci_low", "ci_low"), ("ci_high", "ci_high"),
+                             ("pi_low", "pi_low"), ("pi_high", "pi_high")]:  # fmt: skip
+            close(predicted[ours], ref["predictions"][theirs])
     if "blup" in ref:
         blup = result.blup()
         close(blup["blup"], ref["blup"]["pred"])

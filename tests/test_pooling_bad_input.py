@@ -165,3 +165,16 @@ def test_duplicate_city_labels_in_the_multivariate_table():
     table = pd.DataFrame({"lag0": [0.1, 0.3, 0.2, 0.0], "lag1": [0.2, 0.1, 0.4, 0.3]}, index=list("ABCA"))
     with pytest.raises(DataError, match=r"duplicate city labels in its index"):
         airhealth.pool_multivariate(table, covs)
+
+
+def test_predict_needs_every_moderator_and_finite_values():
+    result = airhealth.pool(cities(), moderators=["temp"])
+    message = r"value for every moderator of the model \['temp'\]; missing \['temp'\], not in the model \['altitude'\]"
+    with pytest.raises(SpecificationError, match=message):
+        result.predict({"altitude": 3})
+    with pytest.raises(SpecificationError, match=r"must be finite numbers"):
+        result.predict({"temp": [10.0, np.nan]})
+    with pytest.raises(SpecificationError, match=r"different lengths"):
+        airhealth.pool(cities().assign(alt=[1.0, 2.0, 5.0, 3.0]), moderators=["temp", "alt"]).predict(
+            {"temp": [1.0, 2.0], "alt": [1.0]}
+        )

@@ -16,6 +16,7 @@ J R Stat Soc A 172:137–159.
 from __future__ import annotations
 
 import html
+from collections.abc import Mapping
 from dataclasses import asdict, dataclass
 from typing import Any
 
@@ -23,6 +24,7 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
+from ..errors import SpecificationError
 from ..model.effects import relative_risk
 
 __all__ = ["Heterogeneity", "ModeratorTest", "PooledEffect"]
@@ -115,6 +117,44 @@ class PooledEffect:
         """Interval for the true effect in a new city (at moderators 0): ``coef ± z sqrt(se² + tau²)``."""
         half = self.z * float(np.sqrt(self.se**2 + self.tau2))
         return self.coef - half, self.coef + half
+
+    def predict(self, moderators: Mapping[str, Any] | pd.DataFrame | None = None) -> pd.DataFrame:
+        r"""The pooled effect at given moderator values, with confidence and prediction intervals.
+
+        For moderator values :math:`x` (with the intercept): :math:`x^\top\hat\beta`, SE
+        :math:`\sqrt{x^\top \mathrm{Cov}(\hat\beta) x}`, and the prediction interval
+        :math:`x^\top\hat\beta \pm z\sqrt{\mathrm{SE}^2 + \hat\tau^2}` (normal quantile, as R metafor's
+        ``predict()``). ``moderators`` maps each moderator name to one value or a sequence of values (or is a
+        DataFrame with those columns); without moderators in the model, leave it out.
+
+        Raises
+        ------
+        SpecificationError
+            A moderator of the model is missing, an unknown name is given, or a value is not a finite number.
+        """
+        names = self.terms[1:]
+        frame = _moderator_frame(moderators)
+        missing = [n for n in names if n not in frame.columns]
+        unknown = [c for c in frame.columns if c not in names]
+        if missing or unknown:
+            raise SpecificationError(
+                f"predict needs a value for every moderator of the model {list(names)}; "
+                f"missing {missing}, not in the model {unknown}."
+            )
+        values = frame[list(names)].apply(pd.to_numeric, errors="coerce").to_numpy(dtype=float)
+        if not np.isfinite(values).all():
+            raise SpecificationError(f"moderator values for predict must be finite numbers, got {moderators!r}.")
+        X = np.column_stack([np.ones(len(frame)), values])
+        pred = X @ self.coefs
+        se = np.sqrt(np.einsum("ij,jk,ik->i", X, self.cov, X))
+        half = self.z * np.sqrt(se**2 + self.tau2)
+        out = pd.DataFrame(values, columns=list(names))
+        out["coef"], out["se"] = pred, se
+        out["ci_low"], out["ci_high"] = pred - self.z * se, pred + self.z * se
+        out["pi_low"], out["pi_high"] = pred - half, pred + half
+        out["rr"] = np.exp(self.per * pred)
+        out["rr_low"], out["rr_high"] = np.exp(self.per * out["ci_low"]), np.exp(self.per * out["ci_high"])
+        return out
 
     def effect(self) -> Any:
         """The pooled relative risk per ``per`` units (an :class:`airhealth.model.effects.Effect`)."""
@@ -225,6 +265,23 @@ class PooledEffect:
             for key, value in row.items()
         )
         return f"<table><caption>Pooled estimate ({html.escape(self.method)})</caption>{cells}</table>"
+
+
+def _moderator_frame(moderators: Mapping[str, Any] | pd.DataFrame | None) -> pd.DataFrame:
+    """Moderator values for predict as a frame: one row per point (one row when no moderators)."""
+    if isinstance(moderators, pd.DataFrame):
+        return moderators.reset_index(drop=True)
+    if moderators is None:
+        moderators = {}
+    if not isinstance(moderators, Mapping):
+        raise SpecificationError(
+            f"moderators for predict must be a mapping of name to values or a DataFrame, got {moderators!r}."
+        )
+    columns = {str(k): np.atleast_1d(np.asarray(v, dtype=object)) for k, v in moderators.items()}
+    lengths = {len(c) for c in columns.values()}
+    if len(lengths) > 1:
+        raise SpecificationError(f"moderator values for predict have different lengths: {moderators!r}.")
+    return pd.DataFrame(columns, index=range(lengths.pop() if lengths else 1))
 
 
 def _fmt(value: Any) -> str:

@@ -16,7 +16,8 @@
 #    - "homogeneous": 8 invented estimates with no between-city variation (REML and DL tau2 at 0).
 # 2. For each data set and method ("REML", "DL", "FE"): rma() without and with moderators; estimate, SE, tau2
 #    (and se.tau2), QE and its p-value, I2, H2, QM and its p-value, predict() (prediction interval with
-#    metafor's default normal quantile; with moderators at all moderators = 0) and blup().
+#    metafor's default normal quantile; with moderators at all moderators = 0, and at a few other values) and
+#    blup().
 #    REML runs with a tight convergence threshold (1e-12) so that both programs report the optimum rather
 #    than the point where their iterations stopped.
 # 3. Multivariate: rma.mv(yi, V, mods = ~ outcome - 1, random = ~ outcome | city, struct = "UN",
@@ -72,7 +73,15 @@ describe <- function(res, newmods) {
     blup = if (is.null(bl)) NULL else list(pred = bl$pred, se = bl$se, low = bl$pi.lb, high = bl$pi.ub)
   )
 }
-univariate <- function(d, mods) {
+# predict() at a few moderator values (rows of `at`): pooled effect with confidence and prediction intervals.
+predictions <- function(res, at) {
+  pr <- predict(res, newmods = at)
+  pi_lb <- if (is.null(pr$pi.lb)) pr$ci.lb else pr$pi.lb
+  pi_ub <- if (is.null(pr$pi.ub)) pr$ci.ub else pr$pi.ub
+  list(at = lapply(seq_len(nrow(at)), function(i) unname(at[i, ])), pred = pr$pred, se = pr$se,
+       ci_low = pr$ci.lb, ci_high = pr$ci.ub, pi_low = pi_lb, pi_high = pi_ub)
+}
+univariate <- function(d, mods, at = NULL) {
   out <- list()
   for (method in c("REML", "DL", "FE")) {
     res <- rma(yi = d$yi, vi = d$vi, method = method, control = tight)
@@ -81,15 +90,17 @@ univariate <- function(d, mods) {
       X <- as.matrix(as.data.frame(d[mods]))
       res <- rma(yi = d$yi, vi = d$vi, mods = X, method = method, control = tight)
       out[[paste0(method, "_mods")]] <- c(list(method = method, moderators = mods),
-                                          describe(res, rep(0, length(mods))))
+                                          describe(res, rep(0, length(mods))),
+                                          list(predictions = predictions(res, at)))
     }
   }
   out
 }
 uni <- list(
-  bcg = list(data = bcg_data, fits = univariate(bcg_data, c("ablat", "year"))),
-  invented = list(data = invented, fits = univariate(invented, "temp")),
-  homogeneous = list(data = homogeneous, fits = univariate(homogeneous, "temp"))
+  bcg = list(data = bcg_data, fits = univariate(bcg_data, c("ablat", "year"),
+                                                 at = cbind(ablat = c(10, 30, 50), year = c(1950, 1970, 1970)))),
+  invented = list(data = invented, fits = univariate(invented, "temp", at = cbind(temp = c(8, 15, 22)))),
+  homogeneous = list(data = homogeneous, fits = univariate(homogeneous, "temp", at = cbind(temp = c(10, 20))))
 )
 
 # ------------------------------------------------------------------------------------------ multivariate
