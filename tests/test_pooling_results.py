@@ -165,3 +165,25 @@ def test_between_city_covariance_is_positive_semi_definite_when_moments_are_not(
 def test_docstring_examples_run(module):
     failures, _ = doctest.testmod(module, optionflags=doctest.NORMALIZE_WHITESPACE)
     assert failures == 0
+
+
+def test_multivariate_input_is_not_changed():
+    block = FROZEN["multivariate"]["berkey"]
+    coefs = pd.DataFrame(block["coefs"], columns=["PD", "AL"])
+    covs = np.array(block["covs"])
+    coefs_before, covs_before = coefs.copy(deep=True), covs.copy()
+    result = airhealth.pool_multivariate(coefs, covs)
+    pd.testing.assert_frame_equal(coefs, coefs_before)
+    np.testing.assert_array_equal(covs, covs_before)
+    with pytest.raises(ValueError, match="read-only"):
+        result.between_cov[0, 0] = 0.0
+
+
+def test_reml_that_does_not_converge_says_so_and_what_to_do(monkeypatch):
+    monkeypatch.setattr(heterogeneity, "REML_MAX_ITER", 1)
+    with pytest.raises(airhealth.FitError, match=r"did not converge in 1 Fisher scoring steps .* use method='dl'"):
+        airhealth.pool(invented(), method="reml")
+    monkeypatch.setattr(multivariate, "GRADIENT_TOLERANCE", -1.0)  # no point can pass the optimality check
+    block = FROZEN["multivariate"]["berkey"]
+    with pytest.raises(airhealth.FitError, match=r"between-city covariance did not converge .* use method='mm'"):
+        airhealth.pool_multivariate(block["coefs"], block["covs"], method="reml")
