@@ -225,7 +225,7 @@ class PooledEffect:
         return pd.DataFrame([d])
 
     def weights(self) -> pd.Series:
-        """Each city's weight in the pooled estimate, percent (``1/(v_i + tau²)`` normalised; no moderators)."""
+        """Each city's weight in the fit, percent: ``1/(v_i + tau²)`` normalised to sum to 100."""
         w = 1.0 / (self.variances + self.tau2)
         return pd.Series(100 * w / w.sum(), index=list(self.labels), name="weight_percent")
 
