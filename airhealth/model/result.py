@@ -15,6 +15,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import FrozenInstanceError
+from functools import partial
 from types import MappingProxyType
 from typing import Any, Literal
 
@@ -175,9 +176,9 @@ class FitResult:
             self.spec, self._coef, self._cov, self.dispersion, self.deviance, self.loglik, self.qaic,
             self.df_resid, self.n_days, self._dropped, self._fitted, self._observed, self.exposure_columns,
             self.exposure_iqr, self.converged, self.n_iter, self.theta, dict(self._bases), self.aliased, self.notes,
-            self._matrix, self.hac_lags,
         )  # fmt: skip
-        return (type(self), args)
+        # the design matrix and HAC lag go by keyword, so the positional arguments end with aliased, notes
+        return (partial(type(self), design_matrix=self._matrix, hac_lags=self.hac_lags), args)
 
     # -- what the result gives out: copies, or read-only ------------------------------------------
     @property

@@ -189,7 +189,9 @@ class ModelSpec:
         if self.hac_lags is not None:
             lags = self.hac_lags
             if isinstance(lags, bool) or not isinstance(lags, int | np.integer) or lags < 0:
-                raise SpecificationError(f"hac_lags must be a whole number >= 0 or None (the default rule), got {lags!r}.")
+                raise SpecificationError(
+                    f"hac_lags must be a whole number >= 0 or None (the default rule), got {lags!r}."
+                )
             if self.interval != "hac":
                 raise SpecificationError(f"hac_lags={lags} applies only with interval='hac'; add interval='hac'.")
             object.__setattr__(self, "hac_lags", int(lags))

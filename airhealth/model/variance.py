@@ -30,8 +30,6 @@ Zeileis A (2004). Econometric computing with HC and HAC covariance matrix estima
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
 from ..errors import SpecificationError
@@ -50,7 +48,7 @@ def default_hac_lags(n_days: int) -> int:
 
     About 6 for 3 years of daily data, 9 for 14 years.
     """
-    return int(math.floor(4.0 * (n_days / 100.0) ** (2.0 / 9.0)))
+    return int(np.floor(4.0 * (n_days / 100.0) ** (2.0 / 9.0)))
 
 
 def score_contributions(
