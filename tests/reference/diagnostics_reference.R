@@ -15,7 +15,8 @@
 #   glm(y ~ pm25 + ns(time, df = round(7 n / 365.25)) + ns(temperature, 6) + ns(temp_mean_lag1_3, 6)
 #       + factor(dow), family = quasipoisson)
 # on the 1093 consecutive days with every value. It writes the residuals (deviance, pearson, response), the
-# hat values, Cook's distances, the autocorrelations of the deviance residuals (acf/pacf to lag 30) and
+# hat values, Cook's distances, standardized deviance residuals (rstandard), the autocorrelations of the
+# deviance residuals (acf/pacf to lag 30) and
 # Newey-West standard errors of every coefficient (Bartlett kernel, prewhite = FALSE) for a few lags, with
 # and without the n / (n - k) adjustment. Numbers are written with 17 significant digits.
 
@@ -80,6 +81,7 @@ doc <- list(
   response_residuals = arr(residuals(fit, type = "response")),
   hat_values = arr(hatvalues(fit)),
   cooks_distance = arr(cooks.distance(fit)),
+  standardized_residuals = arr(rstandard(fit)),
   acf = arr(acf(dev_res, lag.max = 30, plot = FALSE)$acf[-1]),
   pacf = arr(pacf(dev_res, lag.max = 30, plot = FALSE)$acf),
   exposure_index = which(names(coef(fit)) == "pm25"),
