@@ -22,16 +22,16 @@ partial autocorrelations follow from these by the Durbin–Levinson recursion (R
 References
 ----------
 Box GEP, Jenkins GM (1976). *Time Series Analysis: Forecasting and Control*, rev. ed. Holden-Day (sample
-autocorrelations, the ``±2/√n`` band, at most ``n/4`` lags).
+autocorrelations, the ``±2/√n`` band, at most ``n/4`` lags; from memory).
 Cook RD (1977). Detection of influential observation in linear regression. Technometrics 19:15–18.
-Williams DA (1987). Generalized linear model diagnostics using the deviance and single case deletion.
+Williams DA (1987). Generalized linear model diagnostics using the deviance and single case deletions.
 Appl Stat 36:181–191 (GLM leverage, Cook's distance and standardized residuals, as R ``influence.measures``).
-Hoaglin DC, Welsch RE (1978). The hat matrix in regression and ANOVA. Am Stat 32:17–22 (leverage > 2p/n).
+Hoaglin DC, Welsch RE (1978). The hat matrix in regression and ANOVA. Am Stat 32:17–22 (leverage > 2p/n; from memory).
 Bollen KA, Jackman RW (1990). Regression diagnostics: an expository treatment of outliers and influential
 cases. In Fox & Long (eds), *Modern Methods of Data Analysis*, Sage (Cook's distance > 4/n; from memory).
-Fox J, Monette G (1992). Generalized collinearity diagnostics. J Am Stat Assoc 87:178–183.
-Brumback BA, Ryan LM, Schwartz JD, Neas LM, Gold DR (2000). Transition regression models for
-time-series analysis of air pollution and health. J Am Stat Assoc 95:16–27 (lagged residual terms).
+Fox J, Monette G (1992). Generalized collinearity diagnostics. J Am Stat Assoc 87:178–183 (from memory).
+Brumback BA, Ryan LM, Schwartz JD, Neas LM, Gold DR (2000). Transitional regression models, with application
+to environmental time series. J Am Stat Assoc 95:16–27 (lagged residual terms).
 Newey WK, West KD (1987). Econometrica 55:703–708 (autocorrelation-robust intervals).
 """
 
