@@ -241,7 +241,8 @@ def test_hac_intervals_cover_better_than_the_default_under_autocorrelation():
 def test_hac_coverage_is_near_nominal_in_a_larger_simulation():
     # 600 six-year series (~10 s): Monte Carlo SE ~0.01. HAC standard errors are themselves estimated and
     # somewhat too small in finite samples (Andrews 1991, Econometrica 59:817-858; from memory), so
-    # near-nominal is taken as 0.92-0.97; measured while writing this test: default 0.89, HAC 0.93 (three years: 0.86 vs 0.915).
+    # near-nominal is taken as 0.92-0.97; measured while writing this test: default 0.89, HAC 0.93
+    # (three years: 0.86 vs 0.915).
     coverage = _coverage(reps=600, n_days=2190, seed=3)
     assert coverage["quasi-poisson"] < 0.91
     assert 0.92 <= coverage["hac"] <= 0.97
