@@ -247,3 +247,28 @@ def test_hac_coverage_is_near_nominal_in_a_larger_simulation():
     assert coverage["quasi-poisson"] < 0.91
     assert 0.92 <= coverage["hac"] <= 0.97
     assert coverage["hac"] >= coverage["quasi-poisson"] + 0.02
+
+
+def test_report_command_uses_the_interval_asked_for(city, tmp_path):
+    path = tmp_path / "city.csv"
+    city.to_csv(path, index=False)
+    out = tmp_path / "report"
+    args = ["report", str(path), "--outcome", "deaths_all", "--exposure", "pm25", "--lags", "0", "--temperature",
+            "temperature", "--interval", "hac", "--hac-lags", "5", "--out", str(out)]  # fmt: skip
+    assert main(args) == 0
+    table = pd.read_csv(out / "tables" / "effects_full.csv")
+    single = airhealth.fit(city, interval="hac", hac_lags=5, **OPTIONS)
+    assert table.loc[0, "se"] == pytest.approx(single.exposure_se, rel=1e-8)
+
+
+def test_negative_binomial_hac_uses_its_scores_and_expected_information(city):
+    # As R sandwich (bread from the expected information, cov.unscaled of glm): statsmodels' GLM(cov_type="HAC")
+    # uses the observed Hessian, which differs from the expected one for NB2 with a log link (non-canonical),
+    # so the reference is built from statsmodels' per-day scores and expected Hessian with S_hac_simple.
+    result = airhealth.fit(city, family="negbin", interval="hac", hac_lags=4, **OPTIONS)
+    family = sm.families.NegativeBinomial(alpha=1.0 / result.theta)  # NB2: Var = mu + alpha mu^2, alpha = 1/theta
+    model = sm.GLM(result.observed.to_numpy(), result.design_matrix.to_numpy(), family=family)
+    params = result.coef.to_numpy()
+    bread = np.linalg.inv(-model.hessian(params, scale=1.0, observed=False))
+    expected = bread @ S_hac_simple(model.score_obs(params, scale=1.0), nlags=4) @ bread
+    np.testing.assert_allclose(result.std_err.to_numpy(), np.sqrt(np.diag(expected)), rtol=1e-8)
