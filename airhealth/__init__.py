@@ -4,6 +4,7 @@ Results are statistical associations, not proof of causation; they inform but do
 review, local regulation or licensed public-health practice.
 """
 
+from .cities import pool, pool_multivariate
 from .errors import (
     AirhealthError,
     AirhealthWarning,
@@ -66,5 +67,7 @@ __all__ = [
     "load_sample_tables",
     "minimum_risk_exposure",
     "parse_lag",
+    "pool",
+    "pool_multivariate",
     "write_report",
 ]

@@ -24,15 +24,20 @@ matplotlib.use("Agg")
 
 
 def _iso_week_totals(series: pd.Series) -> np.ndarray:
-    """Totals per ISO 8601 week (Monday to Sunday; ISO 8601-1:2019, 3.1.1.23), grouped independently of the
-    module's pandas periods by the (ISO year, ISO week) of each date."""
+    """Totals per complete ISO 8601 week (Monday to Sunday; ISO 8601-1:2019, 3.1.1.23), grouped independently
+    of the module's pandas periods by the (ISO year, ISO week) of each date; weeks with fewer than 7 days left out."""
     iso = pd.DatetimeIndex(series.index).isocalendar()
-    return series.groupby([iso["year"].to_numpy(), iso["week"].to_numpy()]).sum().to_numpy()
+    grouped = series.groupby([iso["year"].to_numpy(), iso["week"].to_numpy()])
+    return grouped.sum().to_numpy()[grouped.size().to_numpy() == 7]
 
 
 def _month_totals(series: pd.Series) -> np.ndarray:
+    """Totals per complete calendar month; months missing a day are left out."""
     index = pd.DatetimeIndex(series.index)
-    return series.groupby([index.year, index.month]).sum().to_numpy()
+    grouped = series.groupby([index.year, index.month])
+    sizes = grouped.size()
+    days = np.array([pd.Period(year=y, month=m, freq="M").days_in_month for y, m in sizes.index])
+    return grouped.sum().to_numpy()[sizes.to_numpy() == days]
 
 
 def _line(ax: object, label: str) -> object:
@@ -109,6 +114,8 @@ def test_small_days_give_weekly_totals_over_monday_to_sunday() -> None:
     shown = counts_for_figure(counts, 5)
     assert shown.resolution == "weekly"
     np.testing.assert_array_equal(shown.observed.to_numpy(), _iso_week_totals(counts))
+    assert len(shown.observed) == 9  # 70 days from a Wednesday: 5 + 9 x 7 + 2 days, the two partial weeks left out
+    assert "2 week(s) not fully covered" in shown.note
     assert "weekly totals" in shown.note and "below 5" in shown.note
 
 
@@ -121,8 +128,8 @@ def test_small_weeks_give_monthly_totals() -> None:
 
 
 def test_small_months_leave_the_counts_out_and_say_so() -> None:
-    counts = _days(np.r_[[1], np.zeros(59)])
-    fitted = _days(np.full(60, 0.02))
+    counts = _days(np.r_[np.zeros(3), [1], np.zeros(56)], start="2021-01-01")  # the 1 on Monday 4 January
+    fitted = _days(np.full(60, 0.02), start="2021-01-01")
     shown = counts_for_figure(counts, 5, alongside=fitted)
     assert shown.resolution == "omitted" and shown.observed.empty
     assert shown.note.startswith("Observed counts are left out") and "fitted monthly totals" in shown.note
@@ -158,9 +165,10 @@ def test_the_measured_case_draws_no_day_below_the_threshold(deaths_fit: object) 
 def test_the_report_figure_says_which_counts_it_shows(deaths_fit: object) -> None:
     block = observed_fitted_figure(deaths_fit, suppress_below=10)
     assert block.title.startswith("Observed and fitted weekly deaths_all")
-    assert block.note == (
-        "Shown as weekly totals (weeks, Monday to Sunday, over the days used) because some daily counts are below 10."
+    assert block.note.startswith(
+        "Shown as weekly totals (weeks, Monday to Sunday) because some daily counts are below 10. "
     )
+    assert "week(s) not fully covered by the days used are not drawn." in block.note
     assert observed_fitted_figure(deaths_fit).note is None
 
 
@@ -219,3 +227,10 @@ def test_a_count_column_in_the_data_section_is_suppressed(sample: pd.DataFrame) 
     assert drawn.size and not ((drawn > 0) & (drawn < 10)).any()
     assert "weekly totals" in figures["series_admissions_respiratory"].note
     assert {"series_pm25", "season_pm25"} <= set(figures)
+
+
+def test_no_complete_period_leaves_the_counts_out() -> None:
+    # Ten days from a Wednesday cover no whole month and one whole week whose total is small: nothing may
+    # be drawn, and an empty series must not pass for "nothing small".
+    shown = counts_for_figure(_days([1, 0, 0, 0, 0, 0, 0, 0, 0, 0], start="2021-01-06"), 5)
+    assert shown.resolution == "omitted" and shown.observed.empty

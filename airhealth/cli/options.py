@@ -237,7 +237,7 @@ def parse_months(text: str) -> list[int]:
 def model_options(args: argparse.Namespace) -> dict[str, Any]:
     """The :class:`~airhealth.model.spec.ModelSpec` options of the shared command-line options."""
     _, codes = parse_na_values(args.na_values)
-    na_values = tuple(v for v in codes if not _could_be_count(v))  # count-like codes were applied when reading
+    na_values = tuple(codes)  # the preparation layer decides which codes apply to count columns
     return {
         "date": args.date,
         "temperature": args.temperature,

@@ -10,8 +10,9 @@ suppression off. The rules, for every table and figure of a report:
   is below the threshold (it could be differenced against other published figures to recover it);
 - **a figure of daily counts** shows daily values only if no daily count is below the threshold; else
   weekly totals (calendar weeks, Monday to Sunday), else monthly totals, each only if none of its totals is
-  below the threshold; else the observed series is left out. Totals are over the days present, so a
-  partly covered week or month counts as it is. Which of these was drawn is said in the figure's note.
+  below the threshold; else the observed series is left out. Only weeks or months whose every day was used
+  are drawn (a partly covered period's total would dip for lack of days, not of events, and could be small);
+  how many periods were left out for that is said in the figure's note, with which resolution was drawn.
 """
 
 from __future__ import annotations
@@ -155,12 +156,26 @@ class CountSeries:
 
 
 def _totals(series: pd.Series, resolution: Resolution) -> pd.Series:
+    """Totals over the periods of ``resolution`` whose every day is in ``series`` (complete periods only)."""
     if resolution == "daily":
         return series
     periods = pd.DatetimeIndex(series.index).to_period(_PERIODS[resolution])
-    sums = series.groupby(periods).sum()
-    middle = sums.index.start_time + (sums.index.end_time - sums.index.start_time) / 2
-    return pd.Series(sums.to_numpy(), index=middle.floor("D"), name=series.name)
+    grouped = series.groupby(periods)
+    sums, present = grouped.sum(), grouped.size()
+    start, end = sums.index.start_time, sums.index.end_time
+    length = ((end.normalize() - start.normalize()) / pd.Timedelta(days=1)).to_numpy().round().astype(int) + 1
+    complete = present.to_numpy() == length
+    middle = (start + (end - start) / 2).floor("D")
+    return pd.Series(sums.to_numpy()[complete], index=middle[complete], name=series.name)
+
+
+def _partial_note(series: pd.Series, resolution: Resolution) -> str:
+    periods = pd.DatetimeIndex(series.index).to_period(_PERIODS[resolution])
+    left_out = periods.nunique() - len(_totals(series, resolution))
+    if not left_out:
+        return ""
+    word = "week" if resolution == "weekly" else "month"
+    return f" {left_out} {word}(s) not fully covered by the days used are not drawn."
 
 
 def counts_for_figure(observed: pd.Series, threshold: int | None, *, alongside: pd.Series | None = None) -> CountSeries:
@@ -176,9 +191,9 @@ def counts_for_figure(observed: pd.Series, threshold: int | None, *, alongside: 
     reason = f"some daily counts are below {threshold}"
     for resolution in ("weekly", "monthly"):
         totals = _totals(observed, resolution)  # type: ignore[arg-type]
-        if not has_small(totals.to_numpy(), threshold):
+        if len(totals) and not has_small(totals.to_numpy(), threshold):
             period = "weeks, Monday to Sunday" if resolution == "weekly" else "calendar months"
-            note = f"Shown as {resolution} totals ({period}, over the days used) because {reason}."
+            note = f"Shown as {resolution} totals ({period}) because {reason}." + _partial_note(observed, resolution)
             other = None if alongside is None else _totals(alongside, resolution)  # type: ignore[arg-type]
             return CountSeries(resolution, totals, other, note)  # type: ignore[arg-type]
         reason += f" and some {resolution} totals too"
