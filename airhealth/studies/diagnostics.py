@@ -44,6 +44,7 @@ import numpy as np
 import pandas as pd
 from scipy import linalg
 
+from .._threads import fitting_threads
 from .._warn import warn_user
 from ..errors import DataWarning, SpecificationError
 from ..model.fitting import DISPERSION_WARN
@@ -355,7 +356,8 @@ def diagnose(result: FitResult, max_lag: int = 30) -> Diagnostics:
             f"max_lag={max_lag!r} must be a whole number from 1 to {limit} (a quarter of the {result.n_days} "
             "days used; longer lags rest on too few pairs of days)."
         )
-    diag = Diagnostics(result, int(max_lag))
+    with fitting_threads(result.n_days, len(result.coef)):  # the fitting path's BLAS thread policy
+        diag = Diagnostics(result, int(max_lag))
     if diag.exposure_vif > VIF_WARN:
         warn_user(
             f"the exposure {result.spec.exposure!r} has a variance inflation of {diag.exposure_vif:.1f} against "
