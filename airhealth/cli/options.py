@@ -87,6 +87,19 @@ def add_model_options(p: argparse.ArgumentParser) -> None:
         help="moving-average lags use the mean of the available days when at least N are present "
         "(default: every day of the window is needed)",
     )
+    g.add_argument(
+        "--interval",
+        default="quasi-poisson",
+        help="standard errors and intervals: quasi-poisson (default, model-based) or hac (Newey-West, robust to "
+        "residual autocorrelation)",
+    )
+    g.add_argument(
+        "--hac-lags",
+        type=int,
+        default=None,
+        metavar="L",
+        help="truncation lag of --interval hac (default floor(4 (days/100)^(2/9)), about 9 for 14 years)",
+    )
     e = p.add_argument_group("effects")
     e.add_argument("--per", type=float, default=10.0, help="exposure increase for the relative risk (default 10)")
     e.add_argument(
@@ -237,4 +250,6 @@ def model_options(args: argparse.Namespace) -> dict[str, Any]:
         "family": args.family,
         "seasonality": args.seasonality,
         "na_values": na_values,
+        "interval": args.interval,
+        "hac_lags": args.hac_lags,
     }
