@@ -75,21 +75,27 @@ def _values(frame: pd.DataFrame, column: str) -> np.ndarray:
     return frame[column].to_numpy(dtype=float, na_value=np.nan)
 
 
-def clean_values(frame: pd.DataFrame, roles: ColumnRoles, na_values: Iterable[object]) -> pd.DataFrame:
+def clean_values(
+    frame: pd.DataFrame, roles: ColumnRoles, na_values: Iterable[object], dates: pd.DatetimeIndex | None = None
+) -> pd.DataFrame:
     """A copy of ``frame`` with declared codes missing and text made numeric; raises on leftover sentinels.
 
-    The caller's frame is not modified.
+    ``dates`` (the date column as an index, for messages) is read from ``frame`` when not given. The
+    caller's frame is not modified.
     """
-    dates = pd.DatetimeIndex(frame[roles.date])
+    dates = pd.DatetimeIndex(frame[roles.date]) if dates is None else dates
     out = apply_na_values(frame, roles.numeric, na_values, dates, counts=[roles.outcome])
     searched = [c for c in roles.numeric if c not in roles.no_codes]
     check_missing_codes(out, searched, dates, counts=[roles.outcome])
     return out
 
 
-def check_values(frame: pd.DataFrame, roles: ColumnRoles) -> None:
-    """Plausibility of the exposure, temperatures and humidity; degenerate outcome or exposure series."""
-    dates = pd.DatetimeIndex(frame[roles.date])
+def check_values(frame: pd.DataFrame, roles: ColumnRoles, dates: pd.DatetimeIndex | None = None) -> None:
+    """Plausibility of the exposure, temperatures and humidity; degenerate outcome or exposure series.
+
+    ``dates`` (the date column as an index, for messages) is read from ``frame`` when not given.
+    """
+    dates = pd.DatetimeIndex(frame[roles.date]) if dates is None else dates
     exposure = _values(frame, roles.exposure)
     check_exposure_values(exposure, roles.exposure, roles.unit, dates)
     for column in roles.temperatures():
