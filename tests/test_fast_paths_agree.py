@@ -13,7 +13,7 @@ import pandas as pd
 import pytest
 
 import airhealth
-from airhealth.errors import DataError
+from airhealth.errors import DataError, DataWarning
 from airhealth.model import design
 from airhealth.model.fitting import fit_design, result_from_fit
 from airhealth.model.result import FitResult
@@ -120,3 +120,33 @@ def test_adopted_result_equals_one_built_with_copies(sample: pd.DataFrame) -> No
     built.response[:] = 0.0
     assert adopted.to_dict() == copied.to_dict()
     assert adopted.observed.sum() > 0
+
+
+def test_validated_frame_is_reused_only_for_the_same_values(sample: pd.DataFrame) -> None:
+    spec = ModelSpec.from_options(lag="0-1", **OPTIONS)
+    design.clear_cache()
+    first = design.model_frame(sample, spec)
+    first.loc[0, "pm25"] = 1e6  # the caller's copy: changing it changes nothing cached
+    again = design.model_frame(sample, spec)
+    pd.testing.assert_frame_equal(again, design._checked_frame(sample, spec, design.column_roles(spec)))
+    assert again is not first and again.loc[0, "pm25"] != 1e6
+    coded = sample.copy()
+    coded.loc[[10, 11, 12], "pm25"] = -999.0  # same shape, other values: checked afresh, and refused
+    with pytest.raises(DataError, match="holds -999 on 3 day"):
+        design.model_frame(coded, spec)
+
+
+def test_a_frame_that_warned_warns_on_every_call(sample: pd.DataFrame) -> None:
+    spec = ModelSpec.from_options(lag="0-1", **OPTIONS)
+    gap = sample.drop(index=[100, 101])
+    design.clear_cache()
+    for _ in range(2):
+        with pytest.warns(DataWarning, match="2 calendar day"):
+            design.model_frame(gap, spec)
+
+
+def test_text_columns_are_never_taken_from_the_cache(sample: pd.DataFrame) -> None:
+    spec = ModelSpec.from_options(lag="0-1", **OPTIONS)
+    text = sample.assign(pm25=sample["pm25"].astype(object))
+    assert design._frame_key(text, spec, design.column_roles(spec)) is None
+    assert design._frame_key(sample, spec, design.column_roles(spec)) is not None

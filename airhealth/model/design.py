@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .._warn import warn_user
+from .._warn import warn_user, warnings_issued
 from ..errors import DataError, DataWarning, SpecificationError
 from ..prep.align import prepare_daily
 from ..prep.degenerate import check_empty, check_usable_days
@@ -120,8 +120,27 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
     """
     require_columns(data, [spec.date, *spec.columns_used()], "data")
     check_empty(data)
-    frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date)
     roles = column_roles(spec)
+    key = _frame_key(data, spec, roles)
+    if key is not None and key in _FRAMES:  # these values passed every guard below, without a warning
+        _FRAMES.move_to_end(key)
+        frame = _FRAMES[key].copy()
+    else:
+        issued = warnings_issued()
+        frame = _checked_frame(data, spec, roles)
+        if key is not None and warnings_issued() == issued:  # a frame that warned is checked (and warns) again
+            _remember(_FRAMES, key, frame.copy())
+    max_lag = spec.lag.max_lag
+    if max_lag >= len(frame) - 1:
+        raise SpecificationError(
+            f"lag {spec.lag.label} reaches back {max_lag} days but the series has only {len(frame)} days."
+        )
+    return frame
+
+
+def _checked_frame(data: pd.DataFrame, spec: ModelSpec, roles: ColumnRoles) -> pd.DataFrame:
+    """The guards of :func:`model_frame`, in order, on a fresh copy of the columns ``spec`` reads."""
+    frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date)
     dates = pd.DatetimeIndex(frame[spec.date])  # once, for the messages of every guard
     frame = clean_values(frame, roles, spec.na_values, dates)
     outcome, exposure = frame[spec.outcome], frame[spec.exposure]
@@ -132,12 +151,35 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
         raise DataError(f"exposure column {spec.exposure!r} is not numeric (dtype {exposure.dtype}).")
     check_finite(frame, spec.columns_used(), dates)
     check_values(frame, roles, dates)
-    max_lag = spec.lag.max_lag
-    if max_lag >= len(frame) - 1:
-        raise SpecificationError(
-            f"lag {spec.lag.label} reaches back {max_lag} days but the series has only {len(frame)} days."
-        )
     return frame
+
+
+#: Validated frames of recent calls (:func:`model_frame`), by a content hash of the columns read and every
+#: option the guards read; only frames whose checks issued no warning are kept.
+_FRAMES: OrderedDict[tuple[Any, ...], pd.DataFrame] = OrderedDict()
+
+
+def _frame_key(data: pd.DataFrame, spec: ModelSpec, roles: ColumnRoles) -> tuple[Any, ...] | None:
+    """Key of a validated frame, or None (no caching) when a column is not plain numbers or dates.
+
+    Text and other object columns are hashed through their text, in which ``"True"`` and ``True`` agree
+    although the guards treat them differently; such frames are always checked afresh.
+    """
+    columns = [spec.date, *spec.columns_used()]
+    if not all(isinstance(data[c].dtype, np.dtype) and data[c].dtype.kind in "biufmM" for c in columns):
+        return None
+    try:
+        key = (roles, spec.na_values, tuple(columns), len(data), _content_digest(data, columns))
+        hash(key)
+    except TypeError:  # an option that cannot be hashed: no caching
+        return None
+    return key
+
+
+def _remember(cache: OrderedDict, key: tuple[Any, ...], value: Any) -> None:
+    cache[key] = value
+    while len(cache) > _CACHE_SIZE:
+        cache.popitem(last=False)
 
 
 _CACHE: OrderedDict[tuple[Any, ...], ConfounderBlock] = OrderedDict()
@@ -184,15 +226,14 @@ def cached_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
     block = build_confounders(frame, spec)
     if key is not None:
         block.matrix.flags.writeable = False
-        _CACHE[key] = block
-        while len(_CACHE) > _CACHE_SIZE:
-            _CACHE.popitem(last=False)
+        _remember(_CACHE, key, block)
     return block
 
 
 def clear_cache() -> None:
-    """Forget the cached confounder blocks (each holds a days × columns matrix)."""
+    """Forget the cached confounder blocks (each holds a days × columns matrix) and validated frames."""
     _CACHE.clear()
+    _FRAMES.clear()
 
 
 def build_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
