@@ -263,15 +263,19 @@ def _drop_reasons(
     conf: ConfounderBlock,
     offset: np.ndarray | None,
     rows: np.ndarray | None = None,
+    raw: np.ndarray | None = None,
 ) -> np.ndarray:
     """Why each day is left out ("" for a usable day), on every day or only on ``rows`` (indices).
 
     :func:`build_design` asks only about the days :func:`usable_days` leaves out (a few hundred of
-    thousands); the answer for a day does not depend on which other days are asked about.
+    thousands); the answer for a day does not depend on which other days are asked about. ``raw`` is the
+    daily exposure on the full calendar (read from ``frame`` when not given).
     """
     rows = np.arange(len(frame)) if rows is None else rows
     reasons = np.full(rows.size, "", dtype=object)
-    raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)[rows]
+    if raw is None:
+        raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
+    raw = raw[rows]
     missing_x = ~np.isfinite(exposure[rows]).all(axis=1)
     early = rows < spec.lag.max_lag
     first_missing = conf.first_missing[rows]
@@ -387,7 +391,7 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     used = usable_days(y, exposure, conf, offset)
     unused = np.flatnonzero(~used)
     reasons = np.full(len(frame), "", dtype=object)
-    reasons[unused] = _drop_reasons(frame, spec, y, exposure, conf, offset, unused)
+    reasons[unused] = _drop_reasons(frame, spec, y, exposure, conf, offset, unused, raw)
     calendar = pd.DatetimeIndex(frame[spec.date])
     dropped = pd.DataFrame({"date": calendar[unused], "reason": reasons[unused].astype(str)})
     names = conf.column_names + tuple(lag.column_names(spec.exposure))
