@@ -7,9 +7,15 @@ import warnings
 from functools import lru_cache
 from pathlib import Path
 
-__all__ = ["user_stacklevel", "warn_user"]
+__all__ = ["user_stacklevel", "warn_user", "warnings_issued"]
 
 _PACKAGE_DIR = Path(__file__).resolve().parent
+_issued = [0]  # warn_user calls so far (whatever the filters then do with them)
+
+
+def warnings_issued() -> int:
+    """How many warnings :func:`warn_user` has issued in this process (for caches that must not skip one)."""
+    return _issued[0]
 
 
 @lru_cache(maxsize=256)
@@ -53,5 +59,6 @@ def warn_user(message: str, category: type[Warning]) -> None:
     >>> caught[0].category.__name__
     'DataWarning'
     """
+    _issued[0] += 1
     # user_stacklevel() called here counts from this function; warnings.warn is called here too.
     warnings.warn(message, category, stacklevel=user_stacklevel())

@@ -43,6 +43,7 @@ from airhealth._threads import single_threaded_blas
 from airhealth.model.compare import compare
 from airhealth.model.design import build_confounders, build_design, clear_cache, model_frame
 from airhealth.model.engine import fit_glm
+from airhealth.model.fitting import fit_design, result_from_fit, warn_if_suspicious
 from airhealth.model.spec import ModelSpec
 from airhealth.model.splines import NaturalSplineBasis
 from airhealth.model.sweep import sweep
@@ -145,6 +146,32 @@ def bench_single(data, r, results):
         print(f"  R glm.fit {rr[0] * 1e3:.1f} ms (last coefficient differs by {agree:.1e} SE)")
         results["single: R glm.fit / engine alone"] = ("(reported)", rr[0] / t["engine"])
     return t["engine"]
+
+
+def bench_parts(data, r, results):
+    """Where the time of ``airhealth.fit`` outside the engine goes: each stage of ``fit_spec`` timed alone,
+    in turn within every repeat and after the same pause as the single fits (so each starts as cold)."""
+    spec = ModelSpec.from_options(lag="0-1", **OPTIONS)
+    frame = model_frame(data, spec)
+    design = build_design(frame, spec)
+    glm = fit_design(design, spec)
+    stages = {
+        "validation (model_frame)": lambda: model_frame(data, spec),
+        "design (build_design, block cached)": lambda: build_design(frame, spec),
+        "engine (fit_design)": lambda: fit_design(design, spec),
+        "warnings (warn_if_suspicious)": lambda: warn_if_suspicious(design, spec, glm.dispersion),
+        "result (result_from_fit)": lambda: result_from_fit(design, spec, glm),
+    }
+    t = paired_medians(stages, r)
+    total = sum(t.values())
+    # a first fit on these data: no validated frame and no confounder block cached yet
+    t_new = paired_medians({"new": lambda: (clear_cache(), quiet_fit(data, lag="0-1"))}, r)["new"]
+    print(f"  airhealth.fit with the caches cleared (first fit on new data): {t_new * 1e3:.1f} ms")
+    results["single: airhealth.fit, caches cleared (ms)"] = ("(reported)", t_new * 1e3)
+    for name, seconds in t.items():
+        print(f"  {name:38s} {seconds * 1e3:6.2f} ms  {100 * seconds / total:4.0f}%")
+    outside = total - t["engine (fit_design)"]
+    results["single: stages outside the engine (ms)"] = ("(reported)", outside * 1e3)
 
 
 def bench_second_paths(data, r, results):
@@ -290,6 +317,9 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeats", type=int, default=9)
     parser.add_argument("--cities", default="50,100,200", help="checkpoints for the many-city run")
+    parser.add_argument(
+        "--single", action="store_true", help="only the single fit, its stages and the design (a few minutes)"
+    )
     parser.add_argument("--cities-only", metavar="COUNTS", help=argparse.SUPPRESS)  # the child process
     parser.add_argument("--one-thread", action="store_true", help=argparse.SUPPRESS)  # the child process
     args = parser.parse_args()
@@ -308,8 +338,9 @@ def main() -> None:
         results: dict[str, tuple[str, float]] = {}
         REFERENCE_REPEATS["value"] = 3 if single else 1
         with single_threaded_blas() if single else contextlib.nullcontext():
-            run(data, args.repeats, results)
-        bench_cities(counts, single, results)
+            run(data, args.repeats, results, only_single=args.single)
+        if not args.single:
+            bench_cities(counts, single, results)
         by_mode[mode] = results
     print(f"\nload average at the end {os.getloadavg()[0]:.1f}\n")
     print(f"{'figure':58s} {'goal':>10s} " + " ".join(f"{m:>16s}" for m in MODES))
@@ -318,8 +349,12 @@ def main() -> None:
         print(f"{name:58s} {goal:>10s} {values}")
 
 
-def run(data, r, results) -> None:
+def run(data, r, results, only_single: bool = False) -> None:
     t_fit = bench_single(data, r, results)
+    bench_parts(data, r, results)
+    if only_single:
+        bench_design(data, r, results, t_fit)
+        return
     bench_second_paths(data, r, results)
     bench_grid(data, r, results)
     bench_sweep(data, r, results)

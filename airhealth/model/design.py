@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .._warn import warn_user
+from .._warn import warn_user, warnings_issued
 from ..errors import DataError, DataWarning, SpecificationError
 from ..prep.align import prepare_daily
 from ..prep.degenerate import check_empty, check_usable_days
@@ -120,22 +120,66 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
     """
     require_columns(data, [spec.date, *spec.columns_used()], "data")
     check_empty(data)
-    frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date)
     roles = column_roles(spec)
-    frame = clean_values(frame, roles, spec.na_values)
-    check_not_all_missing(frame[spec.outcome], spec.outcome, "outcome")
-    check_counts(frame[spec.outcome], spec.outcome, pd.DatetimeIndex(frame[spec.date]))
-    check_not_all_missing(frame[spec.exposure], spec.exposure, "exposure")
-    if not pd.api.types.is_numeric_dtype(frame[spec.exposure]):
-        raise DataError(f"exposure column {spec.exposure!r} is not numeric (dtype {frame[spec.exposure].dtype}).")
-    check_finite(frame, spec.columns_used(), pd.DatetimeIndex(frame[spec.date]))
-    check_values(frame, roles)
+    key = _frame_key(data, spec, roles)
+    if key is not None and key in _FRAMES:  # these values passed every guard below, without a warning
+        _FRAMES.move_to_end(key)
+        frame = _FRAMES[key].copy()
+    else:
+        issued = warnings_issued()
+        frame = _checked_frame(data, spec, roles)
+        if key is not None and warnings_issued() == issued:  # a frame that warned is checked (and warns) again
+            _remember(_FRAMES, key, frame.copy())
     max_lag = spec.lag.max_lag
     if max_lag >= len(frame) - 1:
         raise SpecificationError(
             f"lag {spec.lag.label} reaches back {max_lag} days but the series has only {len(frame)} days."
         )
     return frame
+
+
+def _checked_frame(data: pd.DataFrame, spec: ModelSpec, roles: ColumnRoles) -> pd.DataFrame:
+    """The guards of :func:`model_frame`, in order, on a fresh copy of the columns ``spec`` reads."""
+    frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date)
+    dates = pd.DatetimeIndex(frame[spec.date])  # once, for the messages of every guard
+    frame = clean_values(frame, roles, spec.na_values, dates)
+    outcome, exposure = frame[spec.outcome], frame[spec.exposure]
+    check_not_all_missing(outcome, spec.outcome, "outcome")
+    check_counts(outcome, spec.outcome, dates)
+    check_not_all_missing(exposure, spec.exposure, "exposure")
+    if not pd.api.types.is_numeric_dtype(exposure):
+        raise DataError(f"exposure column {spec.exposure!r} is not numeric (dtype {exposure.dtype}).")
+    check_finite(frame, spec.columns_used(), dates)
+    check_values(frame, roles, dates)
+    return frame
+
+
+#: Validated frames of recent calls (:func:`model_frame`), by a content hash of the columns read and every
+#: option the guards read; only frames whose checks issued no warning are kept.
+_FRAMES: OrderedDict[tuple[Any, ...], pd.DataFrame] = OrderedDict()
+
+
+def _frame_key(data: pd.DataFrame, spec: ModelSpec, roles: ColumnRoles) -> tuple[Any, ...] | None:
+    """Key of a validated frame, or None (no caching) when a column is not plain numbers or dates.
+
+    Text and other object columns are hashed through their text, in which ``"True"`` and ``True`` agree
+    although the guards treat them differently; such frames are always checked afresh.
+    """
+    columns = [spec.date, *spec.columns_used()]
+    if not all(isinstance(data[c].dtype, np.dtype) and data[c].dtype.kind in "biufmM" for c in columns):
+        return None
+    try:
+        key = (roles, spec.na_values, tuple(columns), len(data), _content_digest(data, columns))
+        hash(key)
+    except TypeError:  # an option that cannot be hashed: no caching
+        return None
+    return key
+
+
+def _remember(cache: OrderedDict, key: tuple[Any, ...], value: Any) -> None:
+    cache[key] = value
+    while len(cache) > _CACHE_SIZE:
+        cache.popitem(last=False)
 
 
 _CACHE: OrderedDict[tuple[Any, ...], ConfounderBlock] = OrderedDict()
@@ -182,15 +226,14 @@ def cached_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
     block = build_confounders(frame, spec)
     if key is not None:
         block.matrix.flags.writeable = False
-        _CACHE[key] = block
-        while len(_CACHE) > _CACHE_SIZE:
-            _CACHE.popitem(last=False)
+        _remember(_CACHE, key, block)
     return block
 
 
 def clear_cache() -> None:
-    """Forget the cached confounder blocks (each holds a days × columns matrix)."""
+    """Forget the cached confounder blocks (each holds a days × columns matrix) and validated frames."""
     _CACHE.clear()
+    _FRAMES.clear()
 
 
 def build_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
@@ -219,20 +262,31 @@ def _drop_reasons(
     exposure: np.ndarray,
     conf: ConfounderBlock,
     offset: np.ndarray | None,
+    rows: np.ndarray | None = None,
+    raw: np.ndarray | None = None,
 ) -> np.ndarray:
-    n = len(frame)
-    reasons = np.full(n, "", dtype=object)
-    raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
-    missing_x = ~np.isfinite(exposure).all(axis=1)
-    early = np.arange(n) < spec.lag.max_lag
+    """Why each day is left out ("" for a usable day), on every day or only on ``rows`` (indices).
+
+    :func:`build_design` asks only about the days :func:`usable_days` leaves out (a few hundred of
+    thousands); the answer for a day does not depend on which other days are asked about. ``raw`` is the
+    daily exposure on the full calendar (read from ``frame`` when not given).
+    """
+    rows = np.arange(len(frame)) if rows is None else rows
+    reasons = np.full(rows.size, "", dtype=object)
+    if raw is None:
+        raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
+    raw = raw[rows]
+    missing_x = ~np.isfinite(exposure[rows]).all(axis=1)
+    early = rows < spec.lag.max_lag
+    first_missing = conf.first_missing[rows]
     for i, block in enumerate(conf.blocks):
-        reasons[(conf.first_missing == i) & (reasons == "")] = f"{block.name} missing"
+        reasons[(first_missing == i) & (reasons == "")] = f"{block.name} missing"
     if offset is not None:
-        reasons[~np.isfinite(offset)] = "offset missing"
+        reasons[~np.isfinite(offset[rows])] = "offset missing"
     reasons[missing_x & early & ~np.isnan(raw)] = LAG_BEFORE_START
     reasons[missing_x & ~early] = EXPOSURE_IN_WINDOW
     reasons[missing_x & np.isnan(raw)] = EXPOSURE_MISSING
-    reasons[~np.isfinite(y)] = OUTCOME_MISSING
+    reasons[~np.isfinite(y[rows])] = OUTCOME_MISSING
     return reasons
 
 
@@ -247,6 +301,32 @@ def usable_days(
     if offset is not None:
         used &= np.isfinite(offset)
     return used
+
+
+def _used_runs(used: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Starts and ends (exclusive) of the runs of consecutive used days."""
+    edges = np.diff(np.r_[0, used.astype(np.int8), 0])
+    return np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
+
+
+def _gather_rows(block: np.ndarray, used: np.ndarray, out: np.ndarray) -> None:
+    """``out[:] = block[used]`` for a column-major ``block``, by the cheaper of two exact copies.
+
+    A daily series has few gaps, so the days used form a few long runs: copying run by run moves whole
+    column segments (78 runs: ~3x faster than gathering rows on 5,000 days x 117 columns). With many short runs
+    (intermittent monitoring) the rows are gathered column by column instead (``np.take`` on each
+    column of the column-major block is ~2x faster than ``block[used]``). Both give the same array.
+    """
+    starts, ends = _used_runs(used)
+    if starts.size <= block.shape[1]:  # ~2 µs per run against ~4 µs per column (measured)
+        at = 0
+        for start, end in zip(starts, ends, strict=True):
+            out[at : at + end - start] = block[start:end]
+            at += end - start
+        return
+    rows = np.flatnonzero(used)
+    for j in range(block.shape[1]):
+        np.take(block[:, j], rows, out=out[:, j])
 
 
 def _longest_unused_run(used: np.ndarray) -> int:
@@ -308,10 +388,12 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     exposure = lag.columns(raw)
     y = frame[spec.outcome].to_numpy(dtype=float, na_value=np.nan)
     offset = None if spec.offset is None else frame[spec.offset].to_numpy(dtype=float, na_value=np.nan)
-    reasons = _drop_reasons(frame, spec, y, exposure, conf, offset)
-    used = reasons == ""
+    used = usable_days(y, exposure, conf, offset)
+    unused = np.flatnonzero(~used)
+    reasons = np.full(len(frame), "", dtype=object)
+    reasons[unused] = _drop_reasons(frame, spec, y, exposure, conf, offset, unused, raw)
     calendar = pd.DatetimeIndex(frame[spec.date])
-    dropped = pd.DataFrame({"date": calendar[~used], "reason": reasons[~used].astype(str)})
+    dropped = pd.DataFrame({"date": calendar[unused], "reason": reasons[unused].astype(str)})
     names = conf.column_names + tuple(lag.column_names(spec.exposure))
     p = len(names)
     n_used = int(used.sum())
@@ -327,9 +409,7 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     )
     matrix = np.empty((n_used, p), order="F")  # column-major: the engine's syrk is fastest on it
     k = conf.matrix.shape[1]
-    rows = np.flatnonzero(used)
-    for j in range(k):  # column by column from the column-major block: ~2x faster than conf.matrix[used]
-        np.take(conf.matrix[:, j], rows, out=matrix[:, j])
+    _gather_rows(conf.matrix, used, matrix[:, :k])
     matrix[:, k:] = exposure[used]
     aliased, why = _alias_confounders(matrix[:, :k], conf, calendar, used, reasons)
     if aliased.size:

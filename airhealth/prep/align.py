@@ -57,8 +57,12 @@ def _consecutive_days(frame: pd.DataFrame, date: str) -> pd.DataFrame | None:
     if np.isnat(values).any() or (days != values).any() or (np.diff(days) != np.timedelta64(1, "D")).any():
         return None
     out = frame.copy()
-    out[date] = values.astype("datetime64[ns]")
-    return out.reset_index(drop=True)
+    if values.dtype != np.dtype("datetime64[ns]"):  # (assigning a column costs more than the copy)
+        out[date] = values.astype("datetime64[ns]")
+    index = out.index  # as reset_index(drop=True) leaves it: 0, 1, ..., unnamed
+    if not (isinstance(index, pd.RangeIndex) and index.start == 0 and index.step == 1 and index.name is None):
+        out.index = pd.RangeIndex(len(out))
+    return out
 
 
 def align_daily(

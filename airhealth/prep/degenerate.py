@@ -124,15 +124,15 @@ def check_one_season(
     if not has_x.any():
         return
     months = dates.to_numpy().astype("datetime64[M]").astype(np.int64)  # months since 1970-01
-    years = np.unique(months[has_x] // 12 + 1970)
-    if len(years) < 2:
-        return
     month = months % 12 + 1
     y_days = np.bincount(month[has_y], minlength=13)[1:]
     x_days = np.bincount(month[has_x], minlength=13)[1:]
     recorded = y_days > 0
     empty = recorded & (x_days < EMPTY_MONTH_COVERAGE * np.maximum(y_days, 1))
     if empty.sum() < MIN_EMPTY_MONTHS or empty.sum() == recorded.sum():
+        return  # (checked before the years: the cheaper test settles most series)
+    years = np.unique(months[has_x] // 12 + 1970)
+    if len(years) < 2:
         return
     with_data = [m + 1 for m in range(12) if recorded[m] and not empty[m]]
     without = [m + 1 for m in range(12) if empty[m]]
@@ -158,10 +158,19 @@ def check_series(
 ) -> None:
     """The whole-series checks: outcome with events and variation, a varying exposure, not one season."""
     has_y = np.isfinite(y)
-    check_outcome_varies(y[has_y], outcome, dates[has_y], "days with a count")
+    if _single_value(y[has_y]):  # the dates of the message only when there is one to give
+        check_outcome_varies(y[has_y], outcome, dates[has_y], "days with a count")
     has_x = np.isfinite(exposure)
-    check_exposure_varies(exposure[has_x], column, dates[has_x], "days")
+    if _single_value(exposure[has_x]):
+        check_exposure_varies(exposure[has_x], column, dates[has_x], "days")
     check_one_season(exposure, y, dates, column, outcome, date)
+
+
+def _single_value(values: np.ndarray) -> bool:
+    """Whether the finite ``values`` (at least one) are all equal: the only case in which
+    :func:`check_outcome_varies` or :func:`check_exposure_varies` can raise."""
+    v = values[np.isfinite(values)]
+    return bool(v.size) and v.min() == v.max()
 
 
 def check_usable_days(
@@ -202,8 +211,10 @@ def check_usable_days(
     n_used = int(used.sum())
     if n_used:
         scope = "usable days"
-        check_outcome_varies(y[used], outcome, dates[used], scope)
-        check_exposure_varies(exposure[used], column, dates[used], scope)
+        if _single_value(y[used]):
+            check_outcome_varies(y[used], outcome, dates[used], scope)
+        if _single_value(exposure[used]):
+            check_exposure_varies(exposure[used], column, dates[used], scope)
     if n_used <= n_parameters:
         raise DataError(too_few())
     events = float(np.sum(y[used]))

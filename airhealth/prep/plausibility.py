@@ -20,6 +20,7 @@ The ranges are deliberately wide: they catch wrong units and corrupted values, n
 
 from __future__ import annotations
 
+import functools
 import re
 from dataclasses import dataclass
 
@@ -111,6 +112,10 @@ def recognise_pollutant(column: str) -> str | None:
     return None
 
 
+#: :func:`recognise_pollutant` remembered per column name (a pure function of the name).
+_pollutant_of = functools.lru_cache(maxsize=4096)(recognise_pollutant)
+
+
 def _unit_scale(unit: str) -> tuple[str, float] | None:
     key = re.sub(r"\s+", "", str(unit)).lower()
     if key in _EXTRA_UNITS:
@@ -173,7 +178,7 @@ def check_exposure_values(values: np.ndarray, column: str, unit: str, dates: pd.
     DataWarning
         When the median of the series suggests a unit 1000× smaller or larger than the one stated.
     """
-    pollutant = recognise_pollutant(column)
+    pollutant = _pollutant_of(column)
     if pollutant is None:
         return
     limits = POLLUTANT_RANGES[pollutant]

@@ -53,6 +53,8 @@ def require_columns(frame: pd.DataFrame, columns: Iterable[str | None], what: st
             f"column {missing[0]!r} does not exist in {what}; available columns: {available}. "
             + _missing_column_hint(frame, missing[0], what)
         )
+    if frame.columns.is_unique:  # (cached by pandas) no column can appear twice
+        return
     for column in dict.fromkeys(wanted):
         times = int((frame.columns == column).sum())
         if times > 1:
