@@ -109,7 +109,8 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
     """Validate ``data`` for ``spec`` and return a copy on a complete daily calendar.
 
     The single validation entry of every front end (``fit``, ``compare``, sweeps, reports, the command
-    line). In order: the columns exist and the table has rows; dates parse and are daily; ``spec.na_values``
+    line). In order: the columns exist and the table has rows; dates parse (in ``spec.date_format`` if given)
+    and are daily; ``spec.na_values``
     become missing in every column the model reads and text columns become numbers
     (:func:`airhealth.prep.guards.clean_values`, which also refuses common missing-value codes such as -999
     left in a series); the outcome holds whole non-negative counts; neither outcome nor exposure is entirely
@@ -120,7 +121,7 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
     """
     require_columns(data, [spec.date, *spec.columns_used()], "data")
     check_empty(data)
-    frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date)
+    frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date, date_format=spec.date_format)
     roles = column_roles(spec)
     frame = clean_values(frame, roles, spec.na_values)
     check_not_all_missing(frame[spec.outcome], spec.outcome, "outcome")

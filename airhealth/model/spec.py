@@ -114,6 +114,11 @@ class ModelSpec:
         Unit of the exposure (default ``"µg/m³"``); carried into every effect label, table, figure and the
         JSON (``"unit"``) so that a relative risk reads "per 10 ppb". :meth:`from_options` also accepts
         ``units={"o3": "ppb"}``, a mapping of column → unit, and takes the exposure's entry.
+    date_format : str or None
+        Format of text dates that are not ISO 8601, e.g. ``"%d/%m/%Y"`` (a ``strftime`` format every value
+        must follow), or ``"excel"`` for spreadsheet serial day numbers; ``None`` (default) reads ISO dates
+        and refuses dates whose order of day and month is in doubt (see
+        :func:`airhealth.prep.validate.parse_dates`). The command line's ``--date-format``.
     na_values : tuple
         Values that mean "missing" in the data columns the model reads: numbers (e.g. ``-999``, matched by
         value) and texts (e.g. ``"<LOD"``, matched after stripping spaces; a text that reads as a number
@@ -161,6 +166,7 @@ class ModelSpec:
     max_iter: int = 100
     unit: str = DEFAULT_UNIT
     na_values: tuple[Any, ...] = ()
+    date_format: str | None = None
 
     def __post_init__(self) -> None:
         for name in ("outcome", "exposure", "date"):
@@ -196,6 +202,10 @@ class ModelSpec:
             raise SpecificationError(f"unit must be a non-empty text such as 'µg/m³' or 'ppb', got {self.unit!r}.")
         object.__setattr__(self, "unit", self.unit.strip())
         object.__setattr__(self, "na_values", _checked_na_values(self.na_values))
+        if self.date_format is not None and (not isinstance(self.date_format, str) or not self.date_format.strip()):
+            raise SpecificationError(
+                f"date_format must be a date format such as '%d/%m/%Y' (or 'excel'), got {self.date_format!r}."
+            )
         if self.exposure == self.outcome:
             raise SpecificationError(f"outcome and exposure are the same column, {self.outcome!r}.")
         self._check_roles()

@@ -26,17 +26,20 @@ __all__ = [
 DuplicateDays = Literal["error", "mean", "first"]
 
 
-def prepare_daily(frame: pd.DataFrame, date: str = "date", what: str = "data") -> pd.DataFrame:
+def prepare_daily(
+    frame: pd.DataFrame, date: str = "date", what: str = "data", date_format: str | None = None
+) -> pd.DataFrame:
     """Validate one daily table and return a sorted copy on a complete calendar.
 
-    The ``date`` column is parsed (errors name the bad rows), duplicated dates and non-daily steps are
+    The ``date`` column is parsed (in ``date_format`` if given, see
+    :func:`~airhealth.prep.validate.parse_dates`; errors name the bad rows), duplicated dates and non-daily steps are
     errors, and calendar gaps become rows of missing values with a warning. The caller's frame is never
     modified.
     """
-    ready = _consecutive_days(frame, date)
+    ready = _consecutive_days(frame, date) if date_format is None else None
     if ready is not None:
         return ready
-    dates = parse_dates(frame, date, what)
+    dates = parse_dates(frame, date, what, date_format=date_format)
     check_daily_dates(dates, date, what)
     return complete_calendar(frame, dates, date)
 
