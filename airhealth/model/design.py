@@ -23,6 +23,8 @@ from ..prep.degenerate import check_empty, check_usable_days
 from ..prep.guards import ColumnRoles, check_values, clean_values
 from ..prep.validate import check_counts, check_finite, check_not_all_missing, require_columns
 from .aliasing import aliased_columns, describe_aliased
+from .exposure_lag import ExposureLagBasis
+from .lag_structures import LagStructure, MovingAverage, SingleDay
 from .spec import ModelSpec
 from .terms import Categorical, TermBlock
 
@@ -34,6 +36,7 @@ __all__ = [
     "cached_confounders",
     "clear_cache",
     "column_roles",
+    "lag_window_remedy",
     "model_frame",
     "usable_days",
 ]
@@ -273,7 +276,25 @@ def _alias_confounders(
     return aliased, describe_aliased(names, conf.matrix[:, aliased], calendar, used, reasons)
 
 
-def _too_few_days_message(n_used: int, p: int, dropped: pd.DataFrame) -> str:
+def lag_window_remedy(lag: LagStructure) -> str:
+    """What to do when days of a lag window lack the exposure, for this kind of lag (one sentence).
+
+    Only a moving average can use the days present (``min_count``); a distributed lag or a single day
+    needs every day it reads, so the remedies are a shorter window or a completed exposure series.
+    """
+    inner = lag.lag if isinstance(lag, ExposureLagBasis) else lag
+    if isinstance(inner, MovingAverage):
+        return (
+            "Use a shorter lag window, or let the moving average use the days present: "
+            "MovingAverage(first, last, min_count=1) (or a larger min_count)."
+        )
+    fill = "fill the gaps in the exposure series (e.g. from a nearby monitor) before fitting"
+    if isinstance(inner, SingleDay):
+        return f"Days without an exposure value cannot be used at lag {inner.label}: {fill}."
+    return f"Lag {inner.label} needs the exposure on every day it reads: use a shorter lag window, or {fill}."
+
+
+def _too_few_days_message(n_used: int, p: int, dropped: pd.DataFrame, lag: LagStructure) -> str:
     counts = dropped["reason"].value_counts()
     detail = "; ".join(f"{k}: {v}" for k, v in counts.head(3).items())
     return (
@@ -281,8 +302,8 @@ def _too_few_days_message(n_used: int, p: int, dropped: pd.DataFrame) -> str:
         + (f" (days dropped — {detail})" if detail else "")
         + "; use a longer series, fewer df per year or fewer terms."
         + (
-            " Lags over several days need consecutive exposure days: with intermittent monitoring (e.g. "
-            "every third day) use single-day lags or MovingAverage(first, last, min_count=1)."
+            " Lags over several days need consecutive exposure days (with intermittent monitoring, e.g. every "
+            f"third day, single-day lags fit). {lag_window_remedy(lag)}"
             if (dropped["reason"] == EXPOSURE_IN_WINDOW).any()
             else ""
         )
@@ -324,7 +345,8 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         calendar,
         spec.outcome,
         spec.exposure,
-        too_few=lambda: _too_few_days_message(n_used, p, dropped),
+        too_few=lambda: _too_few_days_message(n_used, p, dropped, spec.lag),
+        window_remedy=lag_window_remedy(spec.lag) if (reasons == EXPOSURE_IN_WINDOW).any() else "",
     )
     matrix = np.empty((n_used, p), order="F")  # column-major: the engine's syrk is fastest on it
     k = conf.matrix.shape[1]
