@@ -84,7 +84,8 @@ def align_daily(
     names : tuple of str, optional
         Names of the tables used in error messages (default "table 1", "table 2", ...).
     start, end : date-like, optional
-        Calendar limits; by default from the earliest to the latest date in any table.
+        Calendar limits (dates or ISO text such as ``"2015-03-31"``); by default from the earliest to the
+        latest date in any table.
 
     Returns
     -------
@@ -125,8 +126,8 @@ def align_daily(
         dates = parse_dates(table, date, label)
         check_daily_dates(dates, date, label)
         prepared.append(table.assign(**{date: dates}).set_index(date))
-    lo = min(p.index.min() for p in prepared) if start is None else pd.Timestamp(start)
-    hi = max(p.index.max() for p in prepared) if end is None else pd.Timestamp(end)
+    lo = min(p.index.min() for p in prepared) if start is None else _as_day(start, "start")
+    hi = max(p.index.max() for p in prepared) if end is None else _as_day(end, "end")
     if hi < lo:
         raise DataError(f"the calendar is empty: end {hi:%Y-%m-%d} is before start {lo:%Y-%m-%d}.")
     calendar = pd.date_range(lo, hi, freq="D", name=date)
