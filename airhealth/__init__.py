@@ -27,6 +27,7 @@ from .model.terms import Categorical, Linear, Spline
 from .prep.align import align_daily
 from .report.city_report import write_report
 from .sample import load_sample, load_sample_tables
+from .studies.diagnostics import Diagnostics, diagnose
 
 __version__ = "0.1.0"
 
@@ -37,6 +38,7 @@ __all__ = [
     "ConvergenceWarning",
     "DataError",
     "DataWarning",
+    "Diagnostics",
     "DispersionWarning",
     "ExposureLagBasis",
     "ExposureLagTerm",
@@ -57,6 +59,7 @@ __all__ = [
     "__version__",
     "align_daily",
     "compare",
+    "diagnose",
     "exposure_response",
     "fit",
     "lag_response",

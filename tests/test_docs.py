@@ -40,8 +40,10 @@ def test_readme_and_reports_carry_the_caution() -> None:
     assert "not proof of causation" in CAUTION
 
 
-def test_readme_python_example_runs() -> None:
+def test_readme_python_example_runs(tmp_path, monkeypatch) -> None:
     import matplotlib
+
+    monkeypatch.chdir(tmp_path)  # the example writes a report folder: never into the repository
 
     matplotlib.use("Agg")
     readme = (ROOT / "README.md").read_text(encoding="utf-8")
@@ -51,6 +53,7 @@ def test_readme_python_example_runs() -> None:
     exec(compile(blocks[0], "README.md", "exec"), namespace)
     result = namespace["result"]
     assert 0.99 < result.effect(per=10).rr < 1.03  # the sample's true RR per 10 is 1.010
+    assert (tmp_path / "my-report" / "index.html").is_file()
 
 
 def _apt_packages(text: str) -> list[set[str]]:

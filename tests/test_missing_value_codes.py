@@ -87,7 +87,7 @@ def test_code_in_the_outcome_is_named_before_the_negative_count_error(three_year
 
 
 def test_a_count_equal_to_a_positive_code_is_a_real_count(three_years):
-    # 999 deaths on one day is extreme but possible in a large region: only negative codes are searched in counts
+    # 999 deaths on ONE day is extreme but possible (a disaster): a count-like code must repeat to be flagged
     data = three_years.copy()
     data.loc[200, "deaths_all"] = 999
     with pytest.warns(DispersionWarning):  # the one outlier inflates the dispersion, as it should
@@ -202,3 +202,22 @@ def test_a_code_that_could_be_a_count_never_erases_outcome_days(three_years):
         result.n_days
         == fit(data.assign(deaths_all=data["deaths_all"].where(data["deaths_all"] >= 0)), na_values=[0]).n_days
     )
+
+
+def test_a_large_code_in_the_outcome_is_named_and_a_declared_one_applies(three_years):
+    # Reviewed case: three days of 9999 deaths gave RR 0.80 (p = 7e-13) and `--na-values 9999` was ignored for
+    # the outcome. A count-like code far outside the counts is now found, and applies once declared.
+    data = with_codes(three_years, column="deaths_all", code=9999.0)
+    with pytest.raises(DataError, match=r"column 'deaths_all' holds 9999 on 3 day\(s\): 2010-04-11"):
+        fit(data)
+    declared = fit(data, na_values=[9999])
+    blank = fit(with_codes(three_years, column="deaths_all", code=np.nan))
+    pd.testing.assert_series_equal(declared.coef, blank.coef, check_exact=True)
+
+
+def test_a_declared_code_among_the_counts_is_left_as_a_count_with_a_warning(three_years):
+    data = three_years.copy()
+    data.loc[[5, 6], "deaths_all"] = 30  # within the usual counts
+    with pytest.warns(UserWarning, match=r"na_values 30 not applied to the count column 'deaths_all'"):
+        declared = fit(data, na_values=[30])
+    assert declared.n_days == fit(data).n_days

@@ -86,6 +86,8 @@ def run(args: argparse.Namespace) -> int:
             f"dispersion {result.dispersion:.3f}, QAIC {result.qaic:.1f}, {result.n_days} days used, "
             f"{len(result.dropped)} dropped"
         )
+        if result.hac_lags is not None:
+            print(f"intervals: Newey-West (HAC), truncation lag {result.hac_lags} days")
         warned = {str(w.message) for w in caught}
         for note in result.notes:  # how the fit was obtained (e.g. a negative binomial fitted as Poisson)
             if note not in warned:

@@ -93,6 +93,19 @@ def add_model_options(p: argparse.ArgumentParser) -> None:
         help="moving-average lags use the mean of the available days when at least N are present "
         "(default: every day of the window is needed)",
     )
+    g.add_argument(
+        "--interval",
+        default="quasi-poisson",
+        help="standard errors and intervals: quasi-poisson (default, model-based) or hac (Newey-West, robust to "
+        "residual autocorrelation)",
+    )
+    g.add_argument(
+        "--hac-lags",
+        type=int,
+        default=None,
+        metavar="L",
+        help="truncation lag of --interval hac (default floor(4 (days/100)^(2/9)), about 9 for 14 years)",
+    )
     e = p.add_argument_group("effects")
     e.add_argument("--per", type=float, default=10.0, help="exposure increase for the relative risk (default 10)")
     e.add_argument(
@@ -230,7 +243,7 @@ def parse_months(text: str) -> list[int]:
 def model_options(args: argparse.Namespace) -> dict[str, Any]:
     """The :class:`~airhealth.model.spec.ModelSpec` options of the shared command-line options."""
     _, codes = parse_na_values(args.na_values)
-    na_values = tuple(v for v in codes if not _could_be_count(v))  # count-like codes were applied when reading
+    na_values = tuple(codes)  # the preparation layer decides which codes apply to count columns
     return {
         "date": args.date,
         "temperature": args.temperature,
@@ -243,4 +256,6 @@ def model_options(args: argparse.Namespace) -> dict[str, Any]:
         "family": args.family,
         "seasonality": args.seasonality,
         "na_values": na_values,
+        "interval": args.interval,
+        "hac_lags": args.hac_lags,
     }

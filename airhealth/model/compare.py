@@ -13,7 +13,8 @@ confounder are available) and each structure by
 :func:`~airhealth.model.grid_inference.fit_exposure_only`, which reuses it and gives the single fit's
 estimates to rounding; whatever that shared work cannot do (a structure that does not converge, collinear
 columns, aliased columns, negative binomial models that re-estimate theta, exposure-response terms that learn
-from the data) is fitted by :func:`~airhealth.model.fitting.fit_design` on the structure's own design.
+from the data, Newey–West intervals) is fitted by :func:`~airhealth.model.fitting.fit_design` on the
+structure's own design.
 
 BLAS threads follow the fitting path's policy (:func:`airhealth._threads.fitting_threads`).
 """
@@ -76,6 +77,7 @@ def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any
         keep = _common([d.used for d in designs], designs)
         designs = [_restrict(d, keep) for d in designs]
     shared = specs[0].family != "negbin" and not any(hasattr(s.lag, "bind") for s in specs)
+    shared = shared and specs[0].interval == "quasi-poisson"  # HAC intervals: each structure's single fit
     return _Grid(specs, frame, confounders, designs, shared)
 
 

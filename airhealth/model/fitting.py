@@ -20,6 +20,7 @@ from .design import EXPOSURE_MISSING, EXPOSURE_REASONS, Design, build_design, la
 from .engine import GLMFit, fit_glm
 from .result import FitResult
 from .spec import ModelSpec
+from .variance import family_of, fit_hac_covariance
 
 __all__ = ["fit", "fit_design", "fit_spec", "result_from_fit", "warn_if_suspicious"]
 
@@ -100,10 +101,16 @@ def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
     names = list(design.column_names)
     dates = design.calendar[design.used]
     q1, q3 = _exposure_quartiles(design)
+    cov, hac_lags = glm.cov, None
+    if spec.interval == "hac":
+        family = family_of(glm.family, glm.theta)
+        cov, hac_lags = fit_hac_covariance(
+            design.matrix, design.response, glm.fitted, family, glm.cov_unscaled, dates.to_numpy(), spec.hac_lags
+        )
     return FitResult(
         spec=spec,
         coef=pd.Series(glm.coef, index=names, name="coef"),
-        cov=pd.DataFrame(glm.cov, index=names, columns=names),
+        cov=pd.DataFrame(cov, index=names, columns=names),
         dispersion=float(glm.dispersion),
         deviance=float(glm.deviance),
         loglik=float(glm.loglik),
@@ -121,6 +128,8 @@ def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
         bases={b.name: b.basis for b in design.confounders.blocks if b.basis is not None},
         aliased=design.aliased,
         notes=design.notes + glm.notes,
+        design_matrix=design.matrix,
+        hac_lags=hac_lags,
     )
 
 

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import FrozenInstanceError
+from functools import partial
 from types import MappingProxyType
 from typing import Any, Literal
 
@@ -25,10 +26,12 @@ from .._choices import check_choice
 from ..errors import SpecificationError
 from .effects import relative_risk
 from .spec import ModelSpec
+from .variance import family_of
 
 __all__ = ["FitResult"]
 
 EffectScale = Literal["unit", "iqr"]
+ResidualKind = Literal["deviance", "pearson", "response"]
 
 #: Columns of one-row-per-model tables (:meth:`FitResult.summary`, ``compare``, report tables).
 SUMMARY_COLUMNS = (
@@ -40,6 +43,15 @@ SUMMARY_COLUMNS = (
 def _own_copy(frame: pd.Series | pd.DataFrame) -> pd.Series | pd.DataFrame:
     """A private deep copy (data and index), so the caller's object and the result never share memory."""
     return frame.copy(deep=True)
+
+
+def _frozen_array(values: np.ndarray | None) -> np.ndarray | None:
+    """A private read-only copy of an array (``None`` stays ``None``)."""
+    if values is None:
+        return None
+    own = np.array(values, dtype=float, copy=True)
+    own.setflags(write=False)
+    return own
 
 
 class FitResult:
@@ -89,12 +101,15 @@ class FitResult:
         columns of time inside a long gap), as R's ``glm`` reports aliased coefficients.
     notes : tuple of str
         Plain-language notes on how the fit was obtained (e.g. a negative binomial that fell back to Poisson).
+    hac_lags : int or None
+        Truncation lag of the Newey–West covariance when ``spec.interval == "hac"`` (``cov`` is then that
+        sandwich); ``None`` for the model-based covariance.
     """
 
     __slots__ = (
-        "_bases", "_coef", "_cov", "_dropped", "_fitted", "_observed", "aliased", "converged", "deviance",
-        "df_resid", "dispersion", "exposure_columns", "exposure_iqr", "loglik", "n_days", "n_iter", "notes",
-        "qaic", "spec", "theta",
+        "_bases", "_coef", "_cov", "_dropped", "_fitted", "_matrix", "_observed", "aliased", "converged",
+        "deviance", "df_resid", "dispersion", "exposure_columns", "exposure_iqr", "hac_lags", "loglik", "n_days",
+        "n_iter", "notes", "qaic", "spec", "theta",
     )  # fmt: skip
 
     spec: ModelSpec
@@ -111,6 +126,7 @@ class FitResult:
     theta: float | None
     aliased: tuple[str, ...]
     notes: tuple[str, ...]
+    hac_lags: int | None
 
     def __init__(
         self,
@@ -134,6 +150,8 @@ class FitResult:
         bases: Mapping[str, Any] | None = None,
         aliased: Sequence[str] = (),
         notes: Sequence[str] = (),
+        design_matrix: np.ndarray | None = None,
+        hac_lags: int | None = None,
     ) -> None:
         put = object.__setattr__
         for name, value in (
@@ -143,6 +161,7 @@ class FitResult:
             ("_observed", _own_copy(observed)), ("exposure_columns", tuple(exposure_columns)),
             ("exposure_iqr", exposure_iqr), ("converged", converged), ("n_iter", n_iter), ("theta", theta),
             ("_bases", MappingProxyType(dict(bases or {}))), ("aliased", tuple(aliased)), ("notes", tuple(notes)),
+            ("_matrix", _frozen_array(design_matrix)), ("hac_lags", hac_lags),
         ):  # fmt: skip
             put(self, name, value)
 
@@ -158,7 +177,8 @@ class FitResult:
             self.df_resid, self.n_days, self._dropped, self._fitted, self._observed, self.exposure_columns,
             self.exposure_iqr, self.converged, self.n_iter, self.theta, dict(self._bases), self.aliased, self.notes,
         )  # fmt: skip
-        return (type(self), args)
+        # the design matrix and HAC lag go by keyword, so the positional arguments end with aliased, notes
+        return (partial(type(self), design_matrix=self._matrix, hac_lags=self.hac_lags), args)
 
     # -- what the result gives out: copies, or read-only ------------------------------------------
     @property
@@ -190,6 +210,43 @@ class FitResult:
     def bases(self) -> Mapping[str, Any]:
         """Fitted bases of the confounder terms by term name (a read-only mapping of immutable objects)."""
         return self._bases
+
+    @property
+    def design_matrix(self) -> pd.DataFrame:
+        """The fitted design on the days used (rows by date, columns as :attr:`coef`; a copy).
+
+        Kept so that diagnostics (leverage, influence, variance inflation) never need the data again.
+        """
+        if self._matrix is None:
+            raise SpecificationError("this result was built without its design matrix; fit it with airhealth.fit.")
+        return pd.DataFrame(self._matrix.copy(), index=self._fitted.index.copy(), columns=self._coef.index.copy())
+
+    def working_weights(self) -> pd.Series:
+        """IRLS working weights at the fit, ``μ`` for (quasi-)Poisson, ``μ / (1 + μ/θ)`` for negative binomial."""
+        mu = self._fitted.to_numpy()
+        w = family_of(self.spec.family, self.theta).working_weights(mu, np.ones_like(mu))
+        return pd.Series(w, index=self._fitted.index.copy(), name="working_weight")
+
+    def residuals(self, kind: ResidualKind = "deviance") -> pd.Series:
+        """Residuals on the days used, indexed by date, as R's ``residuals(glm, type=kind)``.
+
+        ``"response"``: ``y - μ``; ``"pearson"``: ``(y - μ) / sqrt(V(μ))`` (not divided by the dispersion);
+        ``"deviance"``: ``sign(y - μ) sqrt(d(y, μ))`` with ``d`` the family's unit deviance.
+
+        References
+        ----------
+        McCullagh P, Nelder JA (1989). *Generalized Linear Models*, 2nd ed., section 2.4.
+        """
+        check_choice("kind", kind, ResidualKind)
+        y, mu = self._observed.to_numpy(dtype=float), self._fitted.to_numpy()
+        family = family_of(self.spec.family, self.theta)
+        if kind == "response":
+            values = y - mu
+        elif kind == "pearson":
+            values = (y - mu) / np.sqrt(family.variance(mu))
+        else:
+            values = np.sign(y - mu) * np.sqrt(np.maximum(family.unit_deviance(y, mu), 0.0))
+        return pd.Series(values, index=self._fitted.index.copy(), name=f"{kind}_residual")
 
     # -- the exposure term -------------------------------------------------------------------------
     @property
@@ -308,7 +365,10 @@ class FitResult:
             "level": level,
             "aliased": list(self.aliased),
             "notes": list(self.notes),
+            "interval": self.spec.interval,
         }
+        if self.hac_lags is not None:
+            out["hac_lags"] = self.hac_lags
         if self.theta is not None:
             out["theta"] = self.theta
         if self.spec.lag.is_distributed:

@@ -20,7 +20,7 @@ from ..prep.units import parse_unit
 from .lag_structures import LagStructure, parse_lag
 from .terms import DayOfWeek, FourierSeason, Linear, PublicHolidays, Spline, Term, TimeSpline
 
-__all__ = ["DEFAULT_UNIT", "Family", "ModelSpec", "Seasonality", "display_unit"]
+__all__ = ["DEFAULT_UNIT", "Family", "Interval", "ModelSpec", "Seasonality", "display_unit"]
 
 #: Unit of an exposure unless the user names another.
 DEFAULT_UNIT = "µg/m³"
@@ -28,6 +28,7 @@ DEFAULT_UNIT = "µg/m³"
 Family = Literal["quasipoisson", "poisson", "negbin"]
 Seasonality = Literal["spline", "fourier"]
 ThetaMethod = Literal["ml", "moments"]
+Interval = Literal["quasi-poisson", "hac"]
 
 
 #: How each concentration unit is shown, by its code in :func:`airhealth.prep.units.parse_unit` (which knows
@@ -152,6 +153,14 @@ class ModelSpec:
         ``pandas.read_csv`` reads as missing by default (``"NA"``, ``"n/a"``, ``""``, ...) are missing
         without being listed; common codes such as -999 or 9999 left in a series far outside its other
         values are an error that names them (see :mod:`airhealth.prep.missing_codes`).
+    interval : {"quasi-poisson", "hac"}
+        How standard errors and intervals are computed: ``"quasi-poisson"`` (default) from the model
+        covariance scaled by the dispersion (or the family's own covariance for Poisson and negative
+        binomial); ``"hac"`` from the Newey–West (1987) sandwich on the GLM scores, robust to residual
+        autocorrelation (:mod:`airhealth.model.variance`; gaps are handled on the calendar).
+    hac_lags : int or None
+        Truncation lag of the ``"hac"`` interval; ``None`` (default) uses ``floor(4 (n/100)^(2/9))`` for
+        ``n`` days used (Newey & West 1994), about 9 for 14 years. Must be shorter than the series.
     tol : float
         Convergence tolerance on the relative change in deviance (default 1e-10; strict, see Dominici
         et al. 2002).
@@ -166,6 +175,10 @@ class ModelSpec:
     mortality. J R Stat Soc A 169:179–203.
     Dominici F, McDermott A, Zeger SL, Samet JM (2002). On the use of generalized additive models in
     time-series studies of air pollution and health. Am J Epidemiol 156:193–203.
+    Newey WK, West KD (1987). A simple, positive semi-definite, heteroskedasticity and autocorrelation
+    consistent covariance matrix. Econometrica 55:703–708.
+    Newey WK, West KD (1994). Automatic lag selection in covariance matrix estimation. Rev Econ Stud
+    61:631–653.
     """
 
     outcome: str
@@ -192,6 +205,8 @@ class ModelSpec:
     max_iter: int = 100
     unit: str = DEFAULT_UNIT
     na_values: tuple[Any, ...] = ()
+    interval: Interval = "quasi-poisson"
+    hac_lags: int | None = None
     date_format: str | None = None
 
     def __post_init__(self) -> None:
@@ -202,6 +217,16 @@ class ModelSpec:
         check_choice("seasonality", self.seasonality, Seasonality)
         check_choice("family", self.family, Family)
         check_choice("theta_method", self.theta_method, ThetaMethod)
+        check_choice("interval", self.interval, Interval)
+        if self.hac_lags is not None:
+            lags = self.hac_lags
+            if isinstance(lags, bool) or not isinstance(lags, int | np.integer) or lags < 0:
+                raise SpecificationError(
+                    f"hac_lags must be a whole number >= 0 or None (the default rule), got {lags!r}."
+                )
+            if self.interval != "hac":
+                raise SpecificationError(f"hac_lags={lags} applies only with interval='hac'; add interval='hac'.")
+            object.__setattr__(self, "hac_lags", int(lags))
         for name in ("temperature_df", "temperature_lag_df", "humidity_df", "max_iter"):
             value = getattr(self, name)
             if isinstance(value, bool) or not isinstance(value, int) or value < 1:

@@ -21,7 +21,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..errors import DataError
+from .._warn import warn_user
+from ..errors import DataError, DataWarning
 from .validate import _fmt_dates, _listing
 
 __all__ = [
@@ -166,8 +167,10 @@ def apply_na_values(
 ) -> pd.DataFrame:
     """``frame`` with declared missing-value codes set missing and text columns made numeric.
 
-    In the ``counts`` columns (the outcome) only codes that cannot be a count are applied (text, negative or
-    fractional numbers): a declared code 0 or 999 must not erase days with no (or 999) deaths.
+    In the ``counts`` columns (the outcome) a declared code that could be a real count (a whole number
+    >= 0, e.g. 0 or 9999) is applied only when it stands far outside the column's other values (Tukey's
+    far-out fences, as for undeclared codes): 9999 in a series of about 30 deaths a day is a code, while a
+    declared 0 must not erase the days with no deaths. A count-like code left in place is warned about.
 
     Returns a copy when anything changes, ``frame`` itself otherwise (it is never modified).
 
@@ -205,18 +208,47 @@ def apply_na_values(
         return frame
     out = frame.copy()
     count_columns = set(counts)
-    not_counts = [v for v in codes.numbers if v < 0 or v != round(v)]
     for column in columns:
         values = out[column]
         if pd.api.types.is_bool_dtype(values):
             continue
         if _is_text(values):
             values = _text_to_numbers(values, column, dates, codes.texts)
-        numbers = not_counts if column in count_columns else list(codes.numbers)
+        numbers = list(codes.numbers)
+        if column in count_columns and pd.api.types.is_numeric_dtype(values):
+            numbers = _codes_for_counts(values, column, numbers)
         if numbers and pd.api.types.is_numeric_dtype(values):
             values = values.where(~values.isin(numbers))
         out[column] = values
     return out
+
+
+def _codes_for_counts(values: pd.Series, column: str, codes: list[float]) -> list[float]:
+    """The declared codes to apply to a count column: those that cannot be counts, and count-like codes that
+    stand far outside the other counts. Count-like codes present but within the counts are warned about."""
+    v = values.to_numpy(dtype=float, na_value=np.nan)
+    keep, kept_as_counts = [], []
+    for code in codes:
+        if code < 0 or code != round(code):
+            keep.append(code)
+            continue
+        present = v == code
+        if not present.any():
+            continue
+        others = v[np.isfinite(v) & ~np.isin(v, codes)]
+        if _far_out(code, others)[0]:
+            keep.append(code)
+        else:
+            kept_as_counts.append(code)
+    if kept_as_counts:
+        shown = ", ".join(format_value(c) for c in kept_as_counts)
+        warn_user(
+            f"na_values {shown} not applied to the count column {column!r}: there it lies among the other "
+            "counts and reads as a real count (e.g. a day with no deaths). Mark missing counts in that column "
+            "as empty cells or with a code far outside the counts, such as -999.",
+            DataWarning,
+        )
+    return keep
 
 
 @dataclass(frozen=True)
@@ -291,7 +323,9 @@ def check_missing_codes(
     dates : DatetimeIndex
         Dates of the rows, for the message.
     counts : iterable of str
-        Count columns: only negative codes are searched there (a count of 999 can be real).
+        Count columns. Searched like the others (a code is flagged only far outside the column's other
+        values, so 999 in a city with about 900 deaths a day is left alone), except that a count-like code
+        (999, 9999, ...) must occur on more than one day: a single extreme day can be a real disaster.
 
     Raises
     ------
@@ -299,14 +333,16 @@ def check_missing_codes(
         Naming every column, code, number of days and first dates found, and the remedy
         ``na_values=[...]`` (command line ``--na-values``).
     """
-    counts = set(counts)
     found: list[FoundCode] = []
     for column in columns:
         values = frame[column]
         if not pd.api.types.is_numeric_dtype(values) or pd.api.types.is_bool_dtype(values):
             continue
         v = values.to_numpy(dtype=float, na_value=np.nan)
-        found += find_missing_codes(v, column, dates, negative_only=column in counts)
+        codes = find_missing_codes(v, column, dates)
+        if column in counts:  # one day of 999 deaths can be a disaster; the same count on several days is a code
+            codes = [f for f in codes if f.value < 0 or len(f.dates) > 1]
+        found += codes
     if not found:
         return
     codes = sorted({f.value for f in found})

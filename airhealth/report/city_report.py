@@ -18,6 +18,7 @@ import pandas as pd
 from ..errors import DataError
 from ..model.spec import DEFAULT_UNIT, ModelSpec
 from ..prep.describe import table_one
+from ..prep.missing_codes import apply_na_values
 from ..prep.validate import parse_dates
 from .data_quality_section import data_quality_section
 from .document import Figure, Section, Table, Text
@@ -280,6 +281,20 @@ def _sections(
     ]  # fmt: skip
 
 
+def _with_codes_missing(data: pd.DataFrame, fits: ReportFits, options: dict[str, Any]) -> pd.DataFrame:
+    """``data`` with the declared missing-value codes set missing in the columns the successful fits read, so
+    that the tables and figures describe the same values the models used (a -999 is never plotted)."""
+    na_values = options.get("na_values") or ()
+    if not na_values or not fits.done:
+        return data
+    date = options.get("date", "date")
+    outcomes = list(dict.fromkeys(r.spec.outcome for r in fits.done))
+    columns = list(dict.fromkeys(c for r in fits.done for c in r.spec.columns_used() if c != date))
+    columns = [c for c in columns if c in data.columns and not isinstance(data[c].dtype, pd.CategoricalDtype)]
+    dates = parse_dates(data, date, "data")
+    return apply_na_values(data, columns, na_values, dates, counts=outcomes)
+
+
 def report_content(
     data: pd.DataFrame,
     outcomes: Sequence[str] | str,
@@ -308,7 +323,8 @@ def report_content(
         data = data.assign(**{columns[0]: parse_dates(data, columns[0], "data", date_format=date_format).to_numpy()})
     fits = fit_request(data, request, show_progress=show_progress, **model_options)
     effects = _effects(fits, request.per, request.level)
-    sections = _sections(data, request, fits, effects, model_options, small_count_threshold)
+    described = _with_codes_missing(data, fits, model_options)
+    sections = _sections(described, request, fits, effects, model_options, small_count_threshold)
     return ReportContent(sections, effects, fits.failures, fits.warnings, fits.main)
 
 
