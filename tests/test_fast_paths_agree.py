@@ -150,3 +150,23 @@ def test_text_columns_are_never_taken_from_the_cache(sample: pd.DataFrame) -> No
     text = sample.assign(pm25=sample["pm25"].astype(object))
     assert design._frame_key(text, spec, design.column_roles(spec)) is None
     assert design._frame_key(sample, spec, design.column_roles(spec)) is not None
+
+
+def test_the_validated_frame_cache_keys_on_the_date_format():
+    # A frame validated with date_format="excel" must not be reused for a call without it: that call must
+    # still be refused with the Excel-serial message.
+    import pandas as pd
+    import pytest
+
+    import airhealth
+    from airhealth.errors import DataError
+
+    data = airhealth.load_sample()
+    data = data[data["date"] < "2012-01-01"].reset_index(drop=True)
+    serial = (pd.to_datetime(data["date"]) - pd.Timestamp("1899-12-30")).dt.days  # ECMA-376 1900 date system
+    coded = data.assign(date=serial.astype("int64"))
+    options = {"outcome": "deaths_all", "exposure": "pm25", "temperature": "temperature", "trend_df_per_year": 4}
+    with_format = airhealth.fit(coded, date_format="excel", **options)
+    assert with_format.coef.equals(airhealth.fit(data, **options).coef)
+    with pytest.raises(DataError, match="Excel"):
+        airhealth.fit(coded, **options)

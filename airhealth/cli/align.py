@@ -67,6 +67,7 @@ def run(args: argparse.Namespace) -> int:
     incomplete = int(daily.drop(columns=args.date).isna().any(axis=1).sum())
     print(
         f"wrote {args.out}: {len(daily)} days from {first:%Y-%m-%d} to {last:%Y-%m-%d}, "
-        f"{daily.shape[1] - 1} columns from {len(tables)} tables; {incomplete} days have an empty cell."
+        f"{daily.shape[1] - 1} columns from {len(tables)} table{'' if len(tables) == 1 else 's'}; "
+        f"{incomplete} days have an empty cell."
     )
     return 0

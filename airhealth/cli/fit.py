@@ -30,7 +30,7 @@ def register(sub: Any) -> None:
         help="fit the time-series model for one outcome and one exposure",
         description="Fit a quasi-Poisson time-series model of daily counts and report the relative risk.",
     )
-    p.add_argument("data", type=Path, help="CSV file with one row per day")
+    p.add_argument("data", type=Path, help="CSV file with one row per day (- for standard input)")
     p.add_argument("--outcome", required=True, help="column of daily counts")
     p.add_argument("--exposure", required=True, help="column of the daily pollutant level")
     p.add_argument("--lag", default="0-1", help='lag: "0", "2", "0-1", "dl0-5", "dl0-7:poly3", ... (default "0-1")')

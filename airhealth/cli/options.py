@@ -57,8 +57,14 @@ def add_reading_options(p: argparse.ArgumentParser) -> None:
         choices=["error", "mean", "first"],
         help="dates given on several rows: error (default), average the rows, or keep the first",
     )
-    g.add_argument("--start", metavar="DATE", help="restrict the period: first day to use (ISO, e.g. 2012-01-01)")
-    g.add_argument("--end", metavar="DATE", help="restrict the period: last day to use (ISO, e.g. 2019-12-31)")
+    g.add_argument(
+        "--start",
+        metavar="DATE",
+        help="restrict the period: first day to use (ISO, e.g. 2012-01-01, or as --date-format)",
+    )
+    g.add_argument(
+        "--end", metavar="DATE", help="restrict the period: last day to use (ISO, e.g. 2019-12-31, or as --date-format)"
+    )
     g.add_argument(
         "--months",
         metavar="LIST",
@@ -211,7 +217,7 @@ def read_daily(args: argparse.Namespace, columns: Sequence[str | None], outcomes
     frame = frame.assign(**{args.date: dates})
     frame = merge_duplicate_days(frame, args.duplicates, args.date, what)
     if args.start or args.end:
-        frame = restrict_period(frame, args.start, args.end, args.date, what)
+        frame = restrict_period(frame, args.start, args.end, args.date, what, date_format=args.date_format)
     if args.months:
         frame = restrict_months(frame, parse_months(args.months), args.date, what)
     return frame

@@ -54,7 +54,7 @@ def register(sub: Any) -> None:
         description="Fit every outcome x exposure x lag structure asked for and write an HTML report with CSV "
         "tables and PNG figures. Analyses that fail on their data are listed in the report; the rest completes.",
     )
-    p.add_argument("data", type=Path, help="CSV file with one row per day")
+    p.add_argument("data", type=Path, help="CSV file with one row per day (- for standard input)")
     p.add_argument("--outcome", action="append", required=True, metavar="COL", help="column of daily counts (repeat)")
     p.add_argument("--exposure", action="append", required=True, metavar="COL", help="pollutant column (repeat)")
     p.add_argument("--lags", default="0-1", help='comma-separated lag structures, e.g. "0,1,0-1,dl0-5" (default "0-1")')

@@ -7,7 +7,9 @@ is refused with a message naming the option (``--sep``, ``--decimal``, ``--encod
 
 from __future__ import annotations
 
+import io
 import re
+import sys
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 
@@ -16,22 +18,28 @@ import pandas as pd
 
 from ..errors import DataError
 
-__all__ = ["check_numeric_columns", "read_table"]
+__all__ = ["STDIN", "check_numeric_columns", "read_table"]
+
+#: The path that means "read the table from standard input".
+STDIN = "-"
 
 _SHOW = 5
 _DECIMAL_COMMA = re.compile(r"^\s*[+-]?\d+,\d+\s*$")
 _SEPARATORS = {";": "--sep ';'", "\t": "--sep tab", "|": "--sep '|'"}
 
 
-def _head(path: Path, encoding: str, lines: int = 6) -> list[str]:
+def _head(raw: bytes, encoding: str, lines: int = 6) -> list[str]:
     """The first lines of the file as text (undecodable bytes replaced), for diagnosing a bad read."""
-    with open(path, encoding=encoding, errors="replace", newline="") as handle:
-        return [line.rstrip("\r\n") for _, line in zip(range(lines), handle, strict=False)]
+    try:
+        text = raw[:65536].decode(encoding, errors="replace")
+    except LookupError:
+        return []
+    return text.splitlines()[:lines]
 
 
-def _separator_hint(path: Path, sep: str, encoding: str) -> str:
+def _separator_hint(raw: bytes, sep: str, encoding: str) -> str:
     """Advice on ``--sep`` / ``--decimal`` when the first lines suggest another layout, else ""."""
-    head = _head(path, encoding)
+    head = _head(raw, encoding)
     if not head:
         return ""
     for mark, option in _SEPARATORS.items():
@@ -50,9 +58,8 @@ def _separator_hint(path: Path, sep: str, encoding: str) -> str:
     return ""
 
 
-def _encoding_error(path: Path, encoding: str, exc: UnicodeDecodeError) -> DataError:
+def _encoding_error(path: Path, raw: bytes, encoding: str) -> DataError:
     """Where the file stops being ``encoding`` text, and the option to read it."""
-    raw = path.read_bytes()
     try:
         raw.decode(encoding)
         where = ""
@@ -66,9 +73,10 @@ def _encoding_error(path: Path, encoding: str, exc: UnicodeDecodeError) -> DataE
     )
 
 
-def _refuse_repeated_names(path: Path, sep: str, encoding: str) -> None:
+def _refuse_repeated_names(path: Path, raw: bytes, sep: str, encoding: str) -> None:
     """A name given twice in the header (pandas would silently rename the second ``name.1``)."""
-    header = pd.read_csv(path, sep=sep, header=None, nrows=1, encoding=encoding, dtype=str).iloc[0].tolist()
+    header = pd.read_csv(io.BytesIO(raw), sep=sep, header=None, nrows=1, encoding=encoding, dtype=str)
+    header = header.iloc[0].tolist()
     names = [str(h) for h in header]
     for name in dict.fromkeys(names):
         places = [i + 1 for i, n in enumerate(names) if n == name]
@@ -77,6 +85,21 @@ def _refuse_repeated_names(path: Path, sep: str, encoding: str) -> None:
                 f"the header of {str(path)!r} names {name!r} {len(places)} times (columns "
                 f"{', '.join(map(str, places))}); rename or remove all but one."
             )
+
+
+def _read_bytes(path: Path) -> bytes:
+    """The whole file, read once: a pipe or process substitution (``<(...)``) cannot be read twice, and
+    ``-`` is standard input."""
+    if str(path) == STDIN:
+        return sys.stdin.buffer.read()
+    if not path.exists():
+        raise DataError(f"file {str(path)!r} does not exist.")
+    if path.is_dir():
+        raise DataError(f"{str(path)!r} is a directory; give the path of a CSV file.")
+    try:
+        return path.read_bytes()
+    except OSError as exc:
+        raise DataError(f"could not read {str(path)!r}: {exc.strerror or exc}.") from exc
 
 
 def read_table(
@@ -91,7 +114,8 @@ def read_table(
     Parameters
     ----------
     path : Path
-        The CSV file.
+        The CSV file (``-``: standard input). It is read once, as bytes, so pipes and process substitution
+        work.
     sep, decimal : str
         Field separator and decimal mark (``--sep``, ``--decimal``).
     na_values : sequence of str, or mapping of column to them, optional
@@ -107,32 +131,29 @@ def read_table(
         (suggesting ``--encoding latin-1``), a parse error or a file read as one column whose header holds
         ``;``, a tab or ``|`` (suggesting ``--sep`` and, for decimal commas, ``--decimal``).
     """
-    if not path.exists():
-        raise DataError(f"file {str(path)!r} does not exist.")
-    if path.is_dir():
-        raise DataError(f"{str(path)!r} is a directory; give the path of a CSV file.")
+    raw = _read_bytes(path)
     try:
-        table = pd.read_csv(path, sep=sep, decimal=decimal, na_values=na_values, encoding=encoding)
+        table = pd.read_csv(io.BytesIO(raw), sep=sep, decimal=decimal, na_values=na_values, encoding=encoding)
     except UnicodeDecodeError as exc:
-        raise _encoding_error(path, encoding, exc) from exc
+        raise _encoding_error(path, raw, encoding) from exc
     except LookupError as exc:
         raise DataError(f"unknown encoding {encoding!r}; use e.g. utf-8, latin-1 or cp1252.") from exc
     except pd.errors.EmptyDataError as exc:
         raise DataError(f"{str(path)!r} is empty: it has no header and no rows.") from exc
     except ValueError as exc:  # ParserError, bad options
-        raise DataError(f"could not read {str(path)!r} as CSV: {exc}.{_separator_hint(path, sep, encoding)}") from exc
+        raise DataError(f"could not read {str(path)!r} as CSV: {exc}.{_separator_hint(raw, sep, encoding)}") from exc
     except OSError as exc:
         raise DataError(f"could not read {str(path)!r}: {exc.strerror or exc}.") from exc
     if table.shape[1] == 1:
-        hint = _separator_hint(path, sep, encoding)
+        hint = _separator_hint(raw, sep, encoding)
         if hint:
             raise DataError(f"{str(path)!r} was read as one column named {str(table.columns[-1])!r}.{hint}")
     if not isinstance(table.index, pd.RangeIndex):  # pandas made the extra first field of each row the index
         raise DataError(
             f"the rows of {str(path)!r} have more fields than its header ({', '.join(map(str, table.columns[:8]))})."
-            + (_separator_hint(path, sep, encoding) or " Check the separator (--sep) and the header line.")
+            + (_separator_hint(raw, sep, encoding) or " Check the separator (--sep) and the header line.")
         )
-    _refuse_repeated_names(path, sep, encoding)
+    _refuse_repeated_names(path, raw, sep, encoding)
     if table.empty:
         header = ", ".join(str(c) for c in table.columns[:10])
         raise DataError(f"{str(path)!r} has a header ({header}) but no rows of data.")

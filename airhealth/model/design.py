@@ -23,6 +23,8 @@ from ..prep.degenerate import check_empty, check_usable_days
 from ..prep.guards import ColumnRoles, check_values, clean_values
 from ..prep.validate import check_counts, check_finite, check_not_all_missing, require_columns
 from .aliasing import aliased_columns, describe_aliased
+from .exposure_lag import ExposureLagBasis
+from .lag_structures import LagStructure, MovingAverage, SingleDay
 from .spec import ModelSpec
 from .terms import Categorical, TermBlock
 
@@ -34,6 +36,7 @@ __all__ = [
     "cached_confounders",
     "clear_cache",
     "column_roles",
+    "lag_window_remedy",
     "model_frame",
     "usable_days",
 ]
@@ -109,7 +112,8 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
     """Validate ``data`` for ``spec`` and return a copy on a complete daily calendar.
 
     The single validation entry of every front end (``fit``, ``compare``, sweeps, reports, the command
-    line). In order: the columns exist and the table has rows; dates parse and are daily; ``spec.na_values``
+    line). In order: the columns exist and the table has rows; dates parse (in ``spec.date_format`` if given)
+    and are daily; ``spec.na_values``
     become missing in every column the model reads and text columns become numbers
     (:func:`airhealth.prep.guards.clean_values`, which also refuses common missing-value codes such as -999
     left in a series); the outcome holds whole non-negative counts; neither outcome nor exposure is entirely
@@ -140,7 +144,7 @@ def model_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
 
 def _checked_frame(data: pd.DataFrame, spec: ModelSpec, roles: ColumnRoles) -> pd.DataFrame:
     """The guards of :func:`model_frame`, in order, on a fresh copy of the columns ``spec`` reads."""
-    frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date)
+    frame = prepare_daily(data[[spec.date, *spec.columns_used()]], spec.date, date_format=spec.date_format)
     dates = pd.DatetimeIndex(frame[spec.date])  # once, for the messages of every guard
     frame = clean_values(frame, roles, spec.na_values, dates)
     outcome, exposure = frame[spec.outcome], frame[spec.exposure]
@@ -169,7 +173,7 @@ def _frame_key(data: pd.DataFrame, spec: ModelSpec, roles: ColumnRoles) -> tuple
     if not all(isinstance(data[c].dtype, np.dtype) and data[c].dtype.kind in "biufmM" for c in columns):
         return None
     try:
-        key = (roles, spec.na_values, tuple(columns), len(data), _content_digest(data, columns))
+        key = (roles, spec.na_values, spec.date_format, tuple(columns), len(data), _content_digest(data, columns))
         hash(key)
     except TypeError:  # an option that cannot be hashed: no caching
         return None
@@ -352,7 +356,25 @@ def _alias_confounders(
     return aliased, describe_aliased(names, conf.matrix[:, aliased], calendar, used, reasons)
 
 
-def _too_few_days_message(n_used: int, p: int, dropped: pd.DataFrame) -> str:
+def lag_window_remedy(lag: LagStructure) -> str:
+    """What to do when days of a lag window lack the exposure, for this kind of lag (one sentence).
+
+    Only a moving average can use the days present (``min_count``); a distributed lag or a single day
+    needs every day it reads, so the remedies are a shorter window or a completed exposure series.
+    """
+    inner = lag.lag if isinstance(lag, ExposureLagBasis) else lag
+    if isinstance(inner, MovingAverage):
+        return (
+            "Use a shorter lag window, or let the moving average use the days present: "
+            "MovingAverage(first, last, min_count=1) (or a larger min_count)."
+        )
+    fill = "fill the gaps in the exposure series (e.g. from a nearby monitor) before fitting"
+    if isinstance(inner, SingleDay):
+        return f"Days without an exposure value cannot be used at lag {inner.label}: {fill}."
+    return f"Lag {inner.label} needs the exposure on every day it reads: use a shorter lag window, or {fill}."
+
+
+def _too_few_days_message(n_used: int, p: int, dropped: pd.DataFrame, lag: LagStructure) -> str:
     counts = dropped["reason"].value_counts()
     detail = "; ".join(f"{k}: {v}" for k, v in counts.head(3).items())
     return (
@@ -360,8 +382,8 @@ def _too_few_days_message(n_used: int, p: int, dropped: pd.DataFrame) -> str:
         + (f" (days dropped — {detail})" if detail else "")
         + "; use a longer series, fewer df per year or fewer terms."
         + (
-            " Lags over several days need consecutive exposure days: with intermittent monitoring (e.g. "
-            "every third day) use single-day lags or MovingAverage(first, last, min_count=1)."
+            " Lags over several days need consecutive exposure days (with intermittent monitoring, e.g. every "
+            f"third day, single-day lags fit). {lag_window_remedy(lag)}"
             if (dropped["reason"] == EXPOSURE_IN_WINDOW).any()
             else ""
         )
@@ -405,7 +427,8 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         calendar,
         spec.outcome,
         spec.exposure,
-        too_few=lambda: _too_few_days_message(n_used, p, dropped),
+        too_few=lambda: _too_few_days_message(n_used, p, dropped, spec.lag),
+        window_remedy=lag_window_remedy(spec.lag) if (reasons == EXPOSURE_IN_WINDOW).any() else "",
     )
     matrix = np.empty((n_used, p), order="F")  # column-major: the engine's syrk is fastest on it
     k = conf.matrix.shape[1]

@@ -17,7 +17,7 @@ import pandas as pd
 from .._threads import design_threads, fitting_blas_threads
 from .._warn import warn_user
 from ..errors import DataWarning, DispersionWarning
-from .design import EXPOSURE_MISSING, EXPOSURE_REASONS, Design, build_design, model_frame
+from .design import EXPOSURE_MISSING, EXPOSURE_REASONS, Design, build_design, lag_window_remedy, model_frame
 from .engine import GLMFit, fit_glm
 from .result import FitResult
 from .spec import ModelSpec
@@ -67,7 +67,7 @@ def warn_if_suspicious(design: Design, spec: ModelSpec, dispersion: float) -> No
         warn_user(
             f"exposure {spec.exposure!r} (lag {spec.lag.label}) leaves {n_lost} of {n_days} days unusable "
             f"({n_missing} days with no value, the rest with a missing day in the lag window); the fit uses "
-            f"{int(design.used.sum())} days. Consider a shorter lag window or MovingAverage(min_count=...).",
+            f"{int(design.used.sum())} days. {lag_window_remedy(spec.lag)}",
             DataWarning,
         )
     if spec.family == "quasipoisson" and dispersion > DISPERSION_WARN:

@@ -7,6 +7,7 @@ and hands it to the same engine, so defaults and their documentation live here a
 from __future__ import annotations
 
 import dataclasses
+import re
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any, Literal
@@ -15,10 +16,11 @@ import numpy as np
 
 from .._choices import check_choice
 from ..errors import SpecificationError
+from ..prep.units import parse_unit
 from .lag_structures import LagStructure, parse_lag
 from .terms import DayOfWeek, FourierSeason, Linear, PublicHolidays, Spline, Term, TimeSpline
 
-__all__ = ["DEFAULT_UNIT", "Family", "Interval", "ModelSpec", "Seasonality"]
+__all__ = ["DEFAULT_UNIT", "Family", "Interval", "ModelSpec", "Seasonality", "display_unit"]
 
 #: Unit of an exposure unless the user names another.
 DEFAULT_UNIT = "µg/m³"
@@ -27,6 +29,28 @@ Family = Literal["quasipoisson", "poisson", "negbin"]
 Seasonality = Literal["spline", "fourier"]
 ThetaMethod = Literal["ml", "moments"]
 Interval = Literal["quasi-poisson", "hac"]
+
+
+#: How each concentration unit is shown, by its code in :func:`airhealth.prep.units.parse_unit` (which knows
+#: the spellings ug/m3, µg/m3, ugm3, ppbv, mg/m3, ...) or, for the units it does not convert, as typed.
+_SHOWN_UNITS = {"ugm3": "µg/m³", "mgm3": "mg/m³", "ppb": "ppb", "ppm": "ppm"}
+_OTHER_UNITS = {"ngm3": "ng/m³", "ng/m3": "ng/m³", "ng/m³": "ng/m³", "ppt": "ppt", "pptv": "ppt"}
+
+
+def display_unit(unit: str) -> str:
+    """A unit in the one spelling labels use: ``ugm3``, ``ug/m3``, ``µg/m3`` → ``µg/m³``; ``mg/m3`` →
+    ``mg/m³``; ``ng/m3`` → ``ng/m³``; ``PPB`` → ``ppb``. Other units are kept as written (stripped).
+
+    >>> display_unit("ugm3"), display_unit("PPB"), display_unit("ng/m3"), display_unit("per mille")
+    ('µg/m³', 'ppb', 'ng/m³', 'per mille')
+    """
+    key = re.sub(r"\s+", "", unit).lower()
+    if key in _OTHER_UNITS:
+        return _OTHER_UNITS[key]
+    try:
+        return _SHOWN_UNITS[parse_unit(unit)]
+    except SpecificationError:
+        return unit.strip()
 
 
 def _checked_na_values(given: Any) -> tuple[Any, ...]:
@@ -113,8 +137,15 @@ class ModelSpec:
         Column added to the linear predictor with coefficient 1 (e.g. log population).
     unit : str
         Unit of the exposure (default ``"µg/m³"``); carried into every effect label, table, figure and the
-        JSON (``"unit"``) so that a relative risk reads "per 10 ppb". :meth:`from_options` also accepts
+        JSON (``"unit"``) so that a relative risk reads "per 10 ppb". Common spellings are shown one way
+        (``ugm3``, ``ug/m3`` → ``µg/m³``; ``mg/m3`` → ``mg/m³``; ``ng/m3`` → ``ng/m³``; see
+        :func:`display_unit`). :meth:`from_options` also accepts
         ``units={"o3": "ppb"}``, a mapping of column → unit, and takes the exposure's entry.
+    date_format : str or None
+        Format of text dates that are not ISO 8601, e.g. ``"%d/%m/%Y"`` (a ``strftime`` format every value
+        must follow), or ``"excel"`` for spreadsheet serial day numbers; ``None`` (default) reads ISO dates
+        and refuses dates whose order of day and month is in doubt (see
+        :func:`airhealth.prep.validate.parse_dates`). The command line's ``--date-format``.
     na_values : tuple
         Values that mean "missing" in the data columns the model reads: numbers (e.g. ``-999``, matched by
         value) and texts (e.g. ``"<LOD"``, matched after stripping spaces; a text that reads as a number
@@ -176,6 +207,7 @@ class ModelSpec:
     na_values: tuple[Any, ...] = ()
     interval: Interval = "quasi-poisson"
     hac_lags: int | None = None
+    date_format: str | None = None
 
     def __post_init__(self) -> None:
         for name in ("outcome", "exposure", "date"):
@@ -219,8 +251,12 @@ class ModelSpec:
         TimeSpline(self.trend_df_per_year)  # validates the value
         if not isinstance(self.unit, str) or not self.unit.strip():
             raise SpecificationError(f"unit must be a non-empty text such as 'µg/m³' or 'ppb', got {self.unit!r}.")
-        object.__setattr__(self, "unit", self.unit.strip())
+        object.__setattr__(self, "unit", display_unit(self.unit))
         object.__setattr__(self, "na_values", _checked_na_values(self.na_values))
+        if self.date_format is not None and (not isinstance(self.date_format, str) or not self.date_format.strip()):
+            raise SpecificationError(
+                f"date_format must be a date format such as '%d/%m/%Y' (or 'excel'), got {self.date_format!r}."
+            )
         if self.exposure == self.outcome:
             raise SpecificationError(f"outcome and exposure are the same column, {self.outcome!r}.")
         self._check_roles()

@@ -2,17 +2,19 @@
 
 from __future__ import annotations
 
+import re
 from collections.abc import Sequence
 from typing import Literal
 
 import numpy as np
 import pandas as pd
+from pandas.api.types import is_datetime64_any_dtype
 
 from .._choices import check_choice
 from .._warn import warn_user
 from ..errors import DataError, DataWarning, SpecificationError
 from .calendar import complete_calendar
-from .validate import check_daily_dates, parse_dates, require_columns
+from .validate import EXCEL, check_daily_dates, parse_dates, require_columns
 
 __all__ = [
     "DuplicateDays",
@@ -26,17 +28,20 @@ __all__ = [
 DuplicateDays = Literal["error", "mean", "first"]
 
 
-def prepare_daily(frame: pd.DataFrame, date: str = "date", what: str = "data") -> pd.DataFrame:
+def prepare_daily(
+    frame: pd.DataFrame, date: str = "date", what: str = "data", date_format: str | None = None
+) -> pd.DataFrame:
     """Validate one daily table and return a sorted copy on a complete calendar.
 
-    The ``date`` column is parsed (errors name the bad rows), duplicated dates and non-daily steps are
+    The ``date`` column is parsed (in ``date_format`` if given, see
+    :func:`~airhealth.prep.validate.parse_dates`; errors name the bad rows), duplicated dates and non-daily steps are
     errors, and calendar gaps become rows of missing values with a warning. The caller's frame is never
     modified.
     """
-    ready = _consecutive_days(frame, date)
+    ready = _consecutive_days(frame, date) if date_format is None else None
     if ready is not None:
         return ready
-    dates = parse_dates(frame, date, what)
+    dates = parse_dates(frame, date, what, date_format=date_format)
     check_daily_dates(dates, date, what)
     return complete_calendar(frame, dates, date)
 
@@ -83,7 +88,8 @@ def align_daily(
     names : tuple of str, optional
         Names of the tables used in error messages (default "table 1", "table 2", ...).
     start, end : date-like, optional
-        Calendar limits; by default from the earliest to the latest date in any table.
+        Calendar limits (dates or ISO text such as ``"2015-03-31"``); by default from the earliest to the
+        latest date in any table.
 
     Returns
     -------
@@ -124,8 +130,8 @@ def align_daily(
         dates = parse_dates(table, date, label)
         check_daily_dates(dates, date, label)
         prepared.append(table.assign(**{date: dates}).set_index(date))
-    lo = min(p.index.min() for p in prepared) if start is None else pd.Timestamp(start)
-    hi = max(p.index.max() for p in prepared) if end is None else pd.Timestamp(end)
+    lo = min(p.index.min() for p in prepared) if start is None else _as_day(start, "start")
+    hi = max(p.index.max() for p in prepared) if end is None else _as_day(end, "end")
     if hi < lo:
         raise DataError(f"the calendar is empty: end {hi:%Y-%m-%d} is before start {lo:%Y-%m-%d}.")
     calendar = pd.date_range(lo, hi, freq="D", name=date)
@@ -133,7 +139,30 @@ def align_daily(
     return joined.reset_index()
 
 
-def _as_day(value: str | pd.Timestamp, name: str) -> pd.Timestamp:
+_ISO_DAY = re.compile(r"^\d{4}-\d{2}-\d{2}(?:[ T]\d{2}:\d{2}(?::\d{2})?)?$")
+
+
+def _as_day(value: str | pd.Timestamp, name: str, date_format: str | None = None) -> pd.Timestamp:
+    """A period bound as a day: a date object, ISO text (YYYY-MM-DD), or text in ``date_format``.
+
+    Other text is refused, never guessed: ``02/01/2015`` could be 2 January or 1 February.
+    """
+    if isinstance(value, str):
+        text = value.strip()
+        day = None
+        if date_format is not None and date_format != EXCEL:
+            day = pd.to_datetime(text, format=date_format, errors="coerce")
+        if (day is None or pd.isna(day)) and _ISO_DAY.match(text):
+            day = pd.to_datetime(text, errors="coerce", format="ISO8601")
+        if (day is None or pd.isna(day)) and _ISO_DAY.match(text):
+            raise SpecificationError(f"{name} {value!r} is not a date; use an ISO date such as 2015-03-31.")
+        if day is None or pd.isna(day):
+            given = f" or in the date format {date_format!r}" if date_format and date_format != EXCEL else ""
+            raise SpecificationError(
+                f"{name} {value!r} is not a date in ISO form (YYYY-MM-DD, e.g. 2015-03-31){given}; write the day as "
+                "YYYY-MM-DD, so that its order of day and month is not a guess."
+            )
+        value = day
     try:
         day = pd.Timestamp(value)
     except (ValueError, TypeError) as exc:
@@ -149,16 +178,20 @@ def restrict_period(
     end: str | pd.Timestamp | None = None,
     date: str = "date",
     what: str = "data",
+    date_format: str | None = None,
 ) -> pd.DataFrame:
     """The rows of ``frame`` dated from ``start`` to ``end`` (both included), as a new frame.
 
     Use it to fit a period with complete data, or to leave out a long gap at either end. ``None`` leaves
-    that end open. The caller's frame is not modified; the rows keep their order and values.
+    that end open. ``start`` and ``end`` are dates or ISO text (``"2015-03-31"``); text in another form is
+    accepted only in ``date_format`` (which also reads the ``date`` column), never guessed. The caller's
+    frame is not modified; the rows keep their order and values.
 
     Raises
     ------
     SpecificationError
-        If ``start`` or ``end`` is not a whole day, or ``end`` is before ``start``.
+        If ``start`` or ``end`` is not a whole day, is text neither ISO nor in ``date_format`` (e.g.
+        ``"02/01/2015"``, whose order of day and month is in doubt), or ``end`` is before ``start``.
     DataError
         If the dates cannot be read (see :func:`~airhealth.prep.validate.parse_dates`) or no row falls in the
         period (the message gives the period the data cover).
@@ -169,11 +202,12 @@ def restrict_period(
     >>> restrict_period(data, start="2020-01-02")["deaths"].tolist()
     [5, 4]
     """
-    lo = None if start is None else _as_day(start, "start")
-    hi = None if end is None else _as_day(end, "end")
+    lo = None if start is None else _as_day(start, "start", date_format)
+    hi = None if end is None else _as_day(end, "end", date_format)
     if lo is not None and hi is not None and hi < lo:
         raise SpecificationError(f"the period is empty: end {hi:%Y-%m-%d} is before start {lo:%Y-%m-%d}.")
-    dates = parse_dates(frame, date, what)
+    as_given = date_format if date in frame.columns and not is_datetime64_any_dtype(frame[date]) else None
+    dates = parse_dates(frame, date, what, date_format=as_given)
     keep = np.ones(len(frame), dtype=bool)
     if lo is not None:
         keep &= dates >= lo

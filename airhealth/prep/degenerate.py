@@ -182,6 +182,7 @@ def check_usable_days(
     outcome: str,
     column: str,
     too_few: Callable[[], str],
+    window_remedy: str = "",
 ) -> None:
     """The checks that need the days a model uses and its number of parameters.
 
@@ -200,6 +201,10 @@ def check_usable_days(
     too_few : callable
         Returns the message for "no more usable days than parameters" (the design builder names the
         reasons; built only when needed).
+    window_remedy : str
+        When days were lost to missing exposure in the lag window: the remedy for this kind of lag (the
+        design builder's sentence, e.g. a moving average's ``min_count``), added to the days-per-parameter
+        message.
 
     Raises
     ------
@@ -232,4 +237,5 @@ def check_usable_days(
             f"days per parameter, {_span(dates[used])}); at least {MIN_DAYS_PER_PARAMETER} days per parameter "
             f"({MIN_DAYS_PER_PARAMETER * n_parameters} days) are needed for a model that is not over-fitted: "
             f"{remedy}."
+            + (f" Days were lost to missing exposure in the lag window. {window_remedy}" if window_remedy else "")
         )

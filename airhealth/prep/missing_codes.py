@@ -15,7 +15,7 @@ first dates, and the option that fixes it (``na_values=[...]`` in Python, ``--na
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable
 from dataclasses import dataclass
 
 import numpy as np
@@ -112,13 +112,28 @@ def _is_text(values: pd.Series) -> bool:
     return pd.api.types.is_object_dtype(values) or pd.api.types.is_string_dtype(values)
 
 
-def _decimal_hint(bad: Sequence[str]) -> str:
-    if any(_reads_with_decimal_comma(b) for b in bad):
-        return (
-            " Some values use a decimal comma: read the file with pd.read_csv(..., decimal=',') "
-            "(command line: --decimal ,)."
-        )
-    return ""
+def _text_message(column: str, shown: list[str], n_bad: int, first: str) -> str:
+    """The error for text in a numeric column: numbers with a decimal comma point at ``decimal=','`` (never
+    at ``na_values``, which would erase them); other text at ``na_values`` if it means "missing"."""
+    commas = [v for v in shown if _reads_with_decimal_comma(v)]
+    others = [v for v in shown if not _reads_with_decimal_comma(v)]
+    listing = _listing([repr(v) for v in shown])
+    lead = f"column {column!r} must be numeric but holds text on {n_bad} day(s): {listing}, on {first}."
+    decimal = (
+        f" {'These are' if not others else 'Some values, e.g. ' + repr(commas[0]) + ', are'} numbers written with "
+        "a decimal comma: read the file with pd.read_csv(path, sep=';', decimal=',') (sep as the file has it; "
+        "command line: --decimal ,)."
+        if commas
+        else ""
+    )
+    if not others:
+        return lead + decimal
+    suggestion = ", ".join(repr(v) for v in others[:3])
+    return (
+        f"{lead}{decimal} If {'the other texts' if commas else 'these'} mean 'missing' (e.g. below the limit of "
+        f"detection), declare them: na_values=[{suggestion}] (command line: --na-values {' '.join(others[:3])}); "
+        "otherwise correct the values."
+    )
 
 
 def _reads_with_decimal_comma(text: str) -> bool:
@@ -139,13 +154,7 @@ def _text_to_numbers(values: pd.Series, column: str, dates: pd.DatetimeIndex, te
     if bad.any():
         shown = list(dict.fromkeys(str(v) for v in kept[bad]))
         first = _listing(_fmt_dates(dates[np.flatnonzero(bad)]), int(bad.sum()))
-        suggestion = ", ".join(repr(v) for v in shown[:3])
-        raise DataError(
-            f"column {column!r} must be numeric but holds text on {int(bad.sum())} day(s): "
-            f"{_listing([repr(v) for v in shown])}, on {first}. If these mean 'missing' (e.g. below the "
-            f"limit of detection), declare them: na_values=[{suggestion}] (command line: --na-values "
-            f"{' '.join(shown[:3])}); otherwise correct the values.{_decimal_hint(shown)}"
-        )
+        raise DataError(_text_message(column, shown, int(bad.sum()), first))
     return numbers.astype(float)
 
 

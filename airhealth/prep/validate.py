@@ -64,6 +64,9 @@ def require_columns(frame: pd.DataFrame, columns: Iterable[str | None], what: st
 def _missing_column_hint(frame: pd.DataFrame, column: str, what: str) -> str:
     """What to do about a missing column: stray spaces in the header, another case, the index, or spelling."""
     names = [c for c in frame.columns if isinstance(c, str)]
+    separator = _one_column_separator(frame)
+    if separator:
+        return separator
     spaced = [c for c in names if c.strip() == column.strip() and c != column]
     if spaced:
         return (
@@ -76,6 +79,33 @@ def _missing_column_hint(frame: pd.DataFrame, column: str, what: str) -> str:
     if column in [n for n in frame.index.names if n is not None]:
         return f"The index is named {column!r}: use {what}.reset_index() to make it a column."
     return "Check the spelling or rename the column."
+
+
+#: Separators other than pandas' default comma: how to pass each in Python and on the command line.
+_OTHER_SEPARATORS = {";": ("';'", "--sep ';'"), "\t": ("'\\t'", "--sep tab"), "|": ("'|'", "--sep '|'")}
+
+
+def _one_column_separator(frame: pd.DataFrame) -> str:
+    """A frame read as one column whose name holds ``;``, a tab or ``|``: the separator to read it with.
+
+    Decimal commas show as commas in the cells or, when pandas split the rows at them, as rows with more
+    fields than the header (pandas then moves the extra leading fields into the index).
+    """
+    if frame.shape[1] != 1 or not isinstance(frame.columns[0], str):
+        return ""
+    name = frame.columns[0]
+    for mark, (python, command_line) in _OTHER_SEPARATORS.items():
+        if mark in name:
+            cells = frame.iloc[:20, 0].astype(str)
+            split = not isinstance(frame.index, pd.RangeIndex)
+            comma = split or bool(cells.str.contains(r"\d,\d", regex=True).any())
+            decimal = ", decimal=','" if comma else ""
+            also = " --decimal ," if comma else ""
+            return (
+                f"The table was read as one column named {name[:60]!r}: the file separates its fields with "
+                f"{python}. Read it with pd.read_csv(path, sep={python}{decimal}) (command line: {command_line}{also})."
+            )
+    return ""
 
 
 def parse_dates(frame: pd.DataFrame, date: str, what: str = "data", date_format: str | None = None) -> pd.DatetimeIndex:

@@ -318,6 +318,9 @@ def report_content(
     request = check_request(
         data, outcomes, exposures, lags, main_lag, units, per, level, columns=columns, model_options=model_options
     )
+    date_format = model_options.pop("date_format", None)
+    if date_format is not None:  # read once, so the fits and the data sections see the same dates
+        data = data.assign(**{columns[0]: parse_dates(data, columns[0], "data", date_format=date_format).to_numpy()})
     fits = fit_request(data, request, show_progress=show_progress, **model_options)
     effects = _effects(fits, request.per, request.level)
     described = _with_codes_missing(data, fits, model_options)

@@ -20,7 +20,7 @@ from .._warn import warn_user
 from ..errors import AirhealthError, AirhealthWarning, DataError, SpecificationError
 from ..model.compare import compare_results
 from ..model.lag_structures import LagStructure, parse_lag
-from ..model.spec import DEFAULT_UNIT, ModelSpec
+from ..model.spec import DEFAULT_UNIT, ModelSpec, display_unit
 from ..prep.validate import require_columns
 
 __all__ = ["ReportFits", "ReportRequest", "check_request", "fit_request"]
@@ -100,7 +100,7 @@ def _units(units: Mapping[str, str] | None, exposures: list[str]) -> dict[str, s
         raise SpecificationError(
             f"a unit is given for {unknown[0]!r}, which is not one of the exposures ({', '.join(exposures)})."
         )
-    return dict(units)
+    return {column: display_unit(unit) if isinstance(unit, str) else unit for column, unit in units.items()}
 
 
 def _check_arguments(per: float, level: float, threshold: int | None) -> None:
