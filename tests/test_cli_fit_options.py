@@ -25,7 +25,6 @@ EXACT = 1e-12  # the same computation on the same numbers: only the last bits ma
 ROOT = Path(__file__).resolve().parents[1]
 #: Remedies named in messages of the model and prep layers (checked to still be there, below).
 PHRASES = (
-    "MovingAverage(min_count=...)",
     "MovingAverage(first, last, min_count=1)",
     "trend_df_per_year",
     "temperature_df",
