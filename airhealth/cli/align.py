@@ -14,7 +14,7 @@ from typing import Any
 
 from .._io import write_with
 from ..errors import DataError
-from ..prep.align import align_daily
+from ..prep.align import align_daily, merge_duplicate_days
 from ..prep.validate import parse_dates, require_columns
 from .options import parse_na_values
 from .tables import read_table
@@ -40,7 +40,19 @@ def register(sub: Any) -> None:
     g.add_argument("--decimal", default=".", help='decimal mark (default "."; e.g. ",")')
     g.add_argument("--encoding", default="utf-8", help="text encoding (default utf-8; e.g. latin-1)")
     g.add_argument("--date-format", metavar="FMT", help="format of the dates if not ISO, e.g. %%d/%%m/%%Y, or 'excel'")
-    g.add_argument("--na-values", nargs="+", metavar="CODE", help="values meaning missing, e.g. -999 '<LOD'")
+    g.add_argument(
+        "--na-values",
+        nargs="+",
+        metavar="CODE",
+        help="texts meaning missing in every table, e.g. '<LOD' NA; numeric codes such as -999 are declared "
+        "where the data are fitted (fit/report --na-values), where counts are told from pollutant columns",
+    )
+    g.add_argument(
+        "--duplicates",
+        default="error",
+        choices=["error", "mean", "first"],
+        help="dates given on several rows of a table: error (default), average the rows, or keep the first",
+    )
     p.set_defaults(func=run)
 
 
@@ -55,12 +67,20 @@ def run(args: argparse.Namespace) -> int:
     if any(p.resolve() == args.out.resolve() for p in args.tables if p.exists()):
         raise DataError(f"--out {str(args.out)!r} is one of the input tables; write the result to a new file.")
     sep = "\t" if args.sep in ("tab", "\\t") else args.sep
-    texts, _ = parse_na_values(args.na_values)
+    texts, values = parse_na_values(args.na_values)
+    numeric = [t for t, v in zip(texts, values, strict=True) if not isinstance(v, str)]
+    if numeric:  # align cannot tell counts from pollutant columns; a code 0 would erase days with no deaths
+        raise DataError(
+            f"align takes text codes only (e.g. '<LOD'); numeric codes ({', '.join(numeric)}) are declared where "
+            "the data are fitted, where outcome counts are told apart: airhealth fit/report ... --na-values "
+            f"{' '.join(numeric)}."
+        )
     tables = []
     for path, name in zip(args.tables, names, strict=True):
         table = read_table(path, sep=sep, decimal=args.decimal, na_values=texts or None, encoding=args.encoding)
         require_columns(table, [args.date], name)
-        tables.append(table.assign(**{args.date: parse_dates(table, args.date, name, date_format=args.date_format)}))
+        table = table.assign(**{args.date: parse_dates(table, args.date, name, date_format=args.date_format)})
+        tables.append(merge_duplicate_days(table, args.duplicates, args.date, name))
     daily = align_daily(*tables, date=args.date, names=tuple(names), start=args.start, end=args.end)
     write_with(args.out, lambda tmp: daily.to_csv(tmp, index=False, date_format="%Y-%m-%d"), make_parents=False)
     first, last = daily[args.date].iloc[[0, -1]]

@@ -48,8 +48,8 @@ def add_reading_options(p: argparse.ArgumentParser) -> None:
         "--na-values",
         nargs="+",
         metavar="CODE",
-        help="values meaning missing, e.g. --na-values -999 '<LOD' (or -999,<LOD), besides empty cells and NA; "
-        "codes that could be a count (0, 99) are not applied to outcome columns",
+        help="values meaning missing, e.g. --na-values -999 '<LOD' (or --na-values=-999,<LOD), besides empty cells "
+        "and NA; in outcome columns a code that could be a count (0, 9999) applies only far outside the counts",
     )
     g.add_argument(
         "--duplicates",

@@ -97,9 +97,36 @@ def _read_bytes(path: Path) -> bytes:
     if path.is_dir():
         raise DataError(f"{str(path)!r} is a directory; give the path of a CSV file.")
     try:
-        return path.read_bytes()
+        raw = path.read_bytes()
     except OSError as exc:
         raise DataError(f"could not read {str(path)!r}: {exc.strerror or exc}.") from exc
+    return _decompressed(path, raw)
+
+
+def _decompressed(path: Path, raw: bytes) -> bytes:
+    """The bytes of a compressed file (``.gz``, ``.bz2``, ``.xz``, ``.zip`` with one member) uncompressed."""
+    import bz2
+    import gzip
+    import lzma
+    import zipfile
+
+    suffix = path.suffix.lower()
+    try:
+        if suffix == ".gz":
+            return gzip.decompress(raw)
+        if suffix == ".bz2":
+            return bz2.decompress(raw)
+        if suffix == ".xz":
+            return lzma.decompress(raw)
+        if suffix == ".zip":
+            with zipfile.ZipFile(io.BytesIO(raw)) as archive:
+                members = [m for m in archive.namelist() if not m.endswith("/")]
+                if len(members) != 1:
+                    raise DataError(f"{str(path)!r} holds {len(members)} files; give a zip file with one CSV.")
+                return archive.read(members[0])
+    except (OSError, EOFError, lzma.LZMAError, zipfile.BadZipFile) as exc:
+        raise DataError(f"could not uncompress {str(path)!r} ({suffix}): {exc}.") from exc
+    return raw
 
 
 def read_table(

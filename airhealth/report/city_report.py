@@ -46,6 +46,19 @@ _FAMILY = {
 }
 
 
+def _interval_text(spec: ModelSpec) -> str:
+    """How the standard errors behind the intervals were computed."""
+    if getattr(spec, "interval", "quasi-poisson") == "hac":
+        lags = "by the default rule floor(4(n/100)^(2/9))" if spec.hac_lags is None else f"{spec.hac_lags}"
+        return (
+            " from Newey–West (HAC) standard errors robust to residual autocorrelation (Bartlett kernel, "
+            f"truncation lag {lags}; Newey & West 1987)"
+        )
+    if spec.family == "quasipoisson":
+        return " from quasi-Poisson standard errors (scaled by the Pearson dispersion)"
+    return ""
+
+
 def describe_model(
     spec: ModelSpec, n_calendar: int, per: float = 10.0, unit: str = DEFAULT_UNIT, level: float = 0.95
 ) -> str:
@@ -73,7 +86,8 @@ def describe_model(
     parts += [f"{t.name}" for t in spec.confounders]
     return (
         "; ".join(parts)
-        + f". Relative risks are per {per:g} {unit} with {level:.0%} Wald intervals; single-day lags use the "
+        + f". Relative risks are per {per:g} {unit} with {level:.0%} Wald intervals{_interval_text(spec)}; "
+        "single-day lags use the "
         "exposure of that day, moving averages the mean of the days shown, distributed lags the sum of the "
         "effects of every lag day (the cumulative effect)."
     )

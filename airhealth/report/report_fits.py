@@ -209,6 +209,11 @@ def check_request(
     both = [c for c in outcomes if c in exposures]
     if both:
         raise SpecificationError(f"column {both[0]!r} is given both as an outcome and as an exposure.")
+    if model_options and "unit" in model_options:  # one unit for several exposures would mislabel all but one
+        raise SpecificationError(
+            f"a report takes each exposure's unit in units={{column: unit}}, not unit={model_options['unit']!r}; "
+            f"e.g. units={{{exposures[0]!r}: {model_options['unit']!r}}} (command line: --unit COL=UNIT)."
+        )
     parsed, main_index = _lags(lags, main_lag)
     checked_units = _units(units, exposures)
     _check_arguments(per, level, small_count_threshold)

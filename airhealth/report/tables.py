@@ -23,7 +23,7 @@ def effects_table(results: Iterable[Any], per: float = 10.0, level: float = 0.95
     """One row per fitted model: the effect per ``per`` units and fit statistics."""
     rows = [r.to_dict(per=per, level=level) for r in results]
     frame = pd.DataFrame(rows)
-    cols = [c for c in [*EFFECT_COLUMNS, "coef", "se"] if c in frame.columns]
+    cols = [c for c in [*EFFECT_COLUMNS, "coef", "se", "interval"] if c in frame.columns]
     return frame[cols]
 
 
