@@ -74,3 +74,18 @@ def test_write_report_refuses_one_unit_for_several_exposures(two_years, tmp_path
             two_years, outcomes=["deaths_all"], exposures=["pm25", "o3"], lags=["0"], out=tmp_path / "r",
             temperature="temperature", unit="ppb",
         )  # fmt: skip
+
+
+def test_large_totals_read_in_full_in_the_html_tables():
+    from airhealth.report.html import _number
+
+    assert _number(179300.0) == "179,300" and _number(1.0084) == "1.008" and _number(12.5) == "12.5"
+
+
+def test_columns_on_several_levels_are_refused_with_the_way_to_flatten_them(two_years):
+    from airhealth.errors import DataError
+
+    data = two_years.copy()
+    data.columns = pd.MultiIndex.from_tuples([(c, "") for c in data.columns])
+    with pytest.raises(DataError, match="MultiIndex"):
+        airhealth.fit(data, "deaths_all", "pm25")

@@ -45,6 +45,11 @@ def require_columns(frame: pd.DataFrame, columns: Iterable[str | None], what: st
     """
     if not isinstance(frame, pd.DataFrame):
         raise DataError(f"{what} must be a pandas DataFrame, got {type(frame).__name__}.")
+    if isinstance(frame.columns, pd.MultiIndex):
+        raise DataError(
+            f"{what} has columns on {frame.columns.nlevels} levels (a MultiIndex); give one level of plain "
+            f"column names, e.g. {what}.columns = ['_'.join(map(str, c)) for c in {what}.columns]."
+        )
     wanted = [c for c in columns if c is not None]
     missing = [c for c in wanted if c not in frame.columns]
     if missing:

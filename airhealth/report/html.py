@@ -63,6 +63,13 @@ def _link(path: Path, text: str) -> str:
     return f"<a href='{_e(href)}'>{_e(text)}</a>"
 
 
+def _number(value: float) -> str:
+    """A table number for reading: large values in full with thousands separators (never 1.793e+05)."""
+    if abs(value) >= 1e4:
+        return f"{value:,.0f}"
+    return f"{value:.4g}"
+
+
 def _table_html(block: Table, threshold: int | None, path: Path) -> tuple[str, pd.DataFrame]:
     frame = suppress_table(
         block.frame,
@@ -73,7 +80,7 @@ def _table_html(block: Table, threshold: int | None, path: Path) -> tuple[str, p
     )
     if not block.display:
         return f"<p class='note'>{_e(block.title)}: {_link(path, path.name)}</p>", frame
-    body = frame.to_html(index=False, border=0, na_rep="", float_format=lambda v: f"{v:.4g}", escape=True)
+    body = frame.to_html(index=False, border=0, na_rep="", float_format=_number, escape=True)
     note = f"<p class='note'>{_e(block.note)}</p>" if block.note else ""
     return f"<h3>{_e(block.title)}</h3>{body}{note}<p class='note'>{_link(path, path.name)}</p>", frame
 
