@@ -234,3 +234,30 @@ def test_no_complete_period_leaves_the_counts_out() -> None:
     # be drawn, and an empty series must not pass for "nothing small".
     shown = counts_for_figure(_days([1, 0, 0, 0, 0, 0, 0, 0, 0, 0], start="2021-01-06"), 5)
     assert shown.resolution == "omitted" and shown.observed.empty
+
+
+def test_messages_about_an_outcome_follow_the_threshold() -> None:
+    # Reviewed case: under --suppress-below 10 a failed analysis said "middle half 0 to 1" of the counts.
+    from airhealth.report.suppression import mask_small_numbers
+
+    text = "column 'deaths_all' holds 9999 on 3 day(s): 2010-04-11, far outside its other values (middle half 0 to 1)"
+    masked = mask_small_numbers(text, ["deaths_all"], 10)
+    assert masked.endswith("(middle half 0 to <10)") and "2010-04-11" in masked and "9999" in masked
+    assert mask_small_numbers(text, ["deaths_all"], None) == text  # no threshold: unchanged
+    assert mask_small_numbers("exposure 'pm25' lost 5 days", ["deaths_all"], 10) == "exposure 'pm25' lost 5 days"
+
+
+def test_the_report_masks_small_numbers_in_its_warnings(sample: pd.DataFrame) -> None:
+    from airhealth.report.city_report import report_content
+
+    rng = np.random.default_rng(7)
+    data = sample[sample["date"] < "2014-01-01"].copy()
+    data["rare"] = rng.binomial(data["deaths_all"].to_numpy(), 0.01)  # about 0.35 a day: a few-events warning
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        content = report_content(
+            data, outcomes=["rare"], exposures=["pm25"], lags=["0"], temperature="temperature", small_count_threshold=10
+        )
+    shown = {b.name: b.frame for s in content.sections for b in s.blocks if getattr(b, "name", "") == "warnings"}
+    text = " ".join(shown["warnings"].astype(str).to_numpy().ravel())
+    assert "few events" in text and "averages <10 per day" in text

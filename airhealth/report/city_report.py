@@ -26,7 +26,7 @@ from .html import write_html_report
 from .lag_plots import plot_lag_response
 from .plots import observed_fitted_figure, plain, plot_effects
 from .report_fits import ReportFits, ReportRequest, check_request, fit_request
-from .suppression import smallest_positive
+from .suppression import mask_small_numbers, smallest_positive
 from .tables import effects_table, format_effects
 
 __all__ = [
@@ -218,7 +218,14 @@ def _lag_blocks(results: list[Any], per: float, level: float) -> list[Any]:
     return blocks
 
 
-def _problem_sections(failures: pd.DataFrame, caught: pd.DataFrame) -> list[Section]:
+def _problem_sections(
+    failures: pd.DataFrame, caught: pd.DataFrame, outcomes: Sequence[str], threshold: int | None
+) -> list[Section]:
+    """Failed analyses and warnings; small numbers in messages about outcomes follow the suppression rule."""
+    failures, caught = (
+        frame.map(lambda v: mask_small_numbers(v, outcomes, threshold) if isinstance(v, str) else v)
+        for frame in (failures, caught)
+    )
     sections = []
     if len(failures):
         sections.append(
@@ -284,7 +291,7 @@ def _sections(
     main_pair = fits.results[(main.spec.outcome, main.spec.exposure)]
     return [
         Section("Analyses", [Text(_asked_text(request, main)), Text(model_text)]),
-        *_problem_sections(fits.failures, fits.warnings),
+        *_problem_sections(fits.failures, fits.warnings, request.outcomes, threshold),
         _count_section(data, outcomes),
         Section("Effect estimates", [*_effects_tables(table, per, level, request), *_forest_figures(table, per, level, request)]),  # noqa: E501
         Section("Main model", [*_main_blocks(main, fits.main_note, threshold, done), *_lag_blocks(main_pair, per, level)]),  # noqa: E501

@@ -12,11 +12,14 @@ suppression off. The rules, for every table and figure of a report:
   weekly totals (calendar weeks, Monday to Sunday), else monthly totals, each only if none of its totals is
   below the threshold; else the observed series is left out. Only weeks or months whose every day was used
   are drawn (a partly covered period's total would dip for lack of days, not of events, and could be small);
-  how many periods were left out for that is said in the figure's note, with which resolution was drawn.
+  how many periods were left out for that is said in the figure's note, with which resolution was drawn;
+- **messages** (failed analyses, warnings) that name an outcome column show every number from above 0 to
+  threshold − 1 as ``<threshold`` (a quartile, a mean or a count of the outcome could be small); dates stay.
 """
 
 from __future__ import annotations
 
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Literal
@@ -33,6 +36,7 @@ __all__ = [
     "counts_for_figure",
     "has_small",
     "is_small",
+    "mask_small_numbers",
     "smallest_positive",
     "suppress_table",
     "suppression_note",
@@ -202,3 +206,22 @@ def counts_for_figure(observed: pd.Series, threshold: int | None, *, alongside: 
     if other is not None:
         note += " The line shows fitted monthly totals."
     return CountSeries("omitted", observed.iloc[:0], other, note)
+
+
+_NUMBER = re.compile(r"(?<![\w.:-])(\d+(?:\.\d+)?)(?![\w.:-]*\d{2}-\d{2})(?![\w-])")
+
+
+def mask_small_numbers(text: str, outcomes: Sequence[str], threshold: int | None) -> str:
+    """``text`` with numbers from above 0 to ``threshold`` − 1 written ``<threshold`` when it names an outcome.
+
+    Messages about a count column can quote its quartiles, mean or a count; under a disclosure threshold
+    they follow the table rule. Dates (``2010-04-11``) and texts not naming an outcome are left as they are.
+    """
+    if threshold is None or not any(repr(o) in text or o in text for o in outcomes):
+        return text
+
+    def small(match: re.Match[str]) -> str:
+        value = float(match.group(1))
+        return f"<{threshold}" if 0 < value < threshold else match.group(1)
+
+    return _NUMBER.sub(small, text)
