@@ -89,3 +89,21 @@ def test_columns_on_several_levels_are_refused_with_the_way_to_flatten_them(two_
     data.columns = pd.MultiIndex.from_tuples([(c, "") for c in data.columns])
     with pytest.raises(DataError, match="MultiIndex"):
         airhealth.fit(data, "deaths_all", "pm25")
+
+
+def test_report_lists_an_exposure_with_text_codes_as_failed_and_completes_the_rest(two_years, tmp_path, capsys):
+    # Reviewed case: a '<LOD' in one exposure refused the whole command-line report at read time, while Python
+    # write_report listed that exposure as failed; both now list it and complete the other exposure.
+    data = two_years.astype({"no2": object})
+    data.loc[[10, 20], "no2"] = "<LOD"
+    path = tmp_path / "city.csv"
+    data.to_csv(path, index=False, date_format="%Y-%m-%d")
+    out = tmp_path / "report"
+    args = ["report", str(path), "--outcome", "deaths_all", "--exposure", "pm25", "--exposure", "no2"]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        code = main([*args, "--temperature", "temperature", "--lags", "0", "--out", str(out)])
+    assert code == 0, capsys.readouterr().err
+    failed = pd.read_csv(out / "tables" / "failed_analyses.csv")
+    assert failed["exposure"].tolist() == ["no2"] and "<LOD" in failed["error"].iloc[0]
+    assert pd.read_csv(out / "tables" / "effects.csv")["exposure"].tolist() == ["pm25"]

@@ -194,8 +194,16 @@ def _could_be_count(value: Any) -> bool:
     return isinstance(value, float) and value >= 0 and value == int(value)
 
 
-def read_daily(args: argparse.Namespace, columns: Sequence[str | None], outcomes: Sequence[str] = ()) -> pd.DataFrame:
+def read_daily(
+    args: argparse.Namespace,
+    columns: Sequence[str | None],
+    outcomes: Sequence[str] = (),
+    per_analysis: Sequence[str] = (),
+) -> pd.DataFrame:
     """Read the daily file: columns present, dates read, numbers numeric, duplicates merged, period restricted.
+
+    Text in a ``per_analysis`` column (the exposures of a report) is left for each analysis's own checks, so
+    one badly coded exposure fails its analyses (listed in the report) instead of the whole report.
 
     ``--na-values`` codes apply to ``columns``, but in the ``outcomes`` only the codes that cannot be a
     count (text such as ``<5``, negative or fractional numbers such as ``-999``): a code such as ``0`` that
@@ -213,7 +221,7 @@ def read_daily(args: argparse.Namespace, columns: Sequence[str | None], outcomes
     what = path.name
     require_columns(frame, [args.date, *wanted], what)
     dates = parse_dates(frame, args.date, what, date_format=args.date_format)
-    check_numeric_columns(frame, [c for c in wanted if c != args.date], what, dates)
+    check_numeric_columns(frame, [c for c in wanted if c != args.date and c not in per_analysis], what, dates)
     frame = frame.assign(**{args.date: dates})
     frame = merge_duplicate_days(frame, args.duplicates, args.date, what)
     if args.start or args.end:
