@@ -59,7 +59,7 @@ def _fit(args: argparse.Namespace) -> Any:
     lag = with_min_count(args.lag, args.min_count)
     check_min_count([lag], args.min_count)
     units = parse_units(args.unit, [args.exposure])
-    data = read_daily(args, [args.outcome, args.exposure, args.temperature, args.humidity], [args.outcome])
+    data = read_daily(args, [args.outcome, args.exposure, args.temperature, args.humidity])
     return fit(data, outcome=args.outcome, exposure=args.exposure, lag=lag, units=units, **model_options(args))
 
 

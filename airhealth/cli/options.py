@@ -190,14 +190,9 @@ def check_min_count(lags: Sequence[LagStructure], min_count: int | None) -> None
         )
 
 
-def _could_be_count(value: Any) -> bool:
-    return isinstance(value, float) and value >= 0 and value == int(value)
-
-
 def read_daily(
     args: argparse.Namespace,
     columns: Sequence[str | None],
-    outcomes: Sequence[str] = (),
     per_analysis: Sequence[str] = (),
 ) -> pd.DataFrame:
     """Read the daily file: columns present, dates read, numbers numeric, duplicates merged, period restricted.
@@ -205,18 +200,18 @@ def read_daily(
     Text in a ``per_analysis`` column (the exposures of a report) is left for each analysis's own checks, so
     one badly coded exposure fails its analyses (listed in the report) instead of the whole report.
 
-    ``--na-values`` codes apply to ``columns``, but in the ``outcomes`` only the codes that cannot be a
-    count (text such as ``<5``, negative or fractional numbers such as ``-999``): a code such as ``0`` that
-    marks a missing pollutant reading must not erase days with no deaths. The date column of the returned frame
+    Text ``--na-values`` codes (``<LOD``) are read as missing in ``columns`` here, so that those columns read
+    as numbers; numeric codes are left to the model's preparation layer (:func:`model_options` passes every
+    code on), which alone decides where a code that could be a count applies. The date column of the returned frame
     holds dates (``--date-format`` applied), so the model reads them as given. Errors name the file and the
     option that fixes them.
     """
     path = Path(args.data)
     sep = "\t" if args.sep in ("tab", "\\t") else args.sep
-    texts, _ = parse_na_values(args.na_values)
+    texts, values = parse_na_values(args.na_values)
     wanted = [c for c in columns if c is not None]
-    not_counts = [t for t, v in zip(texts, parse_na_values(args.na_values)[1], strict=True) if not _could_be_count(v)]
-    codes = {c: (not_counts if c in outcomes else texts) for c in wanted} if texts else None
+    text_codes = [t for t, v in zip(texts, values, strict=True) if isinstance(v, str)]
+    codes = {c: text_codes for c in wanted} if text_codes else None
     frame = read_table(path, sep=sep, decimal=args.decimal, na_values=codes, encoding=args.encoding)
     what = path.name
     require_columns(frame, [args.date, *wanted], what)

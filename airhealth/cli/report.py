@@ -113,7 +113,7 @@ def run(args: argparse.Namespace) -> int:
     level = confidence_level(args.confidence)
     main_lag = None if args.main_lag is None else with_min_count(args.main_lag, args.min_count)
     columns = [*args.outcome, *args.exposure, args.temperature, args.humidity]
-    data = read_daily(args, columns, args.outcome, per_analysis=args.exposure)
+    data = read_daily(args, columns, per_analysis=args.exposure)
     return write_and_print(
         data, args, outcomes=args.outcome, exposures=args.exposure, lags=lags, main_lag=main_lag, units=units,
         per=args.per, level=level, **model_options(args),
