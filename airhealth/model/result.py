@@ -54,6 +54,15 @@ def _frozen_array(values: np.ndarray | None) -> np.ndarray | None:
     return own
 
 
+def _frozen_view(values: np.ndarray | None) -> np.ndarray | None:
+    """A read-only view of an array handed over by its builder (no copy; ``None`` stays ``None``)."""
+    if values is None:
+        return None
+    view = np.asarray(values, dtype=float).view()
+    view.setflags(write=False)
+    return view
+
+
 class FitResult:
     """A fitted time-series model of daily counts (read-only).
 
@@ -152,71 +161,11 @@ class FitResult:
         notes: Sequence[str] = (),
         design_matrix: np.ndarray | None = None,
         hac_lags: int | None = None,
+        *,
+        _copy: bool = True,
     ) -> None:
-        self._keep(
-            _own_copy,
-            spec,
-            coef,
-            cov,
-            dispersion,
-            deviance,
-            loglik,
-            qaic,
-            df_resid,
-            n_days,
-            dropped,
-            fitted,
-            observed,
-            exposure_columns,
-            exposure_iqr,
-            converged,
-            n_iter,
-            theta,
-            bases,
-            aliased,
-            notes,
-            design_matrix,
-            hac_lags,
-        )
-
-    @classmethod
-    def _adopt(cls, *args: Any, **kwargs: Any) -> FitResult:
-        """A result that takes the arguments of ``FitResult(...)`` over without copying them.
-
-        Only for builders that hand over pandas objects made for this result and referenced nowhere else
-        (:func:`airhealth.model.fitting.result_from_fit`); five deep copies cost about a third of a
-        millisecond of a ~10 ms fit. Everything the result gives out is still a copy.
-        """
-        self = object.__new__(cls)
-        self._keep(lambda frame: frame, *args, **kwargs)
-        return self
-
-    def _keep(
-        self,
-        own: Any,
-        spec: ModelSpec,
-        coef: pd.Series,
-        cov: pd.DataFrame,
-        dispersion: float,
-        deviance: float,
-        loglik: float,
-        qaic: float,
-        df_resid: int,
-        n_days: int,
-        dropped: pd.DataFrame,
-        fitted: pd.Series,
-        observed: pd.Series,
-        exposure_columns: Sequence[str],
-        exposure_iqr: float,
-        converged: bool,
-        n_iter: int,
-        theta: float | None = None,
-        bases: Mapping[str, Any] | None = None,
-        aliased: Sequence[str] = (),
-        notes: Sequence[str] = (),
-        design_matrix: np.ndarray | None = None,
-        hac_lags: int | None = None,
-    ) -> None:
+        own = _own_copy if _copy else (lambda frame: frame)
+        freeze = _frozen_array if _copy else _frozen_view
         put = object.__setattr__
         for name, value in (
             ("spec", spec), ("_coef", own(coef)), ("_cov", own(cov)), ("dispersion", dispersion),
@@ -225,9 +174,20 @@ class FitResult:
             ("_observed", own(observed)), ("exposure_columns", tuple(exposure_columns)),
             ("exposure_iqr", exposure_iqr), ("converged", converged), ("n_iter", n_iter), ("theta", theta),
             ("_bases", MappingProxyType(dict(bases or {}))), ("aliased", tuple(aliased)), ("notes", tuple(notes)),
-            ("_matrix", _frozen_array(design_matrix)), ("hac_lags", hac_lags),
+            ("_matrix", freeze(design_matrix)), ("hac_lags", hac_lags),
         ):  # fmt: skip
             put(self, name, value)
+
+    @classmethod
+    def _adopt(cls, *args: Any, **kwargs: Any) -> FitResult:
+        """A result that takes the arguments of ``FitResult(...)`` over without copying them.
+
+        Only for builders that hand over pandas objects made for this result and referenced nowhere else
+        (:func:`airhealth.model.fitting.result_from_fit`); five deep copies cost about a third of a
+        millisecond of a ~10 ms fit, and a copy of the design matrix (days × columns) more. Everything the
+        result gives out is still a copy.
+        """
+        return cls(*args, **kwargs, _copy=False)
 
     def __setattr__(self, name: str, value: Any) -> None:
         raise FrozenInstanceError(f"a FitResult is read-only: {name!r} cannot be set; fit again with other options.")
