@@ -16,7 +16,7 @@ from .._io import write_with
 from ..errors import DataError
 from ..prep.align import align_daily, merge_duplicate_days
 from ..prep.validate import parse_dates, require_columns
-from .options import parse_na_values
+from .options import add_layout_options, parse_na_values
 from .tables import read_table
 
 __all__ = ["register", "run"]
@@ -36,22 +36,13 @@ def register(sub: Any) -> None:
     p.add_argument("--start", metavar="DATE", help="first day of the calendar (default: the earliest date)")
     p.add_argument("--end", metavar="DATE", help="last day of the calendar (default: the latest date)")
     g = p.add_argument_group("reading the files (the same for every table)")
-    g.add_argument("--sep", default=",", help='field separator (default ","; e.g. ";" or tab)')
-    g.add_argument("--decimal", default=".", help='decimal mark (default "."; e.g. ",")')
-    g.add_argument("--encoding", default="utf-8", help="text encoding (default utf-8; e.g. latin-1)")
-    g.add_argument("--date-format", metavar="FMT", help="format of the dates if not ISO, e.g. %%d/%%m/%%Y, or 'excel'")
+    add_layout_options(g)
     g.add_argument(
         "--na-values",
         nargs="+",
         metavar="CODE",
         help="texts meaning missing in every table, e.g. '<LOD' NA; numeric codes such as -999 are declared "
         "where the data are fitted (fit/report --na-values), where counts are told from pollutant columns",
-    )
-    g.add_argument(
-        "--duplicates",
-        default="error",
-        choices=["error", "mean", "first"],
-        help="dates given on several rows of a table: error (default), average the rows, or keep the first",
     )
     p.set_defaults(func=run)
 

@@ -21,6 +21,7 @@ from ..prep.validate import parse_dates, require_columns
 from .tables import check_numeric_columns, read_table
 
 __all__ = [
+    "add_layout_options",
     "add_model_options",
     "add_reading_options",
     "confidence_level",
@@ -32,10 +33,9 @@ __all__ = [
 ]
 
 
-def add_reading_options(p: argparse.ArgumentParser) -> None:
-    """Options on how to read the daily CSV file: layout, dates, missing values, period."""
-    g = p.add_argument_group("reading the file")
-    g.add_argument("--date", default="date", metavar="COL", help='date column (default "date")')
+def add_layout_options(g: Any) -> None:
+    """How a CSV file is laid out (separator, decimal mark, encoding, date format, repeated dates): the
+    options every command that reads daily tables shares (``fit``, ``report``, ``align``)."""
     g.add_argument("--sep", default=",", help='field separator (default ","; e.g. ";" or tab)')
     g.add_argument("--decimal", default=".", help='decimal mark (default "."; e.g. ",")')
     g.add_argument("--encoding", default="utf-8", help="text encoding of the file (default utf-8; e.g. latin-1)")
@@ -45,17 +45,24 @@ def add_reading_options(p: argparse.ArgumentParser) -> None:
         help="format of the dates if not ISO 2015-03-31, e.g. %%d/%%m/%%Y; 'excel' for spreadsheet serial numbers",
     )
     g.add_argument(
+        "--duplicates",
+        default="error",
+        choices=["error", "mean", "first"],
+        help="dates given on several rows: error (default), average the rows, or keep the first",
+    )
+
+
+def add_reading_options(p: argparse.ArgumentParser) -> None:
+    """Options on how to read the daily CSV file: layout, dates, missing values, period."""
+    g = p.add_argument_group("reading the file")
+    g.add_argument("--date", default="date", metavar="COL", help='date column (default "date")')
+    add_layout_options(g)
+    g.add_argument(
         "--na-values",
         nargs="+",
         metavar="CODE",
         help="values meaning missing, e.g. --na-values -999 '<LOD' (or --na-values=-999,<LOD), besides empty cells "
         "and NA; in outcome columns a code that could be a count (0, 9999) applies only far outside the counts",
-    )
-    g.add_argument(
-        "--duplicates",
-        default="error",
-        choices=["error", "mean", "first"],
-        help="dates given on several rows: error (default), average the rows, or keep the first",
     )
     g.add_argument(
         "--start",
