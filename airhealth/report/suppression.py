@@ -173,9 +173,10 @@ def _totals(series: pd.Series, resolution: Resolution) -> pd.Series:
     return pd.Series(sums.to_numpy()[complete], index=middle[complete], name=series.name)
 
 
-def _partial_note(series: pd.Series, resolution: Resolution) -> str:
+def _partial_note(series: pd.Series, totals: pd.Series, resolution: Resolution) -> str:
+    """How many periods of ``series`` were not drawn because the days used do not cover them fully."""
     periods = pd.DatetimeIndex(series.index).to_period(_PERIODS[resolution])
-    left_out = periods.nunique() - len(_totals(series, resolution))
+    left_out = periods.nunique() - len(totals)
     if not left_out:
         return ""
     word = "week" if resolution == "weekly" else "month"
@@ -197,7 +198,9 @@ def counts_for_figure(observed: pd.Series, threshold: int | None, *, alongside: 
         totals = _totals(observed, resolution)  # type: ignore[arg-type]
         if len(totals) and not has_small(totals.to_numpy(), threshold):
             period = "weeks, Monday to Sunday" if resolution == "weekly" else "calendar months"
-            note = f"Shown as {resolution} totals ({period}) because {reason}." + _partial_note(observed, resolution)
+            note = f"Shown as {resolution} totals ({period}) because {reason}." + _partial_note(
+                observed, totals, resolution
+            )
             other = None if alongside is None else _totals(alongside, resolution)  # type: ignore[arg-type]
             return CountSeries(resolution, totals, other, note)  # type: ignore[arg-type]
         reason += f" and some {resolution} totals too"
