@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import json
 import os
 import shutil
+import subprocess
+from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -33,6 +36,20 @@ def r_unavailable(reason: str) -> None:
     if os.environ.get("AIRHEALTH_REQUIRE_R") == "1":
         pytest.fail(f"{reason} (AIRHEALTH_REQUIRE_R=1: CI must run the live R checks)")
     pytest.skip(reason)
+
+
+def run_r_reference(rscript: str, script: Path, *arguments: Path | str, out: Path) -> dict:
+    """Run a committed R reference script (``Rscript script arguments... out``) and read the JSON it writes.
+
+    A missing R package skips the check (fails under ``AIRHEALTH_REQUIRE_R=1``); any other R error fails it.
+    """
+    proc = subprocess.run(
+        [rscript, str(script), *map(str, arguments), str(out)], capture_output=True, text=True, timeout=300, check=False
+    )
+    if proc.returncode != 0 and "there is no package called" in proc.stderr:
+        r_unavailable(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
+    assert proc.returncode == 0, proc.stderr
+    return json.loads(Path(out).read_text())
 
 
 @pytest.fixture(scope="session")

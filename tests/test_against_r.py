@@ -27,13 +27,12 @@ Tolerances
 from __future__ import annotations
 
 import json
-import subprocess
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import r_unavailable
+from conftest import run_r_reference
 
 import airhealth
 
@@ -74,17 +73,7 @@ def fits() -> dict[str, airhealth.FitResult]:
 def live(rscript, tmp_path_factory) -> dict:
     """Run the R script once per session into a temporary file and read its output."""
     out = tmp_path_factory.mktemp("r_reference") / "glm_reference.json"
-    proc = subprocess.run(
-        [rscript, str(R_SCRIPT), str(REPO / "airhealth" / "data"), str(out)],
-        capture_output=True,
-        text=True,
-        timeout=300,
-        check=False,
-    )
-    if proc.returncode != 0 and "there is no package called" in proc.stderr:
-        r_unavailable(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
-    assert proc.returncode == 0, proc.stderr
-    return json.loads(out.read_text())
+    return run_r_reference(rscript, R_SCRIPT, REPO / "airhealth" / "data", out=out)
 
 
 def _rel(a: float, b: float) -> float:

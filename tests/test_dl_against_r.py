@@ -25,12 +25,11 @@ Tolerances
 from __future__ import annotations
 
 import json
-import subprocess
 from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import r_unavailable
+from conftest import run_r_reference
 
 from airhealth.model.fitting import fit
 
@@ -59,14 +58,7 @@ def live(rscript, tmp_path_factory):
         sys.path.pop(0)
     tmp = tmp_path_factory.mktemp("dl_reference")
     csv = write_input(tmp / "dl_input.csv")
-    out = tmp / "dl_reference.json"
-    proc = subprocess.run(
-        [rscript, str(R_SCRIPT), str(csv), str(out)], capture_output=True, text=True, timeout=300, check=False
-    )
-    if proc.returncode != 0 and "there is no package called" in proc.stderr:
-        r_unavailable(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
-    assert proc.returncode == 0, proc.stderr
-    return json.loads(out.read_text())
+    return run_r_reference(rscript, R_SCRIPT, csv, out=tmp / "dl_reference.json")
 
 
 def _rel(a, b) -> float:

@@ -26,7 +26,6 @@ from __future__ import annotations
 
 import json
 import pickle
-import subprocess
 import sys
 from pathlib import Path
 
@@ -34,7 +33,7 @@ import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
-from conftest import r_unavailable
+from conftest import run_r_reference
 from statsmodels.stats.sandwich_covariance import S_hac_simple
 
 import airhealth
@@ -60,15 +59,7 @@ def city() -> pd.DataFrame:
 def live(rscript, tmp_path_factory) -> dict:
     folder = tmp_path_factory.mktemp("hac_reference")
     data = write_input(folder / "input.csv")
-    out = folder / "out.json"
-    proc = subprocess.run(
-        [rscript, str(REFERENCE_DIR / "diagnostics_reference.R"), str(data), str(out)],
-        capture_output=True, text=True, timeout=300, check=False,
-    )  # fmt: skip
-    if proc.returncode != 0 and "there is no package called" in proc.stderr:
-        r_unavailable(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
-    assert proc.returncode == 0, proc.stderr
-    return json.loads(out.read_text())
+    return run_r_reference(rscript, REFERENCE_DIR / "diagnostics_reference.R", data, out=folder / "out.json")
 
 
 def check_against_r(city: pd.DataFrame, ref: dict) -> None:

@@ -24,7 +24,6 @@ from __future__ import annotations
 
 import json
 import re
-import subprocess
 import sys
 import warnings
 from pathlib import Path
@@ -32,7 +31,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import r_unavailable
+from conftest import run_r_reference
 
 import airhealth
 from airhealth.errors import DataError, DataWarning
@@ -76,14 +75,7 @@ def fits(city) -> dict[str, airhealth.FitResult]:
 def live(rscript, tmp_path_factory) -> dict:
     tmp = tmp_path_factory.mktemp("long_gap_reference")
     csv = write_input(tmp / "long_gap_input.csv")
-    out = tmp / "long_gap_reference.json"
-    proc = subprocess.run(
-        [rscript, str(R_SCRIPT), str(csv), str(out)], capture_output=True, text=True, timeout=300, check=False
-    )
-    if proc.returncode != 0 and "there is no package called" in proc.stderr:
-        r_unavailable(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
-    assert proc.returncode == 0, proc.stderr
-    return json.loads(out.read_text())
+    return run_r_reference(rscript, R_SCRIPT, csv, out=tmp / "long_gap_reference.json")
 
 
 def _rel(a: float, b: float) -> float:

@@ -29,13 +29,12 @@ Tolerances
 from __future__ import annotations
 
 import json
-import subprocess
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import r_unavailable
+from conftest import run_r_reference
 from statsmodels.stats.meta_analysis import combine_effects
 
 import airhealth
@@ -119,12 +118,7 @@ def check_multivariate(result, ref: dict) -> None:
 @pytest.fixture(scope="module")
 def live(rscript, tmp_path_factory) -> dict:
     """Run the R script once per session into a temporary file and read its output."""
-    out = tmp_path_factory.mktemp("r_reference") / "pooling_reference.json"
-    proc = subprocess.run([rscript, str(R_SCRIPT), str(out)], capture_output=True, text=True, timeout=300, check=False)
-    if proc.returncode != 0 and "there is no package called" in proc.stderr:
-        r_unavailable(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
-    assert proc.returncode == 0, proc.stderr
-    return json.loads(out.read_text())
+    return run_r_reference(rscript, R_SCRIPT, out=tmp_path_factory.mktemp("r_reference") / "pooling_reference.json")
 
 
 def test_frozen_reference_covers_every_method_with_and_without_moderators():

@@ -21,7 +21,6 @@ from __future__ import annotations
 
 import json
 import pickle
-import subprocess
 import sys
 import warnings
 from pathlib import Path
@@ -29,7 +28,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import r_unavailable
+from conftest import run_r_reference
 from statsmodels.regression.linear_model import WLS
 from statsmodels.tsa.stattools import acf, pacf
 
@@ -63,15 +62,7 @@ def checks(result) -> airhealth.Diagnostics:
 def live(rscript, tmp_path_factory) -> dict:
     folder = tmp_path_factory.mktemp("diagnostics_reference")
     data = write_input(folder / "input.csv")
-    out = folder / "out.json"
-    proc = subprocess.run(
-        [rscript, str(REFERENCE_DIR / "diagnostics_reference.R"), str(data), str(out)],
-        capture_output=True, text=True, timeout=300, check=False,
-    )  # fmt: skip
-    if proc.returncode != 0 and "there is no package called" in proc.stderr:
-        r_unavailable(f"an R package needed by the reference script is missing: {proc.stderr.strip()[-200:]}")
-    assert proc.returncode == 0, proc.stderr
-    return json.loads(out.read_text())
+    return run_r_reference(rscript, REFERENCE_DIR / "diagnostics_reference.R", data, out=folder / "out.json")
 
 
 def check_against(result: airhealth.FitResult, checks: airhealth.Diagnostics, ref: dict) -> None:
