@@ -220,7 +220,7 @@ def mask_small_numbers(text: str, outcomes: Sequence[str], threshold: int | None
     Messages about a count column can quote its quartiles, mean or a count; under a disclosure threshold
     they follow the table rule. Dates (``2010-04-11``) and texts not naming an outcome are left as they are.
     """
-    if threshold is None or not any(repr(o) in text or o in text for o in outcomes):
+    if threshold is None or not any(o in text for o in outcomes):
         return text
 
     def small(match: re.Match[str]) -> str:
