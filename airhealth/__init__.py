@@ -15,18 +15,24 @@ from .errors import (
     FitError,
     SpecificationError,
 )
-from .model.compare import compare
-from .model.distributed_lags import PolynomialLag, SplineLag, UnconstrainedLag
-from .model.exposure_lag import ExposureLagBasis, ExposureLagTerm, LinearResponse, SplineResponse, ThresholdResponse
+from .model.bases.distributed_lags import PolynomialLag, SplineLag, UnconstrainedLag
+from .model.bases.exposure_lag import (
+    ExposureLagBasis,
+    ExposureLagTerm,
+    LinearResponse,
+    SplineResponse,
+    ThresholdResponse,
+)
+from .model.bases.lag_structures import MovingAverage, SingleDay, parse_lag
+from .model.bases.terms import Categorical, Linear, Spline
 from .model.fitting import fit
 from .model.lag_predictions import exposure_response, lag_response, minimum_risk_exposure
-from .model.lag_structures import MovingAverage, SingleDay, parse_lag
 from .model.result import FitResult
 from .model.spec import ModelSpec
-from .model.terms import Categorical, Linear, Spline
 from .prep.align import align_daily
 from .report.city_report import write_report
 from .sample import load_sample, load_sample_tables
+from .studies.compare import compare
 from .studies.diagnostics import Diagnostics, diagnose
 
 __version__ = "0.1.0"

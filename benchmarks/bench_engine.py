@@ -2,10 +2,10 @@
 
 Run with ``python benchmarks/bench_engine.py [--repeats N]``. Prints median wall times of
 
-* one quasi-Poisson fit by :func:`airhealth.model.engine.fit_glm`,
+* one quasi-Poisson fit by :func:`airhealth.model.engine.irls.fit_glm`,
 * a plain numpy/scipy Cholesky IRLS written here as the lower bound for a straightforward implementation,
 * one statsmodels GLM fit with its default settings (the reference library),
-* a 12-structure lag grid through :func:`airhealth.model.grid_inference.fit_exposure_only` (the exposure
+* a 12-structure lag grid through :func:`airhealth.model.engine.grid_inference.fit_exposure_only` (the exposure
   block, as ``compare`` reports it), against 12 statsmodels fits and 12 cold ``fit_glm`` fits,
 
 and the ratios between them, plus what threadpoolctl reports about the BLAS in use. By default everything
@@ -30,9 +30,9 @@ from scipy.linalg import cho_factor, cho_solve
 from threadpoolctl import threadpool_info
 
 from airhealth._threads import single_threaded_blas
-from airhealth.model.engine import fit_glm
-from airhealth.model.grid_engine import fit_confounders
-from airhealth.model.grid_inference import fit_exposure_only
+from airhealth.model.engine.grid import fit_confounders
+from airhealth.model.engine.grid_inference import fit_exposure_only
+from airhealth.model.engine.irls import fit_glm
 
 N_DAYS = 5113  # 14 years
 

@@ -5,7 +5,7 @@ Run with ``python benchmarks/bench_paths.py [--repeats N]``. Not part of the tes
 weekday; quasi-Poisson; pm25) and the 12 lag structures of ``run_benchmarks.GRID`` (plus ``dl0-5``), with
 the designs and the confounder block prebuilt, it times, all with one BLAS thread:
 
-* plain: one :func:`airhealth.model.engine.fit_glm` per structure (what a single fit does);
+* plain: one :func:`airhealth.model.engine.irls.fit_glm` per structure (what a single fit does);
 * exposure-only path (``grid_inference``): the confounder-only fit once, then ``fit_exposure_only`` per
   structure (the exposure block only: what ``compare`` needs).
 
@@ -31,9 +31,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))  # this checkout
 import airhealth
 from airhealth._threads import single_threaded_blas
 from airhealth.model.design import build_design, cached_confounders, model_frame
-from airhealth.model.engine import fit_glm
-from airhealth.model.grid_engine import fit_confounders
-from airhealth.model.grid_inference import fit_exposure_only
+from airhealth.model.engine.grid import fit_confounders
+from airhealth.model.engine.grid_inference import fit_exposure_only
+from airhealth.model.engine.irls import fit_glm
 from airhealth.model.spec import ModelSpec
 
 GRID = ["0", "1", "2", "3", "4", "5", "6", "7", "0-1", "0-2", "0-3", "0-5", "dl0-5"]

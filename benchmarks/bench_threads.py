@@ -1,7 +1,7 @@
 """How many BLAS threads make one fit fastest, over a range of design sizes (n days x p columns).
 
 Run with ``python benchmarks/bench_threads.py [--repeats N] [--rows 1000,5000,20000] [--columns 20,120,400]``.
-Not part of the test run. For every size it times :func:`airhealth.model.engine.fit_glm` (quasi-Poisson, the
+Not part of the test run. For every size it times :func:`airhealth.model.engine.irls.fit_glm` (quasi-Poisson, the
 default family) with the fitting path's thread policy switched off, once with one BLAS thread and once with
 the BLAS library's own thread count (as a user's process starts), alternating the two so that machine load
 affects both alike, and prints the medians, their ratio, the thread count the policy
@@ -19,7 +19,7 @@ import numpy as np
 from threadpoolctl import ThreadpoolController
 
 from airhealth import _threads
-from airhealth.model.engine import fit_glm
+from airhealth.model.engine.irls import fit_glm
 
 
 def invented_design(n: int, p: int, seed: int = 7) -> tuple[np.ndarray, np.ndarray]:

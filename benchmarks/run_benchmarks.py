@@ -40,14 +40,14 @@ from bench_engine import median_time, plain_irls
 
 import airhealth
 from airhealth._threads import single_threaded_blas
-from airhealth.model.compare import compare
+from airhealth.model.bases.splines import NaturalSplineBasis
 from airhealth.model.design import build_confounders, build_design, clear_cache, model_frame
-from airhealth.model.engine import fit_glm
+from airhealth.model.engine.irls import fit_glm
 from airhealth.model.fitting import fit_design, result_from_fit, warn_if_suspicious
 from airhealth.model.spec import ModelSpec
-from airhealth.model.splines import NaturalSplineBasis
-from airhealth.model.sweep import sweep
 from airhealth.simulate import simulate_city
+from airhealth.studies.compare import compare
+from airhealth.studies.sweep import sweep
 
 GRID = ["0", "1", "2", "3", "4", "5", "6", "7", "0-1", "0-2", "0-3", "0-5"]
 DF_VALUES = [4, 5, 6, 7, 8, 9, 10, 11, 12]

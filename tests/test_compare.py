@@ -19,9 +19,9 @@ import pytest
 import airhealth
 from airhealth._threads import worker_initializer
 from airhealth.errors import SpecificationError
-from airhealth.model import compare as compare_module
-from airhealth.model.compare import COMPARE_COLUMNS, compare, compare_results
-from airhealth.model.sweep import sweep
+from airhealth.studies import compare as compare_module
+from airhealth.studies.compare import COMPARE_COLUMNS, compare, compare_results
+from airhealth.studies.sweep import sweep
 
 RTOL = 1e-8
 CHECKED = ["coef", "se", "rr", "rr_low", "rr_high", "p_value", "dispersion", "qaic"]

@@ -18,9 +18,9 @@ import pytest
 
 import airhealth
 from airhealth.errors import AirhealthError
-from airhealth.model import compare as compare_module
-from airhealth.model.compare import compare, compare_results
-from airhealth.model.sweep import sweep
+from airhealth.studies import compare as compare_module
+from airhealth.studies.compare import compare, compare_results
+from airhealth.studies.sweep import sweep
 
 OPTIONS = {"outcome": "deaths_all", "exposure": "pm25", "temperature": "temperature"}
 
@@ -186,7 +186,7 @@ def test_a_structure_the_shared_work_cannot_fit_takes_the_single_fit(three_years
 
 
 def _always_fallback(base, E, rows, *, fallback, **kwargs):
-    from airhealth.model.grid_inference import exposure_block
+    from airhealth.model.engine.grid_inference import exposure_block
 
     fit = fallback()
     return exposure_block(fit, fit.n_params - len(base.coef))

@@ -13,10 +13,10 @@ import pytest
 import airhealth
 from airhealth.cli.main import main
 from airhealth.errors import DataError
-from airhealth.model.compare import compare
 from airhealth.model.design import build_design, model_frame
 from airhealth.model.spec import ModelSpec
 from airhealth.prep.degenerate import MIN_DAYS_PER_PARAMETER
+from airhealth.studies.compare import compare
 
 BASE = {"outcome": "deaths_all", "exposure": "pm25", "lag": "0-1", "temperature": "temperature"}
 COMPARE = {k: v for k, v in BASE.items() if k != "lag"}

@@ -20,7 +20,7 @@ import statsmodels.api as sm
 
 import airhealth
 from airhealth.errors import AirhealthError, FitError
-from airhealth.model.engine import fit_glm
+from airhealth.model.engine.irls import fit_glm
 
 
 @pytest.fixture(scope="module")

@@ -11,10 +11,10 @@ from numpy.polynomial import polynomial
 from threadpoolctl import threadpool_limits
 
 from airhealth.errors import DataError, SpecificationError
+from airhealth.model.bases.distributed_lags import PolynomialLag, SplineLag, UnconstrainedLag, parse_distributed_lag
+from airhealth.model.bases.lag_structures import parse_lag
 from airhealth.model.design import build_design, model_frame
-from airhealth.model.distributed_lags import PolynomialLag, SplineLag, UnconstrainedLag, parse_distributed_lag
 from airhealth.model.fitting import fit
-from airhealth.model.lag_structures import parse_lag
 from airhealth.model.spec import ModelSpec
 
 # ------------------------------------------------------------------------------------ objects, strings
@@ -205,7 +205,7 @@ def test_constrained_lag_equals_ordinary_glm_on_projected_columns(frame_and_spec
 
 def test_constrained_lag_fit_equals_fit_on_its_projected_columns_as_a_linear_confounder(sample):
     # The same model written by hand: Q C entered as ordinary linear covariates (airhealth's Linear terms).
-    from airhealth.model.terms import Linear
+    from airhealth.model.bases.terms import Linear
 
     lag = SplineLag(0, 10, 3)
     data = sample.copy()

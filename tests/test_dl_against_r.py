@@ -93,7 +93,7 @@ def test_frozen_reference_covers_the_lag_structures(_sample_once):
     assert FROZEN["n_calendar_days"] == len(_sample_once)
     assert NAMES == ["dl0-5", "dl0-7:poly3", "dl0-21:spline4", "dl0-21:spline4:log"]
     # R placed the spline knots by the documented rule; airhealth's objects give the same knots
-    from airhealth.model.lag_structures import parse_lag
+    from airhealth.model.bases.lag_structures import parse_lag
 
     for ref in FROZEN["fits"]:
         if "knots" in ref:

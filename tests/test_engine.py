@@ -24,7 +24,7 @@ import statsmodels.api as sm
 from scipy import optimize
 
 from airhealth.errors import ConvergenceWarning, FitError, SpecificationError
-from airhealth.model.engine import fit_glm
+from airhealth.model.engine.irls import fit_glm
 
 RTOL = 1e-9
 

@@ -8,18 +8,18 @@ import pandas as pd
 import pytest
 
 from airhealth.errors import DataError, SpecificationError
-from airhealth.model.distributed_lags import SplineLag, UnconstrainedLag
-from airhealth.model.exposure_lag import (
+from airhealth.model.bases.distributed_lags import SplineLag, UnconstrainedLag
+from airhealth.model.bases.exposure_lag import (
     ExposureLagBasis,
     ExposureLagTerm,
     LinearResponse,
     SplineResponse,
     ThresholdResponse,
 )
+from airhealth.model.bases.splines import NaturalSplineBasis
+from airhealth.model.bases.terms import Linear
 from airhealth.model.fitting import fit
 from airhealth.model.lag_predictions import exposure_response
-from airhealth.model.splines import NaturalSplineBasis
-from airhealth.model.terms import Linear
 
 
 def _shifted(x: np.ndarray, k: int) -> np.ndarray:

@@ -20,7 +20,7 @@ def data() -> pd.DataFrame:
 
 
 def test_iqr_increment_is_the_daily_exposure_iqr_for_every_lag(data: pd.DataFrame) -> None:
-    fits = airhealth.model.compare.compare_results(data, ["0-1", "dl0-1"], outcome="deaths_all", exposure="pm25")
+    fits = airhealth.studies.compare.compare_results(data, ["0-1", "dl0-1"], outcome="deaths_all", exposure="pm25")
     # both use the same days (lags 0 and 1), so the same increment: the IQR of daily pm25 on those days
     days = fits[0].observed.index
     daily = data.set_index("date").loc[days, "pm25"]

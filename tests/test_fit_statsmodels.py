@@ -107,7 +107,7 @@ def test_poisson_matches_statsmodels_loglik_and_aic(six_years):
 
 def test_negative_binomial_with_fixed_theta_matches_statsmodels(six_years):
     # statsmodels' NB2 family has Var = mu + alpha mu^2, i.e. alpha = 1 / theta.
-    from airhealth.model.engine import fit_glm
+    from airhealth.model.engine.irls import fit_glm
 
     _, design = _design(six_years, outcome="deaths_all", exposure="pm25", lag="0-1", temperature="temperature")
     theta = 80.0

@@ -1,6 +1,6 @@
 """Tests of the shared-work lag-grid path (exposure block only) and of the BLAS thread limits.
 
-The reference for :func:`~airhealth.model.grid_inference.fit_exposure_only` is the plain path, ``fit_glm``
+The reference for :func:`~airhealth.model.engine.grid_inference.fit_exposure_only` is the plain path, ``fit_glm``
 on the stacked design restricted to the usable rows (itself checked against statsmodels in test_engine.py).
 Both converge to machine precision, so coefficients, standard errors and dispersion must agree to 1e-9
 relative (coefficients near zero on the standard-error scale); a chord iteration stopped early or a
@@ -15,9 +15,10 @@ import pytest
 
 from airhealth._threads import blas_threads, single_threaded_blas, worker_initializer
 from airhealth.errors import FitError
-from airhealth.model import grid_engine, grid_inference
-from airhealth.model.engine import fit_glm
-from airhealth.model.grid_engine import fit_confounders
+from airhealth.model.engine import grid as grid_engine
+from airhealth.model.engine import grid_inference
+from airhealth.model.engine.grid import fit_confounders
+from airhealth.model.engine.irls import fit_glm
 
 RTOL = 1e-9
 N = 1500

@@ -39,8 +39,8 @@ from statsmodels.stats.sandwich_covariance import S_hac_simple
 import airhealth
 from airhealth.cli.main import main
 from airhealth.errors import SpecificationError
-from airhealth.model.compare import compare
-from airhealth.model.variance import default_hac_lags
+from airhealth.model.engine.variance import default_hac_lags
+from airhealth.studies.compare import compare
 
 REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
 sys.path.insert(0, str(REFERENCE_DIR))

@@ -12,15 +12,15 @@ from hypothesis import strategies as st
 import airhealth
 from airhealth.cli.main import main
 from airhealth.errors import SpecificationError
-from airhealth.model.distributed_lags import PolynomialLag, SplineLag, UnconstrainedLag
-from airhealth.model.exposure_lag import (
+from airhealth.model.bases.distributed_lags import PolynomialLag, SplineLag, UnconstrainedLag
+from airhealth.model.bases.exposure_lag import (
     ExposureLagBasis,
     LinearResponse,
     SplineResponse,
     ThresholdResponse,
     parse_exposure_lag,
 )
-from airhealth.model.lag_structures import MovingAverage, SingleDay, number_text, parse_lag
+from airhealth.model.bases.lag_structures import MovingAverage, SingleDay, number_text, parse_lag
 
 MAX_LAG = 40
 

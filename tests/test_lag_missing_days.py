@@ -10,9 +10,9 @@ import pandas as pd
 import pytest
 
 import airhealth
-from airhealth.model.distributed_lags import PolynomialLag, SplineLag, UnconstrainedLag
-from airhealth.model.exposure_lag import ExposureLagBasis, LinearResponse, SplineResponse, ThresholdResponse
-from airhealth.model.lag_structures import MovingAverage, SingleDay
+from airhealth.model.bases.distributed_lags import PolynomialLag, SplineLag, UnconstrainedLag
+from airhealth.model.bases.exposure_lag import ExposureLagBasis, LinearResponse, SplineResponse, ThresholdResponse
+from airhealth.model.bases.lag_structures import MovingAverage, SingleDay
 
 NAN = np.nan
 X = np.array([1.0, NAN, 3.0, 5.0, NAN, NAN, 7.0, 9.0])

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 
 from airhealth.errors import AirhealthWarning, DataWarning, SpecificationError
-from airhealth.model.exposure_lag import ExposureLagBasis, ExposureLagTerm, LinearResponse, SplineResponse
+from airhealth.model.bases.exposure_lag import ExposureLagBasis, ExposureLagTerm, LinearResponse, SplineResponse
 from airhealth.model.fitting import fit
 from airhealth.model.lag_predictions import (
     exposure_response,
@@ -297,7 +297,7 @@ def test_surface_plots(temperature_exposure_fit):
 
 
 def test_lag_structure_section(sample):
-    from airhealth.model.distributed_lags import SplineLag
+    from airhealth.model.bases.distributed_lags import SplineLag
     from airhealth.report.document import Figure, Table, Text
     from airhealth.report.lag_section import lag_structure_section
 

@@ -35,7 +35,7 @@ from conftest import run_r_reference
 
 import airhealth
 from airhealth.errors import DataError, DataWarning
-from airhealth.model.aliasing import aliased_columns
+from airhealth.model.engine.aliasing import aliased_columns
 
 REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
 R_SCRIPT = REFERENCE_DIR / "long_gap_reference.R"
@@ -170,7 +170,7 @@ def test_compare_across_the_gap_equals_the_single_fits(city, common_days):
         table = airhealth.compare(city, ["0", "0-1"], common_days=common_days, **options)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", DataWarning)
-        results = airhealth.model.compare.compare_results(city, ["0", "0-1"], common_days=common_days, **options)
+        results = airhealth.studies.compare.compare_results(city, ["0", "0-1"], common_days=common_days, **options)
         singles = [airhealth.fit(city, lag=lag, **options) for lag in ("0", "0-1")]
     for row, full, single in zip(table.itertuples(), results, singles, strict=True):
         assert full.aliased == ("spline(time)15", "spline(time)16", "spline(time)17", "spline(time)18")

@@ -14,9 +14,9 @@ from scipy import stats
 
 import airhealth
 from airhealth.errors import DataError, DispersionWarning, SpecificationError
-from airhealth.model.compare import compare
 from airhealth.model.spec import ModelSpec
 from airhealth.prep.missing_codes import FAR_OUT, apply_na_values, find_missing_codes
+from airhealth.studies.compare import compare
 
 BASE = {"outcome": "deaths_all", "exposure": "pm25", "lag": "0-1", "temperature": "temperature"}
 CODE_ROWS = [100, 400, 700]

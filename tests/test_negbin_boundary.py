@@ -35,8 +35,8 @@ from scipy import stats
 import airhealth
 from airhealth.errors import ConvergenceWarning
 from airhealth.model.design import build_design, model_frame
-from airhealth.model.engine import fit_glm
-from airhealth.model.families import NegativeBinomial, overdispersion_score
+from airhealth.model.engine.families import NegativeBinomial, overdispersion_score
+from airhealth.model.engine.irls import fit_glm
 from airhealth.simulate import simulate_city
 
 
@@ -177,7 +177,7 @@ def test_non_convergence_messages_name_only_criteria_that_failed(poisson_counts)
 
 def test_theta_that_does_not_settle_says_so_not_the_deviance(monkeypatch):
     # Force a theta estimate that oscillates: the message must blame theta, with true numbers.
-    from airhealth.model import theta_fit
+    from airhealth.model.engine import theta_fit
 
     calls = iter(np.tile([3.0, 30.0], 200))
     monkeypatch.setattr(theta_fit, "theta_ml", lambda *a, **k: float(next(calls)))

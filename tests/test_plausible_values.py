@@ -16,10 +16,10 @@ import pytest
 
 import airhealth
 from airhealth.errors import DataError, DataWarning, SpecificationError
-from airhealth.model.compare import compare
-from airhealth.model.terms import Spline
+from airhealth.model.bases.terms import Spline
 from airhealth.prep.plausibility import POLLUTANT_RANGES, humidity_like, recognise_pollutant, temperature_like
 from airhealth.prep.units import MOLECULAR_WEIGHTS, molar_volume
+from airhealth.studies.compare import compare
 
 BASE = {"outcome": "deaths_all", "exposure": "pm25", "lag": "0-1", "temperature": "temperature"}
 

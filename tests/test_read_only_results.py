@@ -17,7 +17,7 @@ import pandas as pd
 import pytest
 
 import airhealth
-from airhealth.model.exposure_lag import ExposureLagTerm, SplineResponse
+from airhealth.model.bases.exposure_lag import ExposureLagTerm, SplineResponse
 from airhealth.model.lag_predictions import exposure_response, lag_response
 from airhealth.model.result import FitResult
 

@@ -18,7 +18,7 @@ import pytest
 from scipy.interpolate import BSpline
 
 from airhealth.errors import SpecificationError
-from airhealth.model.splines import NaturalSplineBasis
+from airhealth.model.bases.splines import NaturalSplineBasis
 
 REFERENCE = json.loads((Path(__file__).resolve().parent / "reference" / "glm_reference.json").read_text())
 CASES = {case["name"]: case for case in REFERENCE["ns_bases"]}

@@ -18,9 +18,9 @@ from threadpoolctl import threadpool_limits
 import airhealth
 from airhealth import _threads
 from airhealth._threads import blas_threads, fitting_blas_threads
-from airhealth.model import engine
-from airhealth.model.compare import compare
-from airhealth.model.sweep import sweep
+from airhealth.model.engine import irls as engine
+from airhealth.studies.compare import compare
+from airhealth.studies.sweep import sweep
 
 OPTIONS = {"outcome": "deaths_all", "exposure": "pm25", "temperature": "temperature"}
 

@@ -15,7 +15,7 @@ from typing import Any
 import pandas as pd
 
 from ..errors import SpecificationError
-from ..model.lag_structures import LagStructure, MovingAverage, parse_lag
+from ..model.bases.lag_structures import LagStructure, MovingAverage, parse_lag
 from ..prep.align import merge_duplicate_days, restrict_months, restrict_period
 from ..prep.validate import parse_dates, require_columns
 from .tables import check_numeric_columns, read_table

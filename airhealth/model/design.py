@@ -22,11 +22,11 @@ from ..prep.align import prepare_daily
 from ..prep.degenerate import check_empty, check_usable_days
 from ..prep.guards import ColumnRoles, check_values, clean_values
 from ..prep.validate import check_counts, check_finite, check_not_all_missing, require_columns
-from .aliasing import aliased_columns, describe_aliased
-from .exposure_lag import ExposureLagBasis
-from .lag_structures import LagStructure, MovingAverage, SingleDay
+from .bases.exposure_lag import ExposureLagBasis
+from .bases.lag_structures import LagStructure, MovingAverage, SingleDay
+from .bases.terms import Categorical, TermBlock
+from .engine.aliasing import aliased_columns, describe_aliased
 from .spec import ModelSpec
-from .terms import Categorical, TermBlock
 
 __all__ = [
     "ConfounderBlock",
@@ -345,7 +345,7 @@ def _alias_confounders(
 
     ``block`` is the confounder block on the days used. When a run of at least ``MIN_GAP_CHECKED``
     unusable days leaves some column zero on every day used, the R ``glm.fit`` rule of
-    :func:`~airhealth.model.aliasing.aliased_columns` finds those columns and any other column the days
+    :func:`~airhealth.model.engine.aliasing.aliased_columns` finds those columns and any other column the days
     used make an exact combination of earlier ones. Other rank problems are named by the engine.
     """
     none = np.array([], dtype=int)
@@ -396,7 +396,7 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     Rows missing the outcome, any exposure lag or any confounder are left out and listed in ``dropped``
     with the reason (the outcome first, then the exposure, then the first confounder term missing).
     Confounder columns that the days used leave without support (a long gap) are left out as aliased,
-    as R's ``glm`` does (:mod:`airhealth.model.aliasing`), listed in ``aliased`` and warned about.
+    as R's ``glm`` does (:mod:`airhealth.model.engine.aliasing`), listed in ``aliased`` and warned about.
 
     Warns
     -----

@@ -18,10 +18,10 @@ from .._threads import design_threads, fitting_blas_threads
 from .._warn import warn_user
 from ..errors import DataWarning, DispersionWarning
 from .design import EXPOSURE_MISSING, EXPOSURE_REASONS, Design, build_design, lag_window_remedy, model_frame
-from .engine import GLMFit, fit_glm
+from .engine.irls import GLMFit, fit_glm
+from .engine.variance import family_of, fit_hac_covariance
 from .result import FitResult
 from .spec import ModelSpec
-from .variance import family_of, fit_hac_covariance
 
 __all__ = ["fit", "fit_design", "fit_spec", "result_from_fit", "warn_if_suspicious"]
 

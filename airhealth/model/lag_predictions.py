@@ -35,8 +35,8 @@ import pandas as pd
 
 from .._warn import warn_user
 from ..errors import DataWarning, SpecificationError
+from .bases.exposure_lag import ExposureLagBasis, ExposureLagTerm, LinearResponse
 from .effects import normal_quantile
-from .exposure_lag import ExposureLagBasis, ExposureLagTerm, LinearResponse
 from .result import FitResult
 
 __all__ = [
@@ -185,7 +185,7 @@ def exposure_response(
     Examples
     --------
     >>> import airhealth
-    >>> from airhealth.model.exposure_lag import ExposureLagBasis, SplineResponse
+    >>> from airhealth.model.bases.exposure_lag import ExposureLagBasis, SplineResponse
     >>> res = airhealth.fit(airhealth.load_sample(), "deaths_all", "temperature",
     ...                     lag=ExposureLagBasis(SplineResponse(df=4), "dl0-21:spline4"))  # doctest: +SKIP
     >>> exposure_response(res, values=[-2.0, 25.0], reference=19.0)  # doctest: +SKIP
@@ -280,7 +280,7 @@ def minimum_risk_exposure(
     Examples
     --------
     >>> import airhealth
-    >>> from airhealth.model.exposure_lag import ExposureLagTerm, SplineResponse
+    >>> from airhealth.model.bases.exposure_lag import ExposureLagTerm, SplineResponse
     >>> term = ExposureLagTerm("temperature", SplineResponse(df=4), "dl0-21:spline4")
     >>> res = airhealth.fit(airhealth.load_sample(), "deaths_all", "pm25", lag="0-1",
     ...                     confounders=[term])  # doctest: +SKIP

@@ -25,8 +25,8 @@ import pandas as pd
 from .._choices import check_choice
 from ..errors import SpecificationError
 from .effects import relative_risk
+from .engine.variance import family_of
 from .spec import ModelSpec
-from .variance import family_of
 
 __all__ = ["FitResult"]
 

@@ -17,8 +17,8 @@ import numpy as np
 from .._choices import check_choice
 from ..errors import SpecificationError
 from ..prep.units import parse_unit
-from .lag_structures import LagStructure, parse_lag
-from .terms import DayOfWeek, FourierSeason, Linear, PublicHolidays, Spline, Term, TimeSpline
+from .bases.lag_structures import LagStructure, parse_lag
+from .bases.terms import DayOfWeek, FourierSeason, Linear, PublicHolidays, Spline, Term, TimeSpline
 
 __all__ = ["DEFAULT_UNIT", "Family", "Interval", "ModelSpec", "Seasonality", "display_unit"]
 
@@ -157,7 +157,7 @@ class ModelSpec:
         How standard errors and intervals are computed: ``"quasi-poisson"`` (default) from the model
         covariance scaled by the dispersion (or the family's own covariance for Poisson and negative
         binomial); ``"hac"`` from the Newey–West (1987) sandwich on the GLM scores, robust to residual
-        autocorrelation (:mod:`airhealth.model.variance`; gaps are handled on the calendar).
+        autocorrelation (:mod:`airhealth.model.engine.variance`; gaps are handled on the calendar).
     hac_lags : int or None
         Truncation lag of the ``"hac"`` interval; ``None`` (default) uses ``floor(4 (n/100)^(2/9))`` for
         ``n`` days used (Newey & West 1994), about 9 for 14 years. Must be shorter than the series.

@@ -165,6 +165,6 @@ def _surface_grid(lt: Any, n: int) -> np.ndarray:
 
         raise SpecificationError(
             "the surface needs the observed exposure range; fit with an exposure-lag basis "
-            "(airhealth.model.exposure_lag.ExposureLagBasis), which records it."
+            "(airhealth.model.bases.exposure_lag.ExposureLagBasis), which records it."
         )
     return np.linspace(lt.summary.low, lt.summary.high, n)

@@ -19,11 +19,11 @@ from typing import Any
 
 import pandas as pd
 
-from ..model.compare import compare_results
-from ..model.distributed_lags import SplineLag
-from ..model.exposure_lag import ExposureLagTerm, SplineResponse
+from ..model.bases.distributed_lags import SplineLag
+from ..model.bases.exposure_lag import ExposureLagTerm, SplineResponse
 from ..model.fitting import fit
 from ..model.lag_predictions import minimum_risk_exposure
+from ..studies.compare import compare_results
 from .document import Figure, Section, Table, Text
 from .lag_plots import plot_exposure_lag_surface, plot_exposure_response, plot_lag_response
 from .tables import effects_table, format_effects

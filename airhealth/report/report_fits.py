@@ -2,7 +2,7 @@
 
 :func:`check_request` validates the outcomes, exposures, lag structures, units and effect options of a
 report before anything is fitted; :func:`fit_request` fits every outcome × exposure × lag structure through
-:func:`~airhealth.model.compare.compare_results`. An outcome × exposure whose data fail is kept as a failure
+:func:`~airhealth.studies.compare.compare_results`. An outcome × exposure whose data fail is kept as a failure
 (with its message), and a lag structure that fails alone is retried alone, so the others complete.
 """
 
@@ -18,10 +18,10 @@ import pandas as pd
 from .._progress import progress
 from .._warn import warn_user
 from ..errors import AirhealthError, AirhealthWarning, DataError, SpecificationError
-from ..model.compare import compare_results
-from ..model.lag_structures import LagStructure, parse_lag
+from ..model.bases.lag_structures import LagStructure, parse_lag
 from ..model.spec import DEFAULT_UNIT, ModelSpec, display_unit
 from ..prep.validate import require_columns
+from ..studies.compare import compare_results
 
 __all__ = ["ReportFits", "ReportRequest", "check_request", "fit_request"]
 

@@ -44,8 +44,8 @@ from typing import Literal
 import numpy as np
 from numpy.polynomial import legendre
 
-from .._choices import check_choice
-from ..errors import SpecificationError
+from ..._choices import check_choice
+from ...errors import SpecificationError
 from .lag_structures import LagStructure, number_text
 from .splines import NaturalSplineBasis
 

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.interpolate import BSpline
 
-from ..errors import SpecificationError
+from ...errors import SpecificationError
 
 __all__ = ["NaturalSplineBasis"]
 

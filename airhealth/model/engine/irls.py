@@ -26,11 +26,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import lapack
 
-from .._threads import policy_threads
-from .._warn import warn_user
-from ..errors import ConvergenceWarning, FitError
-from .degenerate import check_dispersion, check_response, collapsed_weights_error, not_converged_message
-from .engine_checks import (
+from ..._threads import policy_threads
+from ..._warn import warn_user
+from ...errors import ConvergenceWarning, FitError
+from .checks import (
     RANK_TOL,
     FamilyName,
     ThetaMethod,
@@ -39,8 +38,9 @@ from .engine_checks import (
     validate_inputs,
     validate_options,
 )
-from .engine_core import layout, workspace
-from .engine_core import weighted_gram as _weighted_gram
+from .core import layout, workspace
+from .core import weighted_gram as _weighted_gram
+from .degenerate import check_dispersion, check_response, collapsed_weights_error, not_converged_message
 from .families import NegativeBinomial, Poisson
 from .theta_fit import fit_theta
 

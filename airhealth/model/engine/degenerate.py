@@ -26,8 +26,8 @@ from typing import Any
 import numpy as np
 from scipy.linalg import qr
 
-from ..errors import FitError
-from .engine_checks import RANK_TOL
+from ...errors import FitError
+from .checks import RANK_TOL
 from .families import overdispersion_score
 
 __all__ = [

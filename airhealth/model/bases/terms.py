@@ -21,9 +21,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..errors import DataError, SpecificationError
-from ..prep.calendar import WEEKDAY_NAMES, holiday_indicator
-from ..prep.lags import lagged, moving_average
+from ...errors import DataError, SpecificationError
+from ...prep.calendar import WEEKDAY_NAMES, holiday_indicator
+from ...prep.lags import lagged, moving_average
 from .splines import NaturalSplineBasis
 
 __all__ = [

@@ -1,6 +1,6 @@
 """The negative binomial shape: alternating IRLS with a one-dimensional solve for ``theta``.
 
-The engine (:mod:`airhealth.model.engine`) hands over a callable running its IRLS for a given family and
+The engine (:mod:`airhealth.model.engine.irls`) hands over a callable running its IRLS for a given family and
 starting coefficients; this module decides when ``theta`` has settled and when its estimate is infinite,
 in which case the Poisson fit (the limit of the negative binomial as ``theta -> infinity``) is reported
 with a note rather than chasing ``theta`` to a numerical bound.
@@ -20,8 +20,8 @@ from typing import Any
 
 import numpy as np
 
-from .._warn import warn_user
-from ..errors import ConvergenceWarning
+from ..._warn import warn_user
+from ...errors import ConvergenceWarning
 from .degenerate import poisson_boundary_note, theta_not_settled_message
 from .families import NegativeBinomial, Poisson, theta_ml, theta_moments
 
@@ -54,7 +54,7 @@ def fit_theta(
     """Alternate ``irls(family, start)`` and the ``theta`` solve until both converge.
 
     Starts from the Poisson fit. When the likelihood is largest at the Poisson limit
-    (:func:`~airhealth.model.degenerate.poisson_boundary_note`, checked at the Poisson fit and after every
+    (:func:`~airhealth.model.engine.degenerate.poisson_boundary_note`, checked at the Poisson fit and after every
     round) the Poisson fit is returned with that note. Otherwise ``theta`` has settled when a round changes
     the variance function by at most ``100 tol`` (:func:`variance_change`) and the IRLS has converged.
     ``warn(state, what)`` reports an unconverged IRLS. Returns ``(family, state, notes)``.

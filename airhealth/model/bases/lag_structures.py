@@ -5,7 +5,7 @@ model term is ``Σ_l β_l x_{t-l}`` with per-lag coefficients ``β = C θ``; its
 ``Q C``, where ``Q`` holds the lagged exposures. The cumulative (overall) effect is ``1ᵀ C θ``. A single
 day is ``L = (l,)``, ``C = [[1]]``; a moving average of lags ``a..b`` is ``C = 1 / (b - a + 1)``, so its one
 coefficient is the effect of a unit rise sustained over the whole window. Distributed lags (in
-:mod:`airhealth.model.distributed_lags`) use richer bases.
+:mod:`airhealth.model.bases.distributed_lags`) use richer bases.
 
 References
 ----------
@@ -21,8 +21,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..errors import SpecificationError
-from ..prep.lags import lag_matrix, moving_average
+from ...errors import SpecificationError
+from ...prep.lags import lag_matrix, moving_average
 
 __all__ = ["LagStructure", "MovingAverage", "SingleDay", "number_text", "parse_lag"]
 
@@ -49,7 +49,7 @@ class LagStructure:
     ``label`` states every option of the structure (``"0-3"``, ``"0-3 min 1"``, ``"dl0-21:spline4:log"``):
     two different structures never share a label, and :func:`parse_lag` turns a label back into an equal
     structure. ``columns(x)`` applies the structure's missing-day rule; every term built from a lag
-    structure (including :class:`~airhealth.model.exposure_lag.ExposureLagBasis`) goes through it.
+    structure (including :class:`~airhealth.model.bases.exposure_lag.ExposureLagBasis`) goes through it.
     """
 
     label: str

@@ -1,7 +1,7 @@
 """Sensitivity sweeps: refit one model over several values of one option; one tidy row per value.
 
 A sweep over an option of the confounder model (``trend_df_per_year``, ``temperature_df``, ...) changes
-the confounder block, so the shared-work path of :mod:`airhealth.model.compare` does not apply. What is
+the confounder block, so the shared-work path of :mod:`airhealth.studies.compare` does not apply. What is
 shared here: the validated daily frame (validated once per distinct set of columns and lag depth) and
 warm starts: when a value gives the same design columns as the previous one (e.g. a sweep over ``tol``)
 the fit starts from the previous coefficients. The converged estimates do not depend on the start, so
@@ -26,10 +26,10 @@ import pandas as pd
 from .._progress import progress
 from .._threads import design_threads, fitting_threads
 from ..errors import SpecificationError
+from ..model.design import build_design, model_frame
+from ..model.fitting import fit_design, result_from_fit, warn_if_suspicious
+from ..model.spec import ModelSpec
 from .compare import COMPARE_COLUMNS
-from .design import build_design, model_frame
-from .fitting import fit_design, result_from_fit, warn_if_suspicious
-from .spec import ModelSpec
 
 __all__ = ["sweep"]
 
@@ -64,12 +64,12 @@ def sweep(
     -------
     DataFrame
         A first column named after ``option`` with the value, then the columns of
-        :func:`~airhealth.model.compare.compare` (``lag, coef, se, rr, rr_low, rr_high, ..., qaic, n_days``).
+        :func:`~airhealth.studies.compare.compare` (``lag, coef, se, rr, rr_low, rr_high, ..., qaic, n_days``).
 
     Examples
     --------
     >>> import airhealth
-    >>> from airhealth.model.sweep import sweep
+    >>> from airhealth.studies.sweep import sweep
     >>> table = sweep(airhealth.load_sample(), "trend_df_per_year", [4, 7, 10], outcome="deaths_all",
     ...               exposure="pm25", temperature="temperature")
     >>> list(table["trend_df_per_year"])

@@ -32,7 +32,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..errors import SpecificationError
+from ...errors import SpecificationError
 from .families import NegativeBinomial, Poisson
 
 __all__ = ["default_hac_lags", "family_of", "fit_hac_covariance", "hac_covariance", "score_contributions"]

@@ -8,10 +8,10 @@ once (:func:`fit_confounders`), and for each structure :func:`prepare_exposure` 
 approximate Hessian ``H0 = X_r.T W0 X_r`` with the confounder fit's working weights ``W0`` on the usable
 rows ``r``: its confounder block is the stored all-row ``Z.T W0 Z`` minus the contribution of the excluded
 rows (a cheap downdate; formed directly when many rows are excluded); the blocks with the exposure columns
-cost ``n p k``. ``H0`` is factorised once by Cholesky. :func:`airhealth.model.grid_inference.fit_exposure_only`
+cost ``n p k``. ``H0`` is factorised once by Cholesky. :func:`airhealth.model.engine.grid_inference.fit_exposure_only`
 iterates with it (method, stop and accuracy in docs/engine.md).
 
-Contract used by :mod:`airhealth.model.grid_inference`: :class:`ConfounderFit`, :func:`fit_confounders`,
+Contract used by :mod:`airhealth.model.engine.grid_inference`: :class:`ConfounderFit`, :func:`fit_confounders`,
 :class:`ExposureProblem`, :func:`prepare_exposure` and :func:`plain_fit` (the reference path: ``fit_glm`` on
 the stacked design, used whenever the shared work cannot be used).
 
@@ -31,12 +31,12 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import blas, lapack
 
-from .._threads import policy_threads
-from ..errors import FitError
-from .engine import FamilyName, GLMFit, ThetaMethod, fit_glm, intercept_column
-from .engine_checks import RANK_TOL, finite_or_raise
-from .engine_core import weighted_gram, workspace
+from ..._threads import policy_threads
+from ...errors import FitError
+from .checks import RANK_TOL, finite_or_raise
+from .core import weighted_gram, workspace
 from .families import NegativeBinomial, Poisson
+from .irls import FamilyName, GLMFit, ThetaMethod, fit_glm, intercept_column
 
 __all__ = ["ConfounderFit", "ExposureProblem", "fit_confounders", "plain_fit", "prepare_exposure"]
 
@@ -100,7 +100,7 @@ def fit_confounders(
 ) -> ConfounderFit:
     """Fit the confounder-only model on all rows and keep what exposure fits reuse.
 
-    Parameters are those of :func:`~airhealth.model.engine.fit_glm`; ``Z`` is the confounder block.
+    Parameters are those of :func:`~airhealth.model.engine.irls.fit_glm`; ``Z`` is the confounder block.
     """
     fit = fit_glm(
         Z, y, family=family, offset=offset, weights=weights, theta=theta, theta_method=theta_method,

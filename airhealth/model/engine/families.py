@@ -1,6 +1,6 @@
 """Count-data families with a log link: variance, deviance, working weights, log-likelihood.
 
-Each family object states only its mathematics; the fitting loop lives in :mod:`airhealth.model.engine`.
+Each family object states only its mathematics; the fitting loop lives in :mod:`airhealth.model.engine.irls`.
 All functions take prior (frequency) weights ``w`` so a row with weight 2 counts as two identical rows.
 
 With the log link ``eta = log(mu)`` we have ``dmu/deta = mu``, so the IRLS working weight of a row is
@@ -22,7 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, special
 
-from ..errors import FitError
+from ...errors import FitError
 
 __all__ = ["NegativeBinomial", "Poisson", "overdispersion_score", "theta_ml", "theta_moments"]
 

@@ -10,7 +10,7 @@ What the structures share: the validated frame and the confounder block (built o
 (full results) fits each design by :func:`~airhealth.model.fitting.fit_design`, as a single fit does.
 :func:`compare` (the tidy table) fits the confounder-only model once (on the days where the outcome and every
 confounder are available) and each structure by
-:func:`~airhealth.model.grid_inference.fit_exposure_only`, which reuses it and gives the single fit's
+:func:`~airhealth.model.engine.grid_inference.fit_exposure_only`, which reuses it and gives the single fit's
 estimates to rounding; whatever that shared work cannot do (a structure that does not converge, collinear
 columns, aliased columns, negative binomial models that re-estimate theta, exposure-response terms that learn
 from the data, Newey–West intervals) is fitted by :func:`~airhealth.model.fitting.fit_design` on the
@@ -32,13 +32,13 @@ import pandas as pd
 from .._progress import progress
 from .._threads import design_threads, fitting_threads
 from ..errors import DataError, FitError, SpecificationError
-from .design import ConfounderBlock, Design, build_design, cached_confounders, model_frame
-from .engine import GLMFit
-from .fitting import fit_design, result_from_fit, warn_if_suspicious
-from .grid_engine import ConfounderFit, fit_confounders
-from .grid_inference import ExposureFit, exposure_block, fit_exposure_only
-from .result import SUMMARY_COLUMNS, FitResult
-from .spec import ModelSpec
+from ..model.design import ConfounderBlock, Design, build_design, cached_confounders, model_frame
+from ..model.engine.grid import ConfounderFit, fit_confounders
+from ..model.engine.grid_inference import ExposureFit, exposure_block, fit_exposure_only
+from ..model.engine.irls import GLMFit
+from ..model.fitting import fit_design, result_from_fit, warn_if_suspicious
+from ..model.result import SUMMARY_COLUMNS, FitResult
+from ..model.spec import ModelSpec
 
 __all__ = ["compare", "compare_results"]
 
@@ -135,7 +135,7 @@ def _exposure_fit(grid: _Grid, shared, spec: ModelSpec, design: Design) -> Expos
 
 def _row(spec: ModelSpec, fit: ExposureFit, n_days: int, per: float, level: float) -> dict[str, Any]:
     """The tidy record of one structure, computed as :meth:`FitResult.to_dict` does."""
-    from .effects import relative_risk  # as FitResult.effect does
+    from ..model.effects import relative_risk  # as FitResult.effect does
 
     w = spec.lag.basis().sum(axis=0)
     e = relative_risk(float(w @ fit.coef), float(np.sqrt(w @ fit.cov @ w)), per=per, level=level)
@@ -244,7 +244,7 @@ def compare(
     Examples
     --------
     >>> import airhealth
-    >>> from airhealth.model.compare import compare
+    >>> from airhealth.studies.compare import compare
     >>> table = compare(airhealth.load_sample(), lags=["0", "1", "0-1"], outcome="deaths_all",
     ...                 exposure="pm25", temperature="temperature")
     >>> list(table["lag"])

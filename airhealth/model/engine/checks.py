@@ -1,4 +1,4 @@
-"""Input checks and rank-deficiency diagnosis for the GLM engine (:mod:`airhealth.model.engine`).
+"""Input checks and rank-deficiency diagnosis for the GLM engine (:mod:`airhealth.model.engine.irls`).
 
 Every check raises :class:`~airhealth.errors.FitError` or :class:`~airhealth.errors.SpecificationError`
 with a message naming the argument, row or column and saying what to do.
@@ -16,8 +16,8 @@ from typing import Literal
 import numpy as np
 from scipy.linalg import qr, solve_triangular
 
-from .._choices import check_choice
-from ..errors import FitError, SpecificationError
+from ..._choices import check_choice
+from ...errors import FitError, SpecificationError
 
 __all__ = [
     "RANK_TOL",

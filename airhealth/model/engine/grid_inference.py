@@ -7,7 +7,7 @@ the dispersion, deviance, log-likelihood and QAIC. With converged weights ``W``,
 ``G <- G + A0^-1 Z.T W (E - Z G)`` preconditioned with the confounder fit's (row-downdated) Cholesky
 factor, run in the same loop as the coefficient iteration, a fixed-Hessian (chord) iteration
 ``beta <- beta + H0^-1 X_r.T (w (y - mu) mu / V(mu))`` with the factor of
-:func:`airhealth.model.grid_engine.prepare_exposure`. The score is exact at every step, so the fixed point is
+:func:`airhealth.model.engine.grid.prepare_exposure`. The score is exact at every step, so the fixed point is
 the maximum-likelihood estimate. Each step costs ``O(n p k)``; both iterations converge at the rate of the
 weight change, the refinement falls back to the exact product if it stalls, and anything else the shared
 work cannot do is fitted by the full fit. Method and accuracy argument: docs/engine.md.
@@ -32,11 +32,11 @@ import numpy as np
 from scipy import special
 from scipy.linalg import lapack
 
-from .._threads import fitting_threads
-from .engine import GLMFit, information_criterion
-from .engine_core import weighted_gram, workspace
+from ..._threads import fitting_threads
+from .core import weighted_gram, workspace
 from .families import Poisson
-from .grid_engine import ConfounderFit, plain_fit, prepare_exposure
+from .grid import ConfounderFit, plain_fit, prepare_exposure
+from .irls import GLMFit, information_criterion
 
 __all__ = ["ExposureFit", "exposure_block", "fit_exposure_only"]
 
@@ -61,7 +61,7 @@ class ExposureFit:
         Exposure coefficients ``theta`` (k,), their covariance block ``dispersion * (C - B.T A^-1 B)^-1``
         (k, k), the unscaled block, and its diagonal's square roots.
     deviance, loglik, pearson_chi2, dispersion
-        As in :class:`~airhealth.model.engine.GLMFit` for the whole model.
+        As in :class:`~airhealth.model.engine.irls.GLMFit` for the whole model.
     n_obs, n_params, df_resid
         Weight total of the usable rows, number of coefficients (confounders + exposure), residual df.
     n_iter, n_refinements, exact_product
@@ -91,7 +91,7 @@ class ExposureFit:
 
     @property
     def qaic(self) -> float:
-        """QAIC (quasi-Poisson) or AIC, exactly as :attr:`~airhealth.model.engine.GLMFit.qaic`."""
+        """QAIC (quasi-Poisson) or AIC, exactly as :attr:`~airhealth.model.engine.irls.GLMFit.qaic`."""
         return information_criterion(self.family, self.loglik, self.dispersion, self.n_params, self.theta_estimated)
 
 
@@ -246,20 +246,20 @@ def fit_exposure_only(
     ``C = E.T W E`` at the converged weights ``W``; ``A^-1 B`` is found by iterative refinement
     preconditioned with the confounder fit's factor, so the ``n pc^2`` product ``Z.T W Z`` is never
     formed (unless the refinement stalls). Nothing is approximated beyond floating point: the result
-    equals :func:`~airhealth.model.engine.fit_glm` on the subset to rounding.
+    equals :func:`~airhealth.model.engine.irls.fit_glm` on the subset to rounding.
 
     Parameters
     ----------
     base : ConfounderFit
-        From :func:`~airhealth.model.grid_engine.fit_confounders`.
+        From :func:`~airhealth.model.engine.grid.fit_confounders`.
     E, rows, column_names, tol
-        As in :func:`~airhealth.model.grid_engine.prepare_exposure`.
+        As in :func:`~airhealth.model.engine.grid.prepare_exposure`.
     max_iter : int
         Fixed-Hessian steps before the plain fit is used instead.
     fallback : callable, optional
         The full fit to use whenever the shared work cannot give the answer (estimated theta, too few
         rows, collinear columns, no convergence). Default: ``fit_glm`` on the stacked design
-        (:func:`~airhealth.model.grid_engine.plain_fit`). ``compare`` passes the single fit of the same
+        (:func:`~airhealth.model.engine.grid.plain_fit`). ``compare`` passes the single fit of the same
         design, so such a structure gets exactly the single fit's answer, warnings and errors.
 
     Returns

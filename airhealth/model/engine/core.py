@@ -1,7 +1,7 @@
 """The engine pieces the IRLS engine and the lag-grid path share: work buffers and the weighted Gram product.
 
-Contract (internal; :mod:`airhealth.model.engine` and :mod:`airhealth.model.grid_engine` /
-:mod:`airhealth.model.grid_inference` use only these names from here):
+Contract (internal; :mod:`airhealth.model.engine.irls` and :mod:`airhealth.model.engine.grid` /
+:mod:`airhealth.model.engine.grid_inference` use only these names from here):
 
 * :func:`workspace` ``(key, shape, order)`` - a reusable per-thread ``float64`` buffer; its contents are
   undefined on return and it is overwritten by the next request for the same ``key`` in the same thread,

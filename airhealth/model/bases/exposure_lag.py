@@ -8,8 +8,8 @@ may be a smooth function of both the exposure level and the lag:
     s(x_t) = \sum_{l \in L} \sum_{j=1}^{p} \sum_{k=1}^{K} f_j(x_{t-l})\, C_{lk}\, \theta_{jk},
 
 where :math:`f_1..f_p` is an exposure–response basis (linear, natural spline, or linear above/below a
-threshold) and :math:`C` (``len(L) × K``) a lag basis from :mod:`airhealth.model.lag_structures` or
-:mod:`airhealth.model.distributed_lags`. The ``p·K`` design columns are the tensor (row-wise Kronecker)
+threshold) and :math:`C` (``len(L) × K``) a lag basis from :mod:`airhealth.model.bases.lag_structures` or
+:mod:`airhealth.model.bases.distributed_lags`. The ``p·K`` design columns are the tensor (row-wise Kronecker)
 product :math:`\sum_l f_j(x_{t-l}) C_{lk}`, ordered with the exposure basis outermost. The log relative
 risk of exposure :math:`x` against a reference :math:`r` at lag :math:`l` is
 :math:`(f(x) - f(r))^\top \Theta\, C_l^\top`, and over all lags :math:`(f(x) - f(r))^\top \Theta\, C^\top
@@ -40,8 +40,8 @@ from typing import Any, Literal
 import numpy as np
 import pandas as pd
 
-from .._choices import check_choice
-from ..errors import DataError, SpecificationError
+from ..._choices import check_choice
+from ...errors import DataError, SpecificationError
 from .lag_structures import LagStructure, number_text, parse_lag
 from .splines import NaturalSplineBasis
 from .terms import Term, TermBlock
@@ -165,7 +165,7 @@ class SplineResponse(ExposureResponse):
     """A natural cubic spline of the exposure with ``df`` columns (no constant) or given interior ``knots``.
 
     With ``df``, ``df - 1`` interior knots sit at equally spaced quantiles of the exposure's non-missing
-    values, and the boundary knots at their range (as :class:`~airhealth.model.splines.NaturalSplineBasis`).
+    values, and the boundary knots at their range (as :class:`~airhealth.model.bases.splines.NaturalSplineBasis`).
     """
 
     df: int | None = 3
@@ -267,7 +267,7 @@ class ExposureLagBasis(LagStructure):
         the same code (:meth:`LagStructure.columns`), as for the plain lag structure.
 
     The label is ``"<response> x <lag>"`` (e.g. ``"spline(df=3) x dl0-21:spline4"``) and reads back with
-    :func:`~airhealth.model.lag_structures.parse_lag`; it describes the specification, so a copy bound to
+    :func:`~airhealth.model.bases.lag_structures.parse_lag`; it describes the specification, so a copy bound to
     data (with its knots learnt) keeps the label of the unbound basis.
 
     Examples

@@ -1,0 +1,1 @@
+"""The fitting engine: IRLS, families, collinearity diagnosis, variance estimators, shared-work paths."""
