@@ -1,0 +1,159 @@
+"""``airhealth burden``: the JSON contract, tables under --out with suppression, presets list, errors; and the
+report section and figure of a burden."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import airhealth
+from airhealth.burden import burden, burden_from_estimate
+from airhealth.cli.main import main
+from airhealth.report.burden_plots import plot_burden_by_month
+from airhealth.report.burden_section import burden_section, suppressed_burden_table
+from airhealth.report.document import Figure, Table, Text
+from airhealth.report.suppression import SUPPRESSED
+
+CONTRACT = {
+    "attributable",
+    "attributable_low",
+    "attributable_high",
+    "fraction",
+    "fraction_low",
+    "fraction_high",
+    "n_days",
+}
+
+
+@pytest.fixture(scope="module")
+def sample_csv(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    path = tmp_path_factory.mktemp("burden") / "norhaven.csv"
+    airhealth.load_sample().to_csv(path, index=False)
+    return path
+
+
+def test_json_from_a_given_coefficient_matches_python(sample_csv: Path, capsys: pytest.CaptureFixture) -> None:
+    args = ["--outcome", "deaths_all", "--exposure", "pm25", "--lag", "0", "--coef", "0.0008", "--se", "0.0003"]
+    code = main(["burden", str(sample_csv), *args, "--counterfactual", "who-guideline:pm2.5:24h", "--json"])
+    assert code == 0
+    record = json.loads(capsys.readouterr().out)
+    assert CONTRACT <= set(record)
+    python = burden_from_estimate(
+        airhealth.load_sample(), "deaths_all", "pm25", 0.0008, 0.0003, "who-guideline:pm2.5:24h", lag="0"
+    )
+    for key in CONTRACT:
+        assert record[key] == pytest.approx(python.to_dict()[key], rel=1e-12)
+    assert record["counterfactual"] == 15 and "WHO" in record["counterfactual_source"]
+    assert record["draws"] == 1000 and "causal" in record["caution"]
+
+
+def test_json_from_a_fit_with_draws_and_seed(sample_csv: Path, capsys: pytest.CaptureFixture) -> None:
+    args = ["--outcome", "deaths_all", "--exposure", "pm25", "--lag", "dl0-3", "--temperature", "temperature"]
+    code = main(["burden", str(sample_csv), *args, "--counterfactual", "10", "--draws", "200", "--seed", "3", "--json"])
+    assert code == 0
+    record = json.loads(capsys.readouterr().out)
+    fitted = airhealth.fit(airhealth.load_sample(), "deaths_all", "pm25", lag="dl0-3", temperature="temperature")
+    python = burden(fitted, 10, data=airhealth.load_sample(), draws=200, seed=3)
+    assert record["attributable_high"] == pytest.approx(python.attributable_high, rel=1e-9)
+    assert (record["draws"], record["seed"], record["perspective"]) == (200, 3, "backward")
+
+
+def test_out_writes_breakdown_tables_with_small_counts_hidden(sample_csv: Path, tmp_path: Path) -> None:
+    args = ["--outcome", "admissions_respiratory", "--exposure", "pm25", "--coef", "0.002", "--se", "0.001"]
+    out = tmp_path / "tables"
+    code = main(
+        ["burden", str(sample_csv), *args, "--counterfactual", "15", "--out", str(out), "--suppress-below", "10"]
+    )
+    assert code == 0
+    names = sorted(p.name for p in out.iterdir())
+    assert names == [
+        "CAUTION.txt", "burden_by_month.csv", "burden_by_season.csv", "burden_by_year.csv", "burden_by_year_month.csv"
+    ]  # fmt: skip
+    monthly = pd.read_csv(out / "burden_by_year_month.csv", dtype=str)
+    # a month's total of cases is hidden exactly when one of its counted days has 1 to 9 admissions
+    data = airhealth.load_sample().dropna(subset=["pm25", "admissions_respiratory"])
+    counts = data.set_index("date")["admissions_respiratory"]
+    has_small = counts.groupby(counts.index.strftime("%Y-%m")).apply(lambda c: ((c > 0) & (c < 10)).any())
+    hidden = (monthly.set_index("period")["cases"] == SUPPRESSED).reindex(has_small.index)
+    assert hidden.equals(has_small) and has_small.any()
+    assert (monthly.loc[monthly["cases"] == SUPPRESSED, "fraction"] == SUPPRESSED).all()
+    small = pd.to_numeric(monthly["attributable"], errors="coerce")
+    assert not ((small > 0) & (small < 10)).any()
+    assert (monthly["attributable"] == "<10").any()
+    assert "causal" in (out / "CAUTION.txt").read_text()
+
+
+def test_list_counterfactuals_prints_every_preset_with_its_source(capsys: pytest.CaptureFixture) -> None:
+    assert main(["burden", "--list-counterfactuals"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    assert len(lines) == len(airhealth.burden.PRESETS)
+    assert any(line.startswith("eu-limit:pm10:24h: 50 µg/m³") and "35 times" in line for line in lines)
+
+
+def test_command_line_errors_name_the_fix(sample_csv: Path, capsys: pytest.CaptureFixture) -> None:
+    base = ["burden", str(sample_csv), "--outcome", "deaths_all", "--exposure", "pm25"]
+    assert main([*base, "--coef", "0.001", "--counterfactual", "10"]) == 2
+    assert "--coef needs --se: a coefficient without its standard error" in capsys.readouterr().err
+    assert main([*base, "--coef", "0.001", "--se", "0.0005", "--counterfactual", "-3"]) == 2
+    assert "counterfactual -3 µg/m³ is negative" in capsys.readouterr().err
+    assert main([*base, "--coef", "0.001", "--se", "0.0005", "--counterfactual", "10", "--draws", "20"]) == 2
+    assert "draws=20: give a whole number of at least 100" in capsys.readouterr().err
+    assert main(["burden", str(sample_csv), "--outcome", "deaths_all"]) == 2
+    assert "needs --exposure, --counterfactual" in capsys.readouterr().err
+
+
+def _respiratory_burden() -> object:
+    data = airhealth.load_sample()
+    return burden_from_estimate(data, "admissions_respiratory", "pm25", 0.002, 0.001, 15)
+
+
+def test_section_has_the_caution_tables_figure_and_missing_days() -> None:
+    result = _respiratory_burden()
+    section = burden_section(result)
+    texts = " ".join(b.text for b in section.blocks if isinstance(b, Text))
+    assert result.caution in texts
+    assert "missing exposure" in texts and "not counted as days without excess" in texts
+    tables = {b.name: b for b in section.blocks if isinstance(b, Table)}
+    assert set(tables) == {"burden_total", "burden_year", "burden_season", "burden_month"}
+    assert tables["burden_total"].frame["attributable"].iloc[0] == pytest.approx(result.attributable)
+    assert sum(isinstance(b, Figure) for b in section.blocks) == 1
+
+
+def test_section_hides_small_counts_and_the_fractions_that_would_reveal_them() -> None:
+    result = _respiratory_burden()
+    table = suppressed_burden_table(result, "month", 10)
+    assert (table["cases"] == SUPPRESSED).all()  # daily counts below 10 occur in every calendar month
+    assert (table["fraction_low"] == SUPPRESSED).all()
+    assert suppressed_burden_table(result, "month", None).equals(result.table("month"))
+
+
+def test_monthly_figure_falls_back_to_years_then_nothing_when_estimates_are_small() -> None:
+    result = _respiratory_burden()
+    ax = plot_burden_by_month(result)
+    assert len(ax.patches) == len(result.table("year_month"))  # one bar per month
+    assert "per month" in ax.get_ylabel() and "µg/m³" in ax.get_title()
+    hidden = plot_burden_by_month(result, suppress_below=10_000)
+    assert len(hidden.patches) == 0 and "left out" in hidden.texts[0].get_text()
+    section = burden_section(result, suppress_below=10_000)
+    figure = next(b for b in section.blocks if isinstance(b, Figure))
+    assert "yearly estimates are below 10000" in figure.note
+
+
+def test_plot_draws_on_the_given_axes() -> None:
+    from matplotlib.figure import Figure as MplFigure
+
+    ax = MplFigure().add_subplot()
+    assert plot_burden_by_month(_respiratory_burden(), ax=ax) is ax
+
+
+def test_results_are_read_only_and_tables_are_copies() -> None:
+    result = _respiratory_burden()
+    table = result.table("year")
+    table.loc[0, "attributable"] = np.nan
+    assert np.isfinite(result.table("year")["attributable"]).all()
+    with pytest.raises(AttributeError):
+        result.attributable = 0.0  # type: ignore[misc]
