@@ -59,20 +59,23 @@ def _table(
     cells: pd.DataFrame, sim: Simulation, keys: pd.Series, level: float
 ) -> tuple[pd.DataFrame, tuple[float, ...]]:
     codes, labels = pd.factorize(keys, sort=True)
-    present = codes >= 0
-    groups = np.zeros((len(labels), len(cells)))
-    groups[codes[present], np.flatnonzero(present)] = 1.0
+    ordered = bool(np.all(np.diff(codes) >= 0))  # years and months of one city: cells already in order
+    order = np.arange(len(codes)) if ordered else np.argsort(codes, kind="stable")
+    starts = np.flatnonzero(np.diff(codes[order], prepend=-1) != 0)
     lo_q, hi_q = 50 * (1 - level), 50 * (1 + level)
-    an = groups @ sim.point
-    an_draws = groups @ sim.draws
-    low, high = np.percentile(an_draws, [lo_q, hi_q], axis=1) if an_draws.shape[1] else (an, an)
-    cases = groups @ cells["cases"].to_numpy()
+    an = np.add.reduceat(sim.point[order], starts)
+    draws = sim.draws if ordered else sim.draws[order]
+    ends = np.append(starts[1:], len(codes))
+    an_draws = np.stack([draws[a:b].sum(axis=0) for a, b in zip(starts, ends, strict=True)])  # faster than reduceat
+    low, high = np.percentile(an_draws, [lo_q, hi_q], axis=1)
+    cases = np.add.reduceat(cells["cases"].to_numpy()[order], starts)
+    days = np.add.reduceat(cells["days"].to_numpy()[order], starts)
     with np.errstate(invalid="ignore", divide="ignore"):
         frac = np.where(cases > 0, 1.0 / cases, np.nan)
     table = pd.DataFrame(
         {
             "period": [str(v) for v in labels],
-            "days": (groups @ cells["days"].to_numpy()).round().astype(int),
+            "days": days.astype(int),
             "cases": cases,
             "attributable": an,
             "attributable_low": low,
