@@ -4,6 +4,8 @@ Results are statistical associations, not proof of causation; they inform but do
 review, local regulation or licensed public-health practice.
 """
 
+from .burden import BurdenResult, burden_from_estimate, burden_pooled, preset_table
+from .burden import burden as attributable_burden
 from .cities import pool, pool_multivariate
 from .errors import (
     AirhealthError,
@@ -40,6 +42,7 @@ __version__ = "0.1.0"
 __all__ = [
     "AirhealthError",
     "AirhealthWarning",
+    "BurdenResult",
     "Categorical",
     "ConvergenceWarning",
     "DataError",
@@ -64,6 +67,9 @@ __all__ = [
     "UnconstrainedLag",
     "__version__",
     "align_daily",
+    "attributable_burden",
+    "burden_from_estimate",
+    "burden_pooled",
     "compare",
     "diagnose",
     "exposure_response",
@@ -75,5 +81,6 @@ __all__ = [
     "parse_lag",
     "pool",
     "pool_multivariate",
+    "preset_table",
     "write_report",
 ]
