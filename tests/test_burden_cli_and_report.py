@@ -157,3 +157,9 @@ def test_results_are_read_only_and_tables_are_copies() -> None:
     assert np.isfinite(result.table("year")["attributable"]).all()
     with pytest.raises(AttributeError):
         result.attributable = 0.0  # type: ignore[misc]
+
+
+def test_a_perspective_with_a_given_coefficient_is_refused(sample_csv: Path, capsys: pytest.CaptureFixture) -> None:
+    base = ["burden", str(sample_csv), "--outcome", "deaths_all", "--exposure", "pm25", "--counterfactual", "10"]
+    assert main([*base, "--coef", "0.001", "--se", "0.0005", "--perspective", "forward"]) == 2
+    assert "--perspective forward applies to distributed lags" in capsys.readouterr().err

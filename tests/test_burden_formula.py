@@ -259,3 +259,33 @@ def test_every_output_carries_the_caution(sample: pd.DataFrame) -> None:
     ):
         assert key in d
     assert d["counterfactual"] == 15 and d["counterfactual_name"] == "who-guideline:pm2.5:24h"
+
+
+def test_non_linear_distributed_lag_burden_equals_the_per_lag_predictions(sample: pd.DataFrame) -> None:
+    # backward: day t's log RR = Σ_l (f(x_{t-l}) - f(x0)) Θ C_l over the lags whose exposure is above x0,
+    # each term taken from exposure_response(per_lag=True), the model layer's own prediction code
+    basis = ExposureLagBasis(SplineResponse(df=3), "dl0-3:poly2")
+    fitted = airhealth.fit(sample, "deaths_all", "temperature", lag=basis, temperature=None, unit="°C")
+    x0 = 20.0
+    b = burden(fitted, x0, data=sample, side="above")
+    x = sample["temperature"].to_numpy(float)
+    y = sample["deaths_all"].to_numpy(float)
+    hot = np.unique(x[np.isfinite(x) & (x > x0)])
+    table = exposure_response(fitted, values=hot, reference=x0, per_lag=True)
+    log_rr = {(v, int(k)): c for v, k, c in table[["exposure", "lag", "coef"]].itertuples(index=False)}
+    expected = 0.0
+    for t in range(3, len(x)):
+        window = x[t - 3 : t + 1][::-1]  # x_t, x_{t-1}, x_{t-2}, x_{t-3}
+        if not np.isfinite(window).all() or not np.isfinite(y[t]):
+            continue
+        total = sum(log_rr[(v, k)] for k, v in enumerate(window) if v > x0)
+        expected += y[t] * (1 - math.exp(-total))
+    assert b.attributable == pytest.approx(expected, rel=1e-9)
+
+
+def test_minimum_risk_counterfactual_needs_a_non_linear_curve(sample: pd.DataFrame) -> None:
+    from airhealth.errors import SpecificationError
+
+    fitted = airhealth.fit(sample, "deaths_all", "pm25", lag="0")
+    with pytest.raises(SpecificationError, match=r"'minimum-risk' needs a non-linear exposure-response"):
+        burden(fitted, "minimum-risk")

@@ -93,8 +93,9 @@ def _compute(
         )
     rows, cases, starts, cells = _cells(parts)
     if not np.any(rows):
+        side = {"above": "above", "below": "below", "both": "different from"}[fields["side"]]
         message = (
-            f"no day's exposure is {fields['side']} the counterfactual {counterfactual.value:g} "
+            f"no day's exposure is {side} the counterfactual {counterfactual.value:g} "
             f"{counterfactual.unit}: the attributable number is 0."
         )
         notes.append(message)
@@ -126,6 +127,11 @@ def _rows_of(
 
 def _fit_counterfactual(result: FitResult, given: Any) -> Counterfactual:
     if isinstance(given, str) and given.strip().lower() == MINIMUM_RISK:
+        if getattr(result.spec.lag, "is_nonlinear", False) is False:
+            raise SpecificationError(
+                "counterfactual 'minimum-risk' needs a non-linear exposure-response (an ExposureLagBasis with a "
+                "spline or threshold response); for a linear model give a level, e.g. a guideline value."
+            )
         lowest = minimum_risk_exposure(result)
         return Counterfactual(
             lowest.exposure, result.spec.unit, "minimum-risk exposure", "lowest point of the fitted curve", lowest.note

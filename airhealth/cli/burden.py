@@ -85,6 +85,11 @@ def _required(args: argparse.Namespace) -> None:
         missing.insert(0, "DATA.csv")
     if missing:
         raise SpecificationError(f"airhealth burden needs {', '.join(missing)} (or --list-counterfactuals).")
+    if args.coef is not None and args.perspective != "backward":
+        raise SpecificationError(
+            f"--perspective {args.perspective} applies to distributed lags of a model fitted here; a given --coef "
+            "is for a single day or moving average, whose burden has no perspective to choose. Leave out --perspective."
+        )
     if (args.coef is None) != (args.se is None):
         given, absent = ("--coef", "--se") if args.se is None else ("--se", "--coef")
         raise SpecificationError(f"{given} needs {absent}: a coefficient without its standard error gives no interval.")
