@@ -289,3 +289,27 @@ def test_minimum_risk_counterfactual_needs_a_non_linear_curve(sample: pd.DataFra
     fitted = airhealth.fit(sample, "deaths_all", "pm25", lag="0")
     with pytest.raises(SpecificationError, match=r"'minimum-risk' needs a non-linear exposure-response"):
         burden(fitted, "minimum-risk")
+
+
+def test_pooled_distributed_lag_vector_applied_to_each_city_equals_the_hand_sum() -> None:
+    # dl0-2 unconstrained: the pooled vector is the per-lag coefficients themselves (C = I)
+    coefs = [[0.0006, 0.0003, 0.0001], [0.0008, 0.0002, 0.0], [0.0005, 0.0004, 0.0002]]
+    covs = [np.diag([1e-8, 1e-8, 1e-8])] * 3
+    pooled = airhealth.pool_multivariate(coefs, covs, method="mm")
+    cities = {"north": _city(1), "south": _city(2)}
+    b = burden_pooled(pooled, cities, "deaths", "pm", 12, lag="dl0-2")
+    expected = sum(
+        _hand_distributed(d["deaths"].to_numpy(float), d["pm"].to_numpy(), np.asarray(pooled.coef), 12.0, False)
+        for d in cities.values()
+    )
+    assert b.attributable == pytest.approx(expected, rel=RTOL)
+    forward = burden_pooled(pooled, cities, "deaths", "pm", 12, lag="dl0-2", perspective="forward")
+    expected_fwd = sum(
+        _hand_distributed(d["deaths"].to_numpy(float), d["pm"].to_numpy(), np.asarray(pooled.coef), 12.0, True)
+        for d in cities.values()
+    )
+    assert forward.attributable == pytest.approx(expected_fwd, rel=RTOL)
+    from airhealth.errors import SpecificationError
+
+    with pytest.raises(SpecificationError, match=r"pooled vector has 3 coefficients but lag dl0-5 has 6 basis columns"):
+        burden_pooled(pooled, cities, "deaths", "pm", 12, lag="dl0-5")

@@ -292,6 +292,34 @@ def burden_from_estimate(
     )  # fmt: skip
 
 
+def _pooled_coefficients(pooled: Any, lag: Any) -> tuple[ExposureLagBasis, np.ndarray, np.ndarray, str]:
+    """The lag basis, pooled coefficients, their covariance and a description, checked against each other."""
+    from ..cities import MultivariatePooled, PooledEffect
+
+    if isinstance(pooled, PooledEffect):
+        if len(pooled.terms) > 1:
+            raise SpecificationError(
+                f"the pooled estimate has moderators ({', '.join(pooled.terms[1:])}); its coefficient is the effect "
+                "where every moderator is 0. Pool without moderators for a burden, or use burden_from_estimate per "
+                "city with the prediction of pooled.predict(...)."
+            )
+        basis = _single_coefficient_basis(lag)
+        source = f"pooled estimate ({pooled.method}, {pooled.k} cities)"
+        return basis, np.array([pooled.coef]), np.array([[pooled.se**2]]), source
+    if isinstance(pooled, MultivariatePooled):
+        basis = ExposureLagBasis(LinearResponse(), lag)
+        if basis.n_columns != len(pooled.coef):
+            raise SpecificationError(
+                f"the pooled vector has {len(pooled.coef)} coefficients but lag {basis.lag.label} has "
+                f"{basis.n_columns} basis columns; give the lag the cities were fitted with."
+            )
+        source = f"pooled coefficient vector ({pooled.method}, {pooled.k} cities)"
+        return basis, np.asarray(pooled.coef), np.asarray(pooled.cov), source
+    raise SpecificationError(
+        f"burden_pooled needs the result of airhealth.pool or airhealth.pool_multivariate, got {type(pooled).__name__}."
+    )
+
+
 def burden_pooled(
     pooled: Any,
     cities: Mapping[str, pd.DataFrame],
@@ -303,37 +331,29 @@ def burden_pooled(
     unit: str = "µg/m³",
     date: str = "date",
     side: Side = "above",
+    perspective: Perspective = "backward",
     draws: int = DEFAULT_DRAWS,
     seed: int = DEFAULT_SEED,
     level: float = 0.95,
 ) -> BurdenResult:
-    """The pooled coefficient (:func:`airhealth.pool`, without moderators) applied to each city's data.
+    """A pooled estimate applied to each city's data.
 
-    Every city's days are evaluated with the same draws of the pooled coefficient, so the total's interval
-    accounts for the estimate being shared; ``table("city")`` gives each city's burden. Other parameters as
-    :func:`burden_from_estimate`.
+    ``pooled`` is :func:`airhealth.pool` (one coefficient, without moderators; ``lag`` a single day or moving
+    average) or :func:`airhealth.pool_multivariate` (the lag-basis coefficients of a distributed lag; ``lag`` the
+    structure the cities were fitted with, e.g. ``"dl0-5"``). Every city's days are evaluated with the same draws
+    of the pooled coefficients, so the total's interval accounts for the estimate being shared; ``table("city")``
+    gives each city's burden. Other parameters as :func:`burden`.
     """
-    from ..cities import PooledEffect
-
-    if not isinstance(pooled, PooledEffect):
-        raise SpecificationError(f"burden_pooled needs the result of airhealth.pool, got {type(pooled).__name__}.")
-    if len(pooled.terms) > 1:
-        raise SpecificationError(
-            f"the pooled estimate has moderators ({', '.join(pooled.terms[1:])}); its coefficient is the effect "
-            "where every moderator is 0. Pool without moderators for a burden, or use burden_from_estimate per "
-            "city with the prediction of pooled.predict(...)."
-        )
     if not isinstance(cities, Mapping) or not cities:
         raise SpecificationError("cities must be a mapping of city name to its daily data, with at least one city.")
-    draws, seed = _checked_options(side, "backward", draws, seed, level)
-    basis = _single_coefficient_basis(lag)
+    draws, seed = _checked_options(side, perspective, draws, seed, level)
+    basis, theta, cov, source = _pooled_coefficients(pooled, lag)
     spec = ModelSpec(outcome, exposure, basis.lag, date=date, temperature=None, unit=unit)
     counter = resolve_counterfactual(counterfactual, spec.unit)
     parts = []
     for name, data in cities.items():
-        parts.append((str(name), _rows_of(_burden_frame(data, spec), spec, basis, counter.value, side, "backward")))
+        parts.append((str(name), _rows_of(_burden_frame(data, spec), spec, basis, counter.value, side, perspective)))
     return _compute(
-        parts, np.array([pooled.coef]), np.array([[pooled.se**2]]), counter, draws=draws, seed=seed, level=level,
-        notes=[], outcome=outcome, exposure=exposure, lag=basis.lag.label, unit=spec.unit, side=side,
-        perspective="backward", source=f"pooled estimate ({pooled.method}, {pooled.k} cities)",
+        parts, theta, cov, counter, draws=draws, seed=seed, level=level, notes=[], outcome=outcome,
+        exposure=exposure, lag=basis.lag.label, unit=spec.unit, side=side, perspective=perspective, source=source,
     )  # fmt: skip
