@@ -163,3 +163,24 @@ def test_a_perspective_with_a_given_coefficient_is_refused(sample_csv: Path, cap
     base = ["burden", str(sample_csv), "--outcome", "deaths_all", "--exposure", "pm25", "--counterfactual", "10"]
     assert main([*base, "--coef", "0.001", "--se", "0.0005", "--perspective", "forward"]) == 2
     assert "--perspective forward applies to distributed lags" in capsys.readouterr().err
+
+
+def test_report_option_writes_an_html_page_with_the_section_and_caution(sample_csv: Path, tmp_path: Path) -> None:
+    args = ["--outcome", "deaths_all", "--exposure", "pm25", "--coef", "0.0008", "--se", "0.0003", "--lag", "0"]
+    out = tmp_path / "page"
+    assert main(["burden", str(sample_csv), *args, "--counterfactual", "eu-limit:pm10:24h", "--report", str(out)]) == 0
+    page = (out / "index.html").read_text(encoding="utf-8")
+    assert "Attributable burden" in page and "causal" in page
+    assert "EU Directive 2008/50/EC" in page
+    assert (out / "figures" / "burden_by_month.png").exists()
+    assert (out / "tables" / "burden_year.csv").exists()
+
+
+def test_city_report_takes_the_burden_section_as_an_extra_section(tmp_path: Path) -> None:
+    data = airhealth.load_sample()
+    result = burden_from_estimate(data, "deaths_all", "pm25", 0.0008, 0.0003, 15, lag="0")
+    path = airhealth.write_report(
+        data, ["deaths_all"], ["pm25"], lags=["0"], out=tmp_path / "city", extra_sections=[burden_section(result)]
+    )
+    page = Path(path).read_text(encoding="utf-8") if Path(path).is_file() else (Path(path) / "index.html").read_text()
+    assert "Attributable burden" in page and result.caution.split(";")[0] in page

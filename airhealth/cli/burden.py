@@ -3,7 +3,8 @@
 From a model fitted here (the fit options of ``airhealth fit``) or from a given coefficient and standard error
 (``--coef B --se S``, e.g. a published estimate). Prints the totals, or the JSON record with ``--json``; with
 ``--out DIR`` writes the breakdown tables as CSV (small counts hidden with ``--suppress-below N``).
-``--list-counterfactuals`` prints the presets with their sources.
+``--report DIR`` writes an HTML page of the burden section. ``--list-counterfactuals`` prints the presets with their
+sources.
 """
 
 from __future__ import annotations
@@ -62,8 +63,12 @@ def register(sub: Any) -> None:
     p.add_argument("--perspective", default="backward", help="distributed lags: backward (default) or forward")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     p.add_argument("--out", type=Path, metavar="DIR", help="write the breakdown tables (CSV) to this folder")
+    p.add_argument("--report", type=Path, metavar="DIR", help="write an HTML report of the burden to this folder")
     p.add_argument(
-        "--suppress-below", type=int, metavar="N", help="hide counts below N in the written tables (disclosure rules)"
+        "--suppress-below",
+        type=int,
+        metavar="N",
+        help="hide counts below N in the written tables and report (disclosure rules)",
     )
     p.add_argument("--list-counterfactuals", action="store_true", help="print the counterfactual presets and exit")
     add_model_options(p)
@@ -162,6 +167,13 @@ def run(args: argparse.Namespace) -> int:
                 print(f"warning: {with_command_line_remedy(str(w.message))}", file=sys.stderr)
     if args.out is not None:
         _write_tables(result, args.out, args.suppress_below)
+    if args.report is not None:
+        from ..report.burden_section import burden_section
+        from ..report.html import write_html_report
+
+        section = burden_section(result, suppress_below=args.suppress_below)
+        title = f"Attributable burden: {args.outcome} and {args.exposure}"
+        write_html_report([section], args.report, title=title, small_count_threshold=args.suppress_below)
     if args.json:
         print(json.dumps(_clean(result.to_dict()), indent=2))
     else:
