@@ -184,3 +184,15 @@ def test_city_report_takes_the_burden_section_as_an_extra_section(tmp_path: Path
     )
     page = Path(path).read_text(encoding="utf-8") if Path(path).is_file() else (Path(path) / "index.html").read_text()
     assert "Attributable burden" in page and result.caution.split(";")[0] in page
+
+
+def test_user_text_is_escaped_in_the_notebook_display() -> None:
+    data = airhealth.load_sample().rename(columns={"pm25": "<b>pm</b>"})
+    result = burden_from_estimate(data, "deaths_all", "<b>pm</b>", 0.0008, 0.0003, 15, lag="0")
+    shown = result._repr_html_()
+    assert "&lt;b&gt;pm&lt;/b&gt;" in shown and "<b>pm</b>" not in shown
+
+
+def test_a_fit_with_holidays_and_confounders_gives_its_burden_from_the_data(sample: pd.DataFrame) -> None:
+    fitted = airhealth.fit(sample, "deaths_all", "pm25", lag="dl0-2", temperature="temperature", holidays="GB")
+    assert burden(fitted, 10, data=sample).n_days > 4000

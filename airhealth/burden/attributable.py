@@ -112,7 +112,9 @@ def _compute(
 
 def _burden_frame(data: pd.DataFrame, spec: ModelSpec) -> pd.DataFrame:
     """The validated daily frame of the outcome and exposure only (the guards of every fit)."""
-    slim = spec.replace(temperature=None, humidity=None, confounders=(), offset=None, holidays=None)
+    slim = spec.replace(
+        temperature=None, humidity=None, confounders=(), offset=None, holidays=None, holiday_subdivision=None
+    )
     return model_frame(data, slim)
 
 
