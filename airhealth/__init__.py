@@ -30,10 +30,13 @@ from .model.lag_predictions import exposure_response, lag_response, minimum_risk
 from .model.result import FitResult
 from .model.spec import ModelSpec
 from .prep.align import align_daily
+from .prep.calendar import season_column
 from .report.city_report import write_report
 from .sample import load_sample, load_sample_tables
 from .studies.compare import compare
+from .studies.copollutants import copollutant_table
 from .studies.diagnostics import Diagnostics, diagnose
+from .studies.outcomes import fit_outcomes
 
 __version__ = "0.1.0"
 
@@ -65,9 +68,11 @@ __all__ = [
     "__version__",
     "align_daily",
     "compare",
+    "copollutant_table",
     "diagnose",
     "exposure_response",
     "fit",
+    "fit_outcomes",
     "lag_response",
     "load_sample",
     "load_sample_tables",
@@ -75,5 +80,6 @@ __all__ = [
     "parse_lag",
     "pool",
     "pool_multivariate",
+    "season_column",
     "write_report",
 ]

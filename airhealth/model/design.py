@@ -493,7 +493,7 @@ def _copollutant_checks(
     correlations = exposure_correlations(spec.exposure, raw, series, spec.lag, used, calendar)
     high = [(c, r) for c, r in zip(spec.copollutants, correlations, strict=True) if abs(r) > CORRELATION_WARN]
     if high:
-        shown = ", ".join(f"{c!r} r = {r:.2f}" for c, r in high)
+        shown = ", ".join(f"{c!r} (r = {r:.2f})" for c, r in high)
         warn_user(
             f"exposure {spec.exposure!r} is strongly correlated with co-pollutant {shown} on the days used "
             f"(|r| > {CORRELATION_WARN}); the two-pollutant estimates are unstable and their intervals wide. "
