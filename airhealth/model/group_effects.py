@@ -136,6 +136,7 @@ def extra_record(result: FitResult, per: float, level: float) -> dict[str, Any]:
     if result.groups:
         test = modification_test(result)
         out["modifier"] = result.spec.modifier
-        out["groups"] = effects_by_group(result, per=per, level=level).to_dict(orient="records")
+        groups = effects_by_group(result, per=per, level=level).drop(columns="events")  # no unsuppressed counts
+        out["groups"] = groups.to_dict(orient="records")
         out["modification_test"] = {k: test[k] for k in ("statistic", "df", "p_value", "test")}
     return out
