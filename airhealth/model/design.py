@@ -22,7 +22,7 @@ from ..prep.align import prepare_daily
 from ..prep.degenerate import check_empty, check_usable_days
 from ..prep.guards import ColumnRoles, check_values, clean_values
 from ..prep.validate import check_counts, check_finite, check_not_all_missing, require_columns
-from .bases.copollutant import CORRELATION_WARN, exposure_correlations
+from .bases.copollutant import copollutant_correlations
 from .bases.exposure_lag import ExposureLagBasis
 from .bases.lag_structures import LagStructure, MovingAverage, SingleDay
 from .bases.modifier import check_group_sizes, group_column_names, interact, modifier_codes
@@ -483,21 +483,11 @@ def _copollutant_checks(
     frame: pd.DataFrame, spec: ModelSpec, raw: np.ndarray, used: np.ndarray, calendar: pd.DatetimeIndex,
     y: np.ndarray, codes: np.ndarray | None, groups: tuple[Any, ...],
 ) -> tuple[float, ...]:  # fmt: skip
-    """Checks on the days used for co-pollutants (collinearity; warning above ``CORRELATION_WARN``) and for
-    the modifier's levels (days and events per level); returns the exposure–co-pollutant correlations."""
+    """Checks on the days used: the modifier's levels (days and events per level) and the co-pollutants'
+    collinearity with the exposure (:func:`~.bases.copollutant.copollutant_correlations`)."""
     if groups:
         check_group_sizes(y, used, codes, groups, spec.modifier, spec.outcome)
     if not spec.copollutants:
         return ()
     series = [(c, frame[c].to_numpy(dtype=float, na_value=np.nan)) for c in spec.copollutants]
-    correlations = exposure_correlations(spec.exposure, raw, series, spec.lag, used, calendar)
-    high = [(c, r) for c, r in zip(spec.copollutants, correlations, strict=True) if abs(r) > CORRELATION_WARN]
-    if high:
-        shown = ", ".join(f"{c!r} (r = {r:.2f})" for c, r in high)
-        warn_user(
-            f"exposure {spec.exposure!r} is strongly correlated with co-pollutant {shown} on the days used "
-            f"(|r| > {CORRELATION_WARN}); the two-pollutant estimates are unstable and their intervals wide. "
-            "Read them as a sensitivity analysis beside the single-pollutant estimate.",
-            DataWarning,
-        )
-    return correlations
+    return copollutant_correlations(spec.exposure, raw, series, spec.lag, used, calendar)
