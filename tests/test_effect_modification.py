@@ -127,8 +127,20 @@ def test_modifier_with_missing_values_names_the_days(data):
     gappy = data.copy()
     gappy["season"] = gappy["season"].astype(object)
     gappy.loc[10:12, "season"] = None
-    with pytest.raises(DataError, match=r"modifier column 'season' is missing on 3 days \(2010-01-11, 2010-01-12"):
+    with pytest.raises(
+        DataError, match=r"modifier column 'season' is missing on 3 days with an outcome \(2010-01-11, 2010-01-12"
+    ):
         airhealth.fit(gappy, "deaths_all", "pm25", modifier="season")
+
+
+def test_modifier_may_be_missing_where_there_is_no_outcome(data):
+    gap = data.drop(index=range(300, 310))  # ten days absent: the calendar gets them back, without a level
+    with pytest.warns(airhealth.DataWarning, match="10 calendar day"):
+        result = airhealth.fit(gap, "deaths_all", "pm25", temperature="temperature", modifier="season")
+    with pytest.warns(airhealth.DataWarning, match="10 calendar day"):
+        plain = airhealth.fit(gap, "deaths_all", "pm25", temperature="temperature")
+    assert result.n_days == plain.n_days  # the modifier loses no day the model without it uses
+    assert result.effects_by_group()["n_days"].sum() == result.n_days
 
 
 def test_numeric_modifier_with_many_levels_asks_to_bin(data):

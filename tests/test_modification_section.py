@@ -67,3 +67,9 @@ def test_sections_refuse_the_wrong_input(data):
         copollutant_section(pd.DataFrame({"rr": [1.0]}))
     with pytest.raises(SpecificationError, match="needs a co-pollutant table, a fit with a modifier, or both"):
         modification_section()
+
+
+def test_notebook_view_of_a_grouped_fit_is_escaped(grouped):
+    page = grouped._repr_html_()
+    assert "&lt;b&gt;warm&lt;/b&gt;" in page and "<b>warm</b>" not in page
+    assert "Wald chi-square" in page and "events" not in page

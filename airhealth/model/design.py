@@ -410,7 +410,8 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         When confounder columns are aliased: which, and the unusable days that hold them.
     """
     calendar = pd.DatetimeIndex(frame[spec.date])
-    codes, groups = modifier_codes(frame, spec.modifier, calendar) if spec.modifier else (None, ())
+    y = frame[spec.outcome].to_numpy(dtype=float, na_value=np.nan)
+    codes, groups = modifier_codes(frame, spec.modifier, calendar, np.isfinite(y)) if spec.modifier else (None, ())
     if confounders is not None and _term_names(confounders) != tuple(t.name for t in spec.confounder_terms()):
         confounders = None  # a block shared by specs with other terms (a co-pollutant at another lag): rebuild
     conf = confounders if confounders is not None else cached_confounders(frame, spec)
@@ -422,7 +423,6 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     if groups:
         exposure = interact(exposure, codes, len(groups))
         exposure_names = group_column_names(exposure_names, spec.modifier, groups)
-    y = frame[spec.outcome].to_numpy(dtype=float, na_value=np.nan)
     offset = None if spec.offset is None else frame[spec.offset].to_numpy(dtype=float, na_value=np.nan)
     used = usable_days(y, exposure, conf, offset)
     unused = np.flatnonzero(~used)

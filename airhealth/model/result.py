@@ -26,6 +26,7 @@ from .._choices import check_choice
 from ..errors import SpecificationError
 from .effects import relative_risk
 from .engine.variance import family_of
+from .group_effects import copollutant_effects, effects_by_group, extra_record, modification_test
 from .spec import ModelSpec
 
 __all__ = ["FitResult"]
@@ -385,23 +386,17 @@ class FitResult:
     def copollutant_effects(self, per: float = 10.0, level: float = 0.95) -> pd.DataFrame:
         """Each co-pollutant's effect per ``per`` units, adjusted for the exposure, with its correlation
         with the exposure on the days used (one row per co-pollutant; empty without co-pollutants)."""
-        from .group_effects import copollutant_effects
-
         return copollutant_effects(self, per=per, level=level)
 
     def effects_by_group(self, per: float = 10.0, level: float = 0.95) -> pd.DataFrame:
         """The exposure's effect in each level of the modifier (``group, coef, se, rr, rr_low, rr_high,
         p_value, n_days, events``); for a distributed lag, the cumulative effect in each level."""
-        from .group_effects import effects_by_group
-
         return effects_by_group(self, per=per, level=level)
 
     def modification_test(self) -> pd.Series:
         """Wald test of equal exposure effects across the modifier's levels (``statistic``, ``df``,
         ``p_value``; chi-square on levels − 1 df with the fit's covariance, see
         :mod:`airhealth.model.group_effects`)."""
-        from .group_effects import modification_test
-
         return modification_test(self)
 
     def _group_codes(self) -> np.ndarray:
@@ -414,8 +409,6 @@ class FitResult:
         With co-pollutants it gains ``copollutants`` (one record per co-pollutant); with a modifier the
         single-effect keys are None and it gains ``modifier``, ``groups`` and ``modification_test``.
         """
-        from .group_effects import extra_record
-
         keys = ("coef", "se", "rr", "rr_low", "rr_high", "percent_change", "p_value")
         if self.groups:
             e, effect = None, dict.fromkeys(keys)
@@ -483,7 +476,11 @@ class FitResult:
         )
 
     def _repr_html_(self) -> str | None:
-        if getattr(self.spec.lag, "is_nonlinear", False) or self.groups:
+        if self.groups:
+            from ..report.modification_section import group_effects_html
+
+            return group_effects_html(self)
+        if getattr(self.spec.lag, "is_nonlinear", False):
             return None  # notebooks fall back to the text repr
         from ..report.tables import result_html
 

@@ -17,6 +17,7 @@ particles on total mortality. Epidemiology 12:521–531.
 
 from __future__ import annotations
 
+import html
 from typing import Any
 
 import pandas as pd
@@ -24,7 +25,7 @@ import pandas as pd
 from ..errors import SpecificationError
 from .document import Section, Table, Text
 
-__all__ = ["copollutant_section", "group_effects_section", "modification_section"]
+__all__ = ["copollutant_section", "group_effects_html", "group_effects_section", "modification_section"]
 
 _COPOLLUTANT_TEXT = (
     "Each row is a model of the same days: the exposure alone, then adjusted for one other pollutant at the "
@@ -105,6 +106,18 @@ def group_effects_section(result: Any, per: float = 10.0, level: float = 0.95, t
             Table(f"Relative risk by {spec.modifier}", shown, name=f"effects_by_{spec.modifier}", note=note),
         ],
     )
+
+
+def group_effects_html(result: Any, per: float = 10.0) -> str:
+    """A notebook view of a fit with a modifier: the effects by group and the test (every text escaped)."""
+    spec = result.spec
+    table = result.effects_by_group(per=per).drop(columns="events")
+    test = result.modification_test()
+    caption = html.escape(
+        f"{spec.outcome} ~ {spec.exposure} lag {spec.lag.label} by {spec.modifier}: RR per {per:g} {spec.unit}; "
+        f"equal effects: Wald chi-square {test['statistic']:.3f} on {test['df']} df, p = {test['p_value']:.3g}"
+    )
+    return f"<p>{caption}</p>" + table.to_html(index=False, escape=True, float_format=lambda v: f"{v:.4g}")
 
 
 def modification_section(

@@ -51,25 +51,32 @@ def _first_dates(dates: pd.DatetimeIndex, rows: np.ndarray, k: int = 3) -> str:
     return shown + (", ..." if rows.size > k else "")
 
 
-def modifier_codes(frame: pd.DataFrame, column: str, dates: pd.DatetimeIndex) -> tuple[np.ndarray, tuple]:
-    """Level index of each day (0..G-1) and the levels in order, after the modifier's checks.
+def modifier_codes(
+    frame: pd.DataFrame, column: str, dates: pd.DatetimeIndex, needed: np.ndarray
+) -> tuple[np.ndarray, tuple]:
+    """Level index of each day (0..G-1; -1 where missing) and the levels in order, after the modifier's checks.
+
+    ``needed`` marks the days that have an outcome: the modifier may be missing only on other days (such as
+    the days a calendar gap added), which no fit can use anyway.
 
     Raises
     ------
     DataError
-        When the modifier is missing on some days (naming them) or has a single level.
+        When the modifier is missing on days with an outcome (naming them) or has a single level.
     SpecificationError
         When a numeric modifier has more than :data:`MAX_NUMERIC_LEVELS` distinct values (bin it first).
     """
     values = frame[column]
-    missing = np.flatnonzero(values.isna().to_numpy())
+    absent = values.isna().to_numpy()
+    missing = np.flatnonzero(absent & needed)
     if missing.size:
         raise DataError(
-            f"modifier column {column!r} is missing on {missing.size} days ({_first_dates(dates, missing)}); "
+            f"modifier column {column!r} is missing on {missing.size} days with an outcome "
+            f"({_first_dates(dates, missing)}); "
             "give every day a level (e.g. airhealth.season_column(dates) for seasons), or drop those days "
             "from the data before fitting."
         )
-    levels = sorted(pd.unique(values.to_numpy(dtype=object)).tolist(), key=str)
+    levels = sorted(pd.unique(values[~absent].to_numpy(dtype=object)).tolist(), key=str)
     if pd.api.types.is_numeric_dtype(values) and len(levels) > MAX_NUMERIC_LEVELS:
         raise SpecificationError(
             f"modifier {column!r} is numeric with {len(levels)} distinct values; an effect modifier needs a few "
@@ -82,7 +89,8 @@ def modifier_codes(frame: pd.DataFrame, column: str, dates: pd.DatetimeIndex) ->
             "needs at least two groups."
         )
     lookup = {level: i for i, level in enumerate(levels)}
-    codes = np.fromiter((lookup[v] for v in values.to_numpy(dtype=object)), dtype=int, count=len(values))
+    codes = np.full(len(values), -1)
+    codes[~absent] = [lookup[v] for v in values[~absent].to_numpy(dtype=object)]
     return codes, tuple(levels)
 
 
@@ -93,7 +101,7 @@ def interact(exposure: np.ndarray, codes: np.ndarray, n_levels: int) -> np.ndarr
     out = np.zeros((n, m * n_levels))
     for g in range(n_levels):
         out[:, g * m : (g + 1) * m] = exposure * (codes == g)[:, None]
-    out[~np.isfinite(exposure).all(axis=1)] = np.nan
+    out[~np.isfinite(exposure).all(axis=1) | (codes < 0)] = np.nan
     return out
 
 
@@ -112,7 +120,7 @@ def check_group_sizes(
     DataError
         Naming the level, its days used and its events, and the counts of every level.
     """
-    days = np.bincount(codes[used], minlength=len(levels))
+    days = np.bincount(codes[used], minlength=len(levels))  # (days used always have a level)
     events = np.bincount(codes[used], weights=y[used], minlength=len(levels))
     counts = "; ".join(f"{lev}: {d} days, {e:.0f} events" for lev, d, e in zip(levels, days, events, strict=True))
     for level, d, e in zip(levels, days, events, strict=True):
