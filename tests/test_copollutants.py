@@ -185,3 +185,19 @@ def test_each_table_row_equals_the_single_fit_on_the_same_days(table):
 def test_table_needs_a_copollutant(data):
     with pytest.raises(SpecificationError, match="needs at least one co-pollutant"):
         airhealth.copollutant_table(data, exposure="pm25", copollutants=[], outcome="deaths_all")
+
+
+def test_spec_reads_copollutant_units_from_the_units_mapping():
+    spec = airhealth.ModelSpec.from_options(
+        outcome="y", exposure="pm25", copollutants="no2", units={"pm25": "ugm3", "no2": "PPB"}
+    )
+    assert spec.copollutants == ("no2",) and spec.copollutant_units == ("ppb",) and spec.unit == "µg/m³"
+    assert airhealth.ModelSpec(outcome="y", exposure="pm25", copollutants=("no2", "o3")).copollutant_units == (
+        "µg/m³",
+        "µg/m³",
+    )
+
+
+def test_spec_refuses_a_unit_list_of_the_wrong_length():
+    with pytest.raises(SpecificationError, match="gives 1 units for 2 co-pollutants"):
+        airhealth.ModelSpec(outcome="y", exposure="pm25", copollutants=("no2", "o3"), copollutant_units=("ppb",))
