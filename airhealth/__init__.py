@@ -32,10 +32,13 @@ from .model.lag_predictions import exposure_response, lag_response, minimum_risk
 from .model.result import FitResult
 from .model.spec import ModelSpec
 from .prep.align import align_daily
+from .prep.calendar import season_column
 from .report.city_report import write_report
 from .sample import load_sample, load_sample_tables
 from .studies.compare import compare
+from .studies.copollutants import copollutant_table
 from .studies.diagnostics import Diagnostics, diagnose
+from .studies.outcomes import fit_outcomes
 
 __version__ = "0.1.0"
 
@@ -71,9 +74,11 @@ __all__ = [
     "burden_from_estimate",
     "burden_pooled",
     "compare",
+    "copollutant_table",
     "diagnose",
     "exposure_response",
     "fit",
+    "fit_outcomes",
     "lag_response",
     "load_sample",
     "load_sample_tables",
@@ -82,5 +87,6 @@ __all__ = [
     "pool",
     "pool_multivariate",
     "preset_table",
+    "season_column",
     "write_report",
 ]

@@ -11,10 +11,12 @@ from pathlib import Path
 from typing import Any
 
 from .options import (
+    add_copollutant_options,
     add_model_options,
     add_reading_options,
     check_min_count,
     confidence_level,
+    copollutant_options,
     model_options,
     parse_units,
     read_daily,
@@ -36,6 +38,7 @@ def register(sub: Any) -> None:
     p.add_argument("--lag", default="0-1", help='lag: "0", "2", "0-1", "dl0-5", "dl0-7:poly3", ... (default "0-1")')
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     add_model_options(p)
+    add_copollutant_options(p)
     add_reading_options(p)
     p.set_defaults(func=run)
 
@@ -58,9 +61,28 @@ def _fit(args: argparse.Namespace) -> Any:
 
     lag = with_min_count(args.lag, args.min_count)
     check_min_count([lag], args.min_count)
-    units = parse_units(args.unit, [args.exposure])
-    data = read_daily(args, [args.outcome, args.exposure, args.temperature, args.humidity])
-    return fit(data, outcome=args.outcome, exposure=args.exposure, lag=lag, units=units, **model_options(args))
+    units = parse_units(args.unit, [args.exposure, *args.copollutant])
+    columns = [args.outcome, args.exposure, args.temperature, args.humidity, *args.copollutant, args.modifier]
+    data = read_daily(args, columns, per_analysis=[args.modifier] if args.modifier else ())
+    options = {**model_options(args), **copollutant_options(args)}
+    return fit(data, outcome=args.outcome, exposure=args.exposure, lag=lag, units=units, **options)
+
+
+def _print_text(result: Any, per: float, level: float) -> None:
+    """The effect (or the effects by group and their test) and any co-pollutant effects, as text."""
+    if result.groups:
+        test = result.modification_test()
+        print(f"{result.spec.exposure} lag {result.spec.lag.label}, effect by {result.spec.modifier} (RR per {per:g}):")
+        for row in result.effects_by_group(per=per, level=level).itertuples():
+            print(f"  {row.group}: RR {row.rr:.4f} [{row.rr_low:.4f}, {row.rr_high:.4f}], {row.n_days} days")
+        print(f"  equal effects: Wald chi-square {test['statistic']:.3f} on {test['df']} df, p = {test['p_value']:.3g}")
+    else:
+        print(result.effect(per=per, level=level))
+    for row in result.copollutant_effects(per=per, level=level).itertuples():
+        print(
+            f"co-pollutant {row.copollutant} (adjusted for {result.spec.exposure}): RR per {per:g} {row.unit} "
+            f"{row.rr:.4f} [{row.rr_low:.4f}, {row.rr_high:.4f}]; correlation with the exposure {row.correlation:.2f}"
+        )
 
 
 def run(args: argparse.Namespace) -> int:
@@ -81,7 +103,7 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(_clean(record), indent=2))
     else:
-        print(result.effect(per=args.per, level=level))
+        _print_text(result, args.per, level)
         print(
             f"dispersion {result.dispersion:.3f}, QAIC {result.qaic:.1f}, {result.n_days} days used, "
             f"{len(result.dropped)} dropped"

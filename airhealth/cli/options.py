@@ -21,10 +21,12 @@ from ..prep.validate import parse_dates, require_columns
 from .tables import check_numeric_columns, read_table
 
 __all__ = [
+    "add_copollutant_options",
     "add_layout_options",
     "add_model_options",
     "add_reading_options",
     "confidence_level",
+    "copollutant_options",
     "model_options",
     "parse_na_values",
     "parse_units",
@@ -125,6 +127,29 @@ def add_model_options(p: argparse.ArgumentParser) -> None:
         metavar="COL=UNIT",
         help="unit of an exposure, e.g. o3=ppb (repeat for several; default µg/m³)",
     )
+
+
+def add_copollutant_options(p: argparse.ArgumentParser) -> None:
+    """Co-pollutants and an effect modifier (``fit``): ``--copollutant COL`` (repeatable), ``--modifier COL``."""
+    g = p.add_argument_group("co-pollutants and effect modification")
+    g.add_argument(
+        "--copollutant",
+        action="append",
+        default=[],
+        metavar="COL",
+        help="adjust for another pollutant at the exposure's lag (repeat for several; its unit via --unit COL=UNIT)",
+    )
+    g.add_argument(
+        "--modifier",
+        default=None,
+        metavar="COL",
+        help="categorical column (e.g. season, age group): one exposure effect per level and a test of equal effects",
+    )
+
+
+def copollutant_options(args: argparse.Namespace) -> dict[str, Any]:
+    """The :class:`~airhealth.model.spec.ModelSpec` options of :func:`add_copollutant_options`."""
+    return {"copollutants": tuple(args.copollutant), "modifier": args.modifier}
 
 
 def parse_na_values(given: str | Sequence[str] | None) -> tuple[list[str], tuple[Any, ...]]:

@@ -22,8 +22,10 @@ from ..prep.align import prepare_daily
 from ..prep.degenerate import check_empty, check_usable_days
 from ..prep.guards import ColumnRoles, check_values, clean_values
 from ..prep.validate import check_counts, check_finite, check_not_all_missing, require_columns
+from .bases.copollutant import copollutant_correlations
 from .bases.exposure_lag import ExposureLagBasis
 from .bases.lag_structures import LagStructure, MovingAverage, SingleDay
+from .bases.modifier import check_group_sizes, group_column_names, interact, modifier_codes
 from .bases.terms import Categorical, TermBlock
 from .engine.aliasing import aliased_columns, describe_aliased
 from .spec import ModelSpec
@@ -87,6 +89,9 @@ class Design:
     lag: Any = None  # the lag structure as fitted (an exposure-lag basis bound to the exposure), if it differs
     aliased: tuple[str, ...] = ()  # confounder columns left out: no support on the days used (aliasing)
     notes: tuple[str, ...] = ()  # plain-language notes for the result (why columns were aliased)
+    copollutant_correlations: tuple[float, ...] = ()  # exposure vs each co-pollutant on the days used
+    groups: tuple[Any, ...] = ()  # levels of the modifier, in the order of the per-level exposure columns
+    group_codes: np.ndarray | None = None  # level of each calendar day (index into groups) with a modifier
 
     @property
     def n_confounder_columns(self) -> int:
@@ -105,6 +110,7 @@ def column_roles(spec: ModelSpec) -> ColumnRoles:
         temperature=spec.temperature,
         humidity=spec.humidity,
         no_codes=(spec.offset,) if spec.offset else (),
+        copollutants=tuple(zip(spec.copollutants, spec.copollutant_units, strict=True)),
     )
 
 
@@ -403,20 +409,27 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     DataWarning
         When confounder columns are aliased: which, and the unusable days that hold them.
     """
+    calendar = pd.DatetimeIndex(frame[spec.date])
+    y = frame[spec.outcome].to_numpy(dtype=float, na_value=np.nan)
+    codes, groups = modifier_codes(frame, spec.modifier, calendar, np.isfinite(y)) if spec.modifier else (None, ())
+    if confounders is not None and _term_names(confounders) != tuple(t.name for t in spec.confounder_terms()):
+        confounders = None  # a block shared by specs with other terms (a co-pollutant at another lag): rebuild
     conf = confounders if confounders is not None else cached_confounders(frame, spec)
     raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
     # an exposure-response term (exposure_lag.ExposureLagBasis) learns its knots from the whole exposure series
     lag = spec.lag.bind(raw, spec.exposure) if hasattr(spec.lag, "bind") else spec.lag
     exposure = lag.columns(raw)
-    y = frame[spec.outcome].to_numpy(dtype=float, na_value=np.nan)
+    exposure_names = list(lag.column_names(spec.exposure))
+    if groups:
+        exposure = interact(exposure, codes, len(groups))
+        exposure_names = group_column_names(exposure_names, spec.modifier, groups)
     offset = None if spec.offset is None else frame[spec.offset].to_numpy(dtype=float, na_value=np.nan)
     used = usable_days(y, exposure, conf, offset)
     unused = np.flatnonzero(~used)
     reasons = np.full(len(frame), "", dtype=object)
     reasons[unused] = _drop_reasons(frame, spec, y, exposure, conf, offset, unused, raw)
-    calendar = pd.DatetimeIndex(frame[spec.date])
     dropped = pd.DataFrame({"date": calendar[unused], "reason": reasons[unused].astype(str)})
-    names = conf.column_names + tuple(lag.column_names(spec.exposure))
+    names = conf.column_names + tuple(exposure_names)
     p = len(names)
     n_used = int(used.sum())
     check_usable_days(
@@ -430,6 +443,7 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         too_few=lambda: _too_few_days_message(n_used, p, dropped, spec.lag),
         window_remedy=lag_window_remedy(spec.lag) if (reasons == EXPOSURE_IN_WINDOW).any() else "",
     )
+    correlations = _copollutant_checks(frame, spec, raw, used, calendar, y, codes, groups)
     matrix = np.empty((n_used, p), order="F")  # column-major: the engine's syrk is fastest on it
     k = conf.matrix.shape[1]
     _gather_rows(conf.matrix, used, matrix[:, :k])
@@ -455,4 +469,25 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         lag=None if lag is spec.lag else lag,
         aliased=tuple(conf.column_names[j] for j in aliased),
         notes=() if why is None else (why,),
+        copollutant_correlations=correlations,
+        groups=groups,
+        group_codes=codes,
     )
+
+
+def _term_names(block: ConfounderBlock) -> tuple[str, ...]:
+    return tuple(b.name for b in block.blocks[1:])
+
+
+def _copollutant_checks(
+    frame: pd.DataFrame, spec: ModelSpec, raw: np.ndarray, used: np.ndarray, calendar: pd.DatetimeIndex,
+    y: np.ndarray, codes: np.ndarray | None, groups: tuple[Any, ...],
+) -> tuple[float, ...]:  # fmt: skip
+    """Checks on the days used: the modifier's levels (days and events per level) and the co-pollutants'
+    collinearity with the exposure (:func:`~.bases.copollutant.copollutant_correlations`)."""
+    if groups:
+        check_group_sizes(y, used, codes, groups, spec.modifier, spec.outcome)
+    if not spec.copollutants:
+        return ()
+    series = [(c, frame[c].to_numpy(dtype=float, na_value=np.nan)) for c in spec.copollutants]
+    return copollutant_correlations(spec.exposure, raw, series, spec.lag, used, calendar)

@@ -140,6 +140,9 @@ def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
         notes=design.notes + glm.notes,
         design_matrix=design.matrix,
         hac_lags=hac_lags,
+        copollutant_correlations=design.copollutant_correlations,
+        groups=design.groups,
+        group_codes=design.group_codes[design.used] if design.groups else None,
     )
 
 

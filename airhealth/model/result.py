@@ -26,6 +26,7 @@ from .._choices import check_choice
 from ..errors import SpecificationError
 from .effects import relative_risk
 from .engine.variance import family_of
+from .group_effects import copollutant_effects, effects_by_group, extra_record, modification_test
 from .spec import ModelSpec
 
 __all__ = ["FitResult"]
@@ -113,12 +114,18 @@ class FitResult:
     hac_lags : int or None
         Truncation lag of the Newey–West covariance when ``spec.interval == "hac"`` (``cov`` is then that
         sandwich); ``None`` for the model-based covariance.
+    copollutant_correlations : tuple of float
+        Correlation of the exposure with each of ``spec.copollutants`` on the days used
+        (:mod:`airhealth.model.bases.copollutant`).
+    groups : tuple
+        Levels of ``spec.modifier`` (empty without a modifier); the exposure then has one term per level
+        (:meth:`effects_by_group`, :meth:`modification_test`).
     """
 
     __slots__ = (
-        "_bases", "_coef", "_cov", "_dropped", "_fitted", "_matrix", "_observed", "aliased", "converged",
-        "deviance", "df_resid", "dispersion", "exposure_columns", "exposure_iqr", "hac_lags", "loglik", "n_days",
-        "n_iter", "notes", "qaic", "spec", "theta",
+        "_bases", "_codes", "_coef", "_cov", "_dropped", "_fitted", "_matrix", "_observed", "aliased", "converged",
+        "copollutant_correlations", "deviance", "df_resid", "dispersion", "exposure_columns", "exposure_iqr",
+        "groups", "hac_lags", "loglik", "n_days", "n_iter", "notes", "qaic", "spec", "theta",
     )  # fmt: skip
 
     spec: ModelSpec
@@ -136,6 +143,8 @@ class FitResult:
     aliased: tuple[str, ...]
     notes: tuple[str, ...]
     hac_lags: int | None
+    copollutant_correlations: tuple[float, ...]
+    groups: tuple[Any, ...]
 
     def __init__(
         self,
@@ -161,6 +170,9 @@ class FitResult:
         notes: Sequence[str] = (),
         design_matrix: np.ndarray | None = None,
         hac_lags: int | None = None,
+        copollutant_correlations: Sequence[float] = (),
+        groups: Sequence[Any] = (),
+        group_codes: np.ndarray | None = None,
         *,
         _copy: bool = True,
     ) -> None:
@@ -175,6 +187,8 @@ class FitResult:
             ("exposure_iqr", exposure_iqr), ("converged", converged), ("n_iter", n_iter), ("theta", theta),
             ("_bases", MappingProxyType(dict(bases or {}))), ("aliased", tuple(aliased)), ("notes", tuple(notes)),
             ("_matrix", freeze(design_matrix)), ("hac_lags", hac_lags),
+            ("copollutant_correlations", tuple(float(r) for r in copollutant_correlations)),
+            ("groups", tuple(groups)), ("_codes", None if group_codes is None else np.array(group_codes, dtype=int)),
         ):  # fmt: skip
             put(self, name, value)
 
@@ -202,7 +216,9 @@ class FitResult:
             self.exposure_iqr, self.converged, self.n_iter, self.theta, dict(self._bases), self.aliased, self.notes,
         )  # fmt: skip
         # the design matrix and HAC lag go by keyword, so the positional arguments end with aliased, notes
-        return (partial(type(self), design_matrix=self._matrix, hac_lags=self.hac_lags), args)
+        extra = {"copollutant_correlations": self.copollutant_correlations, "groups": self.groups}
+        extra["group_codes"] = self._codes
+        return (partial(type(self), design_matrix=self._matrix, hac_lags=self.hac_lags, **extra), args)
 
     # -- what the result gives out: copies, or read-only ------------------------------------------
     @property
@@ -279,6 +295,12 @@ class FitResult:
         return pd.Series(np.sqrt(np.diag(self._cov.to_numpy())), index=self._coef.index.copy(), name="std_err")
 
     def _exposure_block(self) -> tuple[np.ndarray, np.ndarray]:
+        if self.groups:
+            raise SpecificationError(
+                f"the exposure effect of this fit differs by level of {self.spec.modifier!r} "
+                f"({', '.join(map(str, self.groups))}): use result.effects_by_group(per=10) and "
+                "result.modification_test()."
+            )
         at = self._coef.index.get_indexer(list(self.exposure_columns))  # positions: no label look-ups per call
         return self._coef.to_numpy()[at], self._cov.to_numpy()[np.ix_(at, at)]  # fancy indexing copies
 
@@ -360,23 +382,46 @@ class FitResult:
             )
         return pd.DataFrame(rows)
 
+    # -- co-pollutants and effect modification (model/group_effects.py) ---------------------------
+    def copollutant_effects(self, per: float = 10.0, level: float = 0.95) -> pd.DataFrame:
+        """Each co-pollutant's effect per ``per`` units, adjusted for the exposure, with its correlation
+        with the exposure on the days used (one row per co-pollutant; empty without co-pollutants)."""
+        return copollutant_effects(self, per=per, level=level)
+
+    def effects_by_group(self, per: float = 10.0, level: float = 0.95) -> pd.DataFrame:
+        """The exposure's effect in each level of the modifier (``group, coef, se, rr, rr_low, rr_high,
+        p_value, n_days, events``); for a distributed lag, the cumulative effect in each level."""
+        return effects_by_group(self, per=per, level=level)
+
+    def modification_test(self) -> pd.Series:
+        """Wald test of equal exposure effects across the modifier's levels (``statistic``, ``df``,
+        ``p_value``; chi-square on levels − 1 df with the fit's covariance, see
+        :mod:`airhealth.model.group_effects`)."""
+        return modification_test(self)
+
+    def _group_codes(self) -> np.ndarray:
+        return np.zeros(self.n_days, dtype=int) if self._codes is None else self._codes.copy()
+
     # -- views -------------------------------------------------------------------------------------
     def to_dict(self, per: float = 10.0, level: float = 0.95) -> dict[str, Any]:
-        """The JSON record of the command line: effect, fit statistics and, for distributed lags, per lag."""
-        e = self.effect(per=per, level=level)
+        """The JSON record of the command line: effect, fit statistics and, for distributed lags, per lag.
+
+        With co-pollutants it gains ``copollutants`` (one record per co-pollutant); with a modifier the
+        single-effect keys are None and it gains ``modifier``, ``groups`` and ``modification_test``.
+        """
+        keys = ("coef", "se", "rr", "rr_low", "rr_high", "percent_change", "p_value")
+        if self.groups:
+            e, effect = None, dict.fromkeys(keys)
+        else:
+            e = self.effect(per=per, level=level)
+            effect = {k: getattr(e, k) for k in keys}
         out: dict[str, Any] = {
             "outcome": self.spec.outcome,
             "exposure": self.spec.exposure,
             "lag": self.spec.lag.label,
-            "per": e.per,
+            "per": float(per) if e is None else e.per,
             "unit": self.spec.unit,
-            "coef": e.coef,
-            "se": e.se,
-            "rr": e.rr,
-            "rr_low": e.rr_low,
-            "rr_high": e.rr_high,
-            "percent_change": e.percent_change,
-            "p_value": e.p_value,
+            **effect,
             "dispersion": self.dispersion,
             "qaic": self.qaic,
             "exposure_iqr": self.exposure_iqr,
@@ -395,9 +440,10 @@ class FitResult:
             out["hac_lags"] = self.hac_lags
         if self.theta is not None:
             out["theta"] = self.theta
-        if self.spec.lag.is_distributed:
+        if self.spec.lag.is_distributed and not self.groups:
             out["lags"] = self.lag_effects(per=per, level=level).to_dict(orient="records")
             out["cumulative"] = {k: out[k] for k in ("coef", "se", "rr", "rr_low", "rr_high")}
+        out.update(extra_record(self, per, level))
         return out
 
     def summary(self, per: float = 10.0, level: float = 0.95) -> pd.DataFrame:
@@ -416,6 +462,12 @@ class FitResult:
                 f"({self.spec.family}): non-linear exposure-response, dispersion {self.dispersion:.3f}, "
                 f"{self.n_days} days>"
             )
+        if self.groups:
+            return (
+                f"<FitResult {self.spec.outcome} ~ {self.spec.exposure} lag {self.spec.lag.label} by "
+                f"{self.spec.modifier} ({', '.join(map(str, self.groups))}; {self.spec.family}): see "
+                f"effects_by_group(), dispersion {self.dispersion:.3f}, {self.n_days} days>"
+            )
         e = self.effect()
         return (
             f"<FitResult {self.spec.outcome} ~ {self.spec.exposure} lag {self.spec.lag.label} "
@@ -424,6 +476,10 @@ class FitResult:
         )
 
     def _repr_html_(self) -> str | None:
+        if self.groups:
+            from ..report.modification_section import group_effects_html
+
+            return group_effects_html(self)
         if getattr(self.spec.lag, "is_nonlinear", False):
             return None  # notebooks fall back to the text repr
         from ..report.tables import result_html

@@ -17,8 +17,9 @@ import numpy as np
 from .._choices import check_choice
 from ..errors import SpecificationError
 from ..prep.units import parse_unit
+from .bases.copollutant import CopollutantTerm, checked_copollutants
 from .bases.lag_structures import LagStructure, parse_lag
-from .bases.terms import DayOfWeek, FourierSeason, Linear, PublicHolidays, Spline, Term, TimeSpline
+from .bases.terms import Categorical, DayOfWeek, FourierSeason, Linear, PublicHolidays, Spline, Term, TimeSpline
 
 __all__ = ["DEFAULT_UNIT", "Family", "Interval", "ModelSpec", "Seasonality", "display_unit"]
 
@@ -158,6 +159,18 @@ class ModelSpec:
         covariance scaled by the dispersion (or the family's own covariance for Poisson and negative
         binomial); ``"hac"`` from the Newey–West (1987) sandwich on the GLM scores, robust to residual
         autocorrelation (:mod:`airhealth.model.engine.variance`; gaps are handled on the calendar).
+    copollutants : tuple of str
+        Other pollutant columns adjusted for, each at the same lag structure as the exposure (built with the
+        same lag basis, through the same guards: missing codes, plausibility for their unit). Their units
+        come from ``copollutant_units`` (one per co-pollutant; empty: µg/m³ for each) or, with
+        :meth:`from_options`, from ``units={"no2": "ppb"}``. See :mod:`airhealth.model.bases.copollutant`.
+    copollutant_units : tuple of str
+        Units of the co-pollutants, in their order (default: µg/m³ for each).
+    modifier : str or None
+        A categorical column (e.g. a warm/cold season from :func:`airhealth.season_column`, or an age
+        group) modifying the exposure effect: the model then has one exposure term per level of the
+        column (the exposure × stratum interaction) and the level's main effects as confounders
+        (:mod:`airhealth.model.group_effects`).
     hac_lags : int or None
         Truncation lag of the ``"hac"`` interval; ``None`` (default) uses ``floor(4 (n/100)^(2/9))`` for
         ``n`` days used (Newey & West 1994), about 9 for 14 years. Must be shorter than the series.
@@ -208,6 +221,9 @@ class ModelSpec:
     interval: Interval = "quasi-poisson"
     hac_lags: int | None = None
     date_format: str | None = None
+    copollutants: tuple[str, ...] = ()
+    copollutant_units: tuple[str, ...] = ()
+    modifier: str | None = None
 
     def __post_init__(self) -> None:
         for name in ("outcome", "exposure", "date"):
@@ -260,6 +276,33 @@ class ModelSpec:
         if self.exposure == self.outcome:
             raise SpecificationError(f"outcome and exposure are the same column, {self.outcome!r}.")
         self._check_roles()
+        self._check_copollutants_and_modifier()
+
+    def _check_copollutants_and_modifier(self) -> None:
+        """Co-pollutants: distinct columns other than the outcome and exposure; a linear lag structure."""
+        names, units = checked_copollutants(self.copollutants, self.copollutant_units, self.exposure, self.outcome)
+        object.__setattr__(self, "copollutants", names)
+        shown = tuple(display_unit(u) for u in units) if units else (DEFAULT_UNIT,) * len(names)
+        object.__setattr__(self, "copollutant_units", shown)
+        if names and getattr(self.lag, "is_nonlinear", False):
+            raise SpecificationError(
+                f"co-pollutants {list(names)} need a linear lag structure such as '0-1' or 'dl0-5'; the "
+                f"non-linear exposure-response term {self.lag.label!r} cannot be shared with them."
+            )
+        if self.modifier is not None:
+            if not isinstance(self.modifier, str) or not self.modifier:
+                raise SpecificationError(f"modifier must be a column name, got {self.modifier!r}.")
+            taken = {self.outcome: "outcome", self.exposure: "exposure", self.date: "date"}
+            taken.update({c: "a co-pollutant" for c in names})
+            if self.modifier in taken:
+                raise SpecificationError(
+                    f"modifier {self.modifier!r} is also the {taken[self.modifier]}; use a categorical column "
+                    "such as a season or an age group."
+                )
+            if getattr(self.lag, "is_nonlinear", False):
+                raise SpecificationError(
+                    f"a modifier needs a linear lag structure such as '0-1' or 'dl0-5', not {self.lag.label!r}."
+                )
 
     def _check_roles(self) -> None:
         """The exposure and outcome must not also enter the model as confounders."""
@@ -291,6 +334,10 @@ class ModelSpec:
                 raise SpecificationError("give the exposure's unit either as unit=... or in units=..., not both.")
             if options.get("exposure") in units:
                 options["unit"] = units[options["exposure"]]
+            given = options.get("copollutants") or ()
+            given = (given,) if isinstance(given, str) else tuple(given)
+            if any(c in units for c in given) and "copollutant_units" not in options:
+                options["copollutant_units"] = tuple(units.get(c, DEFAULT_UNIT) for c in given)
         valid = {f.name for f in dataclasses.fields(cls)}
         unknown = sorted(set(options) - valid)
         if unknown:
@@ -325,6 +372,9 @@ class ModelSpec:
         if self.holidays is not None:
             terms.append(PublicHolidays(self.holidays, self.holiday_subdivision))
         terms.extend(self.confounders)
+        terms.extend(CopollutantTerm(c, self.lag) for c in self.copollutants)
+        if self.modifier is not None:
+            terms.append(Categorical(self.modifier))
         return tuple(terms)
 
     def columns_used(self) -> tuple[str, ...]:

@@ -1,4 +1,4 @@
-"""Calendar variables: day of week, public holidays, and completion of a daily calendar."""
+"""Calendar variables: day of week, public holidays, warm/cold season, and completion of a daily calendar."""
 
 from __future__ import annotations
 
@@ -6,9 +6,9 @@ import numpy as np
 import pandas as pd
 
 from .._warn import warn_user
-from ..errors import DataError, DataWarning
+from ..errors import DataError, DataWarning, SpecificationError
 
-__all__ = ["complete_calendar", "day_of_week", "holiday_indicator"]
+__all__ = ["complete_calendar", "day_of_week", "holiday_indicator", "season_column"]
 
 WEEKDAY_NAMES = ("Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun")
 
@@ -72,3 +72,58 @@ def holiday_indicator(dates: pd.DatetimeIndex | pd.Series, country: str, subdivi
         ) from exc
     days = pd.DatetimeIndex(sorted(calendar.keys()))
     return idx.normalize().isin(days).astype(float)
+
+
+def season_column(
+    dates: pd.Series | pd.DatetimeIndex | pd.DataFrame, warm_months: tuple[int, ...] = (4, 5, 6, 7, 8, 9)
+) -> pd.Series:
+    """A categorical ``"warm"``/``"cold"`` season of each date, from the calendar months called warm.
+
+    The default warm season, April to September, suits the northern hemisphere (common practice, no
+    source); give ``warm_months=(10, 11, 12, 1, 2, 3)`` in the south, or your own months. Use it as an
+    effect modifier: ``airhealth.fit(data.assign(season=season_column(data["date"])), ...,
+    modifier="season")``.
+
+    Parameters
+    ----------
+    dates : Series or DatetimeIndex
+        Dates (or texts in ISO form); a Series keeps its index.
+    warm_months : tuple of int
+        Month numbers (1-12) of the warm season; at least one and not all twelve.
+
+    Returns
+    -------
+    Series
+        Named ``"season"``, categorical with categories ``["cold", "warm"]``.
+
+    Examples
+    --------
+    >>> season_column(pd.Series(pd.to_datetime(["2020-01-15", "2020-07-01"]))).tolist()
+    ['cold', 'warm']
+    """
+    if isinstance(dates, pd.DataFrame):
+        raise SpecificationError("season_column takes the date column, e.g. season_column(data['date']).")
+    months = _checked_months(warm_months)
+    index = dates.index if isinstance(dates, pd.Series) else pd.RangeIndex(len(dates))
+    try:
+        parsed = pd.DatetimeIndex(pd.to_datetime(pd.Series(np.asarray(dates)), format="ISO8601"))
+    except (ValueError, TypeError) as exc:
+        raise DataError(f"season_column needs dates (ISO text such as 2015-03-31 or datetimes): {exc}") from exc
+    if parsed.isna().any():
+        first = int(np.flatnonzero(parsed.isna())[0])
+        raise DataError(f"season_column: date missing at row {index[first]!r}; give every row a date.")
+    warm = np.isin(parsed.month, months)
+    values = pd.Categorical(np.where(warm, "warm", "cold"), categories=["cold", "warm"])
+    return pd.Series(values, index=index, name="season")
+
+
+def _checked_months(warm_months: object) -> list[int]:
+    given = [warm_months] if isinstance(warm_months, int) else list(warm_months)  # type: ignore[call-overload]
+    bad = [m for m in given if isinstance(m, bool) or not isinstance(m, int | np.integer) or not 1 <= m <= 12]
+    if bad:
+        raise SpecificationError(f"warm_months must be month numbers 1-12, got {bad[0]!r} in {given!r}.")
+    if not given or len(set(given)) == 12:
+        raise SpecificationError(
+            f"warm_months {given!r} must name some months but not all twelve (two seasons are needed)."
+        )
+    return sorted({int(m) for m in given})

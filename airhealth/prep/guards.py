@@ -12,7 +12,7 @@ remedy, or warns with :class:`~airhealth.errors.DataWarning`):
    text is named (:mod:`~airhealth.prep.missing_codes`);
 2. common sentinels (-999, 9999, ...) far outside their series are named;
 3. (the caller checks counts, infinite values and entirely missing columns);
-4. the exposure's level for its pollutant and unit, temperatures in °C, humidity in %
+4. the exposure's (and co-pollutants') level for its pollutant and unit, temperatures in °C, humidity in %
    (:mod:`~airhealth.prep.plausibility`);
 5. an outcome without events or variation, an exposure that never varies or is measured in one season only
    (:mod:`~airhealth.prep.degenerate`).
@@ -51,6 +51,8 @@ class ColumnRoles:
         read as temperature or humidity (``tmax``, ``rh``) are checked the same way.
     no_codes : tuple of str
         Numeric columns not searched for missing-value codes (e.g. an offset such as log population).
+    copollutants : tuple of (str, str)
+        Other pollutant columns and their units, checked for plausibility as the exposure is.
     """
 
     date: str
@@ -61,6 +63,7 @@ class ColumnRoles:
     temperature: str | None = None
     humidity: str | None = None
     no_codes: tuple[str, ...] = ()
+    copollutants: tuple[tuple[str, str], ...] = ()
 
     def temperatures(self) -> list[str]:
         named = [c for c in self.numeric if c not in (self.outcome, *self.no_codes) and _temperature_name(c)]
@@ -105,6 +108,8 @@ def check_values(frame: pd.DataFrame, roles: ColumnRoles, dates: pd.DatetimeInde
     dates = pd.DatetimeIndex(frame[roles.date]) if dates is None else dates
     exposure = _values(frame, roles.exposure)
     check_exposure_values(exposure, roles.exposure, roles.unit, dates)
+    for column, unit in roles.copollutants:
+        check_exposure_values(_values(frame, column), column, unit, dates)
     for column in roles.temperatures():
         check_temperature(_values(frame, column), column, dates)
     for column in roles.humidities():

@@ -68,6 +68,11 @@ def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any
     if isinstance(lags, str) or not lags:
         raise SpecificationError("compare needs a list of lag structures, e.g. lags=['0', '1', '0-1', 'dl0-5'].")
     specs = [ModelSpec.from_options(lag=lag, **model_options) for lag in lags]
+    if specs[0].modifier is not None:  # one effect per group, not per structure (model/group_effects.py)
+        raise SpecificationError(
+            f"compare reports one effect per lag structure, but modifier={specs[0].modifier!r} gives one per "
+            "group: fit each lag with airhealth.fit(..., modifier=...) and read effects_by_group()."
+        )
     deepest = max(specs, key=lambda s: s.lag.max_lag)
     with design_threads(len(data)):
         frame = model_frame(data, deepest)
