@@ -31,6 +31,7 @@ from .model.result import FitResult
 from .model.spec import ModelSpec
 from .prep.align import align_daily
 from .report.city_report import write_report
+from .report.export import export_table
 from .sample import load_sample, load_sample_tables
 from .studies.compare import compare
 from .studies.diagnostics import Diagnostics, diagnose
@@ -66,6 +67,7 @@ __all__ = [
     "align_daily",
     "compare",
     "diagnose",
+    "export_table",
     "exposure_response",
     "fit",
     "lag_response",
