@@ -1,8 +1,9 @@
 """Numbers as text by journal conventions (airhealth.report.numbers), against hand-written strings.
 
 Source of every expected string: common journal practice in epidemiology for relative risks, intervals,
-p-values and counts (common practice, no source); the decimals rule is the one documented in
-``airhealth/report/numbers.py`` and ``docs/output.md``.
+p-values and counts (common practice, no source), except "<0.001" for p below 0.001, as in the AMA Manual of
+Style, 10th ed. (2007), section 20.8 (which otherwise asks for two decimals; two significant digits are our
+choice). The decimals rule is the one documented in ``airhealth/report/numbers.py`` and ``docs/output.md``.
 """
 
 from __future__ import annotations

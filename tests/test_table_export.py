@@ -255,3 +255,28 @@ def test_export_leaves_the_callers_table_and_no_temporary_files(effects, tmp_pat
     export_table(effects, tmp_path, labels={"deaths_all": "All-cause deaths"})
     pd.testing.assert_frame_equal(effects, before)
     assert not [p.name for p in tmp_path.iterdir() if p.name.startswith(".")]
+
+
+# -- how other tables are shown ----------------------------------------------------------------------------
+
+
+def test_per_lag_effects_show_one_interval_column_and_explain_the_coefficient(tmp_path):
+    table = pd.DataFrame({
+        "lag_structure": ["dl0-5", "dl0-5"], "lag": [0, 1], "coef": [0.0002143, -0.0007548],
+        "se": [0.0005466, 0.0006409], "rr": [1.00215, 0.99248], "rr_low": [0.99146, 0.98010],
+        "rr_high": [1.01295, 1.00501],
+    })  # fmt: skip
+    paths = export_table(table, tmp_path, formats="md")
+    rows = read_markdown(paths["md"])
+    assert rows[0] == ["Lag structure", "Lag (days)", "Coefficient", "SE", "RR (95% CI)"]
+    assert rows[1] == ["dl0-5", "0", "0.0002143", "0.0005466", "1.002 (0.991 to 1.013)"]
+    text = paths["md"].read_text(encoding="utf-8")
+    assert "Coefficient: log relative risk per unit" in text and "SE: standard error" in text
+
+
+def test_dates_share_one_form_per_column_and_fractional_days_are_not_rounded(tmp_path):
+    table = pd.DataFrame({
+        "first_missing": pd.to_datetime(["2022-01-01 00:00", "2022-04-22 12:00"]), "days": [73.0, 0.5],
+    })  # fmt: skip
+    rows = read_markdown(export_table(table, tmp_path, formats="md")["md"])
+    assert rows[1:] == [["2022-01-01 00:00", "73"], ["2022-04-22 12:00", "0.5"]]

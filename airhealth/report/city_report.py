@@ -264,7 +264,7 @@ def _count_section(data: pd.DataFrame, outcomes: list[str]) -> Section:
     """The daily counts per outcome; small counts, and totals and means resting on them, are suppressed."""
     table = Table(
         "Daily counts per outcome",
-        count_summary(data, outcomes).round(2),
+        count_summary(data, outcomes),
         "daily_counts",
         count_columns=("min", "p25", "median", "p75", "max"),
         aggregate_columns=("total", "mean", "sd"),

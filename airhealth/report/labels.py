@@ -39,6 +39,20 @@ COLUMN_WORDS = {
     "median": "Median",
     "p75": "75th percentile",
     "max": "Maximum",
+    "p5": "5th percentile",
+    "p50": "Median",
+    "p95": "95th percentile",
+    "iqr": "IQR",
+    "variable": "Variable",
+    "monitor": "Monitor",
+    "hours": "Hours",
+    "first_missing": "First missing",
+    "last_missing": "Last missing",
+    "lag_structure": "Lag structure",
+    "coef": "Coefficient",
+    "se": "SE",
+    "error": "Error",
+    "warning": "Warning",
 }
 
 

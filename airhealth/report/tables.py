@@ -123,6 +123,13 @@ def format_effects(
     return out
 
 
+def _whole(values: pd.Series) -> bool:
+    """Every number in ``values`` is a whole number (text cells, such as suppression marks, are skipped)."""
+    numbers = pd.to_numeric(values.map(lambda v: v if isinstance(v, (int, float, np.number)) else np.nan))
+    finite = numbers[np.isfinite(numbers.astype(float))]
+    return bool((finite == finite.round()).all())
+
+
 def _formatter(name: str, values: pd.Series) -> Any:
     """The number formatter of a column, by its kind (p-values, coefficients, counts, other numbers)."""
     if name in P_COLUMNS:
@@ -131,14 +138,17 @@ def _formatter(name: str, values: pd.Series) -> Any:
         return lambda v: format_decimal(v, FIXED_DECIMALS[name])
     if name in COEF_COLUMNS:
         return format_coef
-    if name in COUNT_COLUMNS or pd.api.types.is_integer_dtype(values):
-        return format_count
+    if (name in COUNT_COLUMNS or pd.api.types.is_integer_dtype(values)) and _whole(values):
+        return format_count  # a "count" column holding fractions (days of a 12-hour gap) is not rounded
     return format_number
 
 
 def _format_column(name: str, values: pd.Series) -> pd.Series:
     """Numbers as text by the column's kind; text (suppression marks, labels) and booleans pass through."""
     number = _formatter(name, values)
+    stamps = values[values.map(lambda v: isinstance(v, pd.Timestamp) and not pd.isna(v))]
+    with_time = bool(len(stamps)) and bool((stamps != stamps.map(lambda v: v.normalize())).any())
+    stamp_format = "%Y-%m-%d %H:%M" if with_time else "%Y-%m-%d"  # one form for the whole column
 
     def one(v: Any) -> str:
         if v is None or isinstance(v, (str, bool, np.bool_)):
@@ -146,10 +156,25 @@ def _format_column(name: str, values: pd.Series) -> pd.Series:
         if isinstance(v, (int, float, np.integer, np.floating)):
             return number(v)
         if isinstance(v, pd.Timestamp) and not pd.isna(v):
-            return v.strftime("%Y-%m-%d" if v == v.normalize() else "%Y-%m-%d %H:%M")
+            return v.strftime(stamp_format)
         return "" if pd.isna(v) else str(v)
 
     return values.map(one).astype(object)
+
+
+def _with_intervals(table: pd.DataFrame, level: float, style: IntervalStyle) -> pd.DataFrame:
+    """A table with ``rr``, ``rr_low``, ``rr_high`` (per-lag effects, ...): the three shown as one column."""
+    places = rr_decimals(table["rr_low"], table["rr_high"])
+    shown = {}
+    for c in table.columns:
+        if c == "rr":
+            shown[f"RR ({level:.0%} CI)"] = [
+                format_rr(r, lo, hi, places, style)
+                for r, lo, hi in zip(table["rr"], table["rr_low"], table["rr_high"], strict=True)
+            ]
+        elif c not in ("rr_low", "rr_high"):
+            shown[c] = _format_column(str(c), table[c])
+    return pd.DataFrame(shown, index=table.index)
 
 
 def display_table(
@@ -163,17 +188,21 @@ def display_table(
     """The text view of any tidy table, as every display format (Markdown, HTML, LaTeX, Word) shows it.
 
     An effects table (columns ``rr``, ``rr_low``, ``rr_high``, ``p_value``) is shown by
-    :func:`format_effects`; in any other table each column is formatted by its kind (p-values, per-unit
-    coefficients, counts, other numbers; :mod:`airhealth.report.numbers`) and text passes through.
-    Outcome and exposure names and column headings get their display names (``words=True``: the
-    library's own column names read as words, e.g. ``n_days`` → "Days").
+    :func:`format_effects`; another table with ``rr``, ``rr_low`` and ``rr_high`` (per-lag effects) shows
+    them as one "RR (CI)" column; every other column is formatted by its kind (p-values, per-unit
+    coefficients, counts, fit statistics, other numbers; :mod:`airhealth.report.numbers`; dates in one
+    form per column) and text passes through. Outcome and exposure names and column headings get their
+    display names (``words=True``: the library's own column names read as words, e.g. ``n_days`` → "Days").
     """
-    if {"rr", "rr_low", "rr_high", "p_value"} <= set(table.columns):
+    columns = set(table.columns)
+    if {"rr", "rr_low", "rr_high", "p_value"} <= columns:
         shown = format_effects(table, level=level, style=style, labels=labels)
         if "days" in shown:
             shown["days"] = shown["days"].map(format_count)
-        return label_frame(shown, labels, words=words)
-    shown = pd.DataFrame({c: _format_column(str(c), table[c]) for c in table.columns}, index=table.index)
+    elif {"rr", "rr_low", "rr_high"} <= columns and len(table):
+        shown = _with_intervals(table, level, style)
+    else:
+        shown = pd.DataFrame({c: _format_column(str(c), table[c]) for c in table.columns}, index=table.index)
     return label_frame(shown, labels, words=words)
 
 
@@ -220,6 +249,8 @@ _ABBREVIATIONS = (
      "risk for an increase of one IQR."),
     ("p", "p: two-sided Wald test of no association."),
     ("SD", "SD: standard deviation."),
+    ("SE", "SE: standard error of the coefficient."),
+    ("Coefficient", "Coefficient: log relative risk per unit of exposure (per µg/m³, ppb, ... as stated)."),
     ("df", "df: degrees of freedom."),
     ("QAIC", "QAIC: quasi-Akaike information criterion; compare only models fitted on the same days."),
 )  # fmt: skip
