@@ -9,6 +9,7 @@ on the log scale, scaled). The reference fit is :func:`airhealth.fit`, checked a
 from __future__ import annotations
 
 import html
+import re
 from pathlib import Path
 
 import docx
@@ -54,7 +55,7 @@ def test_labels_are_shown_in_tables_page_and_figures_while_the_data_keep_the_nam
     full = pd.read_csv(report / "tables" / "effects_full.csv")
     assert set(full["outcome"]) == {"deaths_all"} and set(full["exposure"]) == {"pm25", "o3"}
     md = (report / "tables" / "effects.md").read_text(encoding="utf-8")
-    assert "| All-cause deaths <all> & 100% | Ozone (8-h) |" in md
+    assert "| All-cause deaths \\<all> & 100% | Ozone (8-h) |" in md  # "<" backslash-escaped in Markdown
     page = html.unescape((report / "index.html").read_text(encoding="utf-8"))
     assert "All-cause deaths <all> & 100%: relative risks per" in page  # the forest figure's caption
     raw = (report / "index.html").read_text(encoding="utf-8")
@@ -91,7 +92,10 @@ def test_suppressed_counts_read_the_same_in_every_format(report: Path) -> None:
     assert counts["min"].iloc[0] == "<20" == row["Minimum"]  # the fewest simulated daily deaths is 15
     assert row["Outcome"] == "All-cause deaths <all> & 100%"
     md = [line for line in (report / "tables" / "daily_counts.md").read_text("utf-8").splitlines() if "|" in line]
-    assert [c.strip() for c in md[2].split("|")[1:-1]] == [c.text for c in document.rows[1].cells]
+    unescaped = [re.sub(r"\\(.)", r"\1", c.strip()) for c in md[2].split(" | ")]  # CommonMark escapes
+    assert [unescaped[0].removeprefix("| "), *unescaped[1:-1], unescaped[-1].removesuffix(" |")] == [
+        c.text for c in document.rows[1].cells
+    ]
 
 
 def test_a_report_with_more_formats_replaces_an_earlier_one(city: pd.DataFrame, report: Path) -> None:
@@ -155,3 +159,14 @@ def test_cli_fit_prints_the_display_names(city_csv: Path, capsys) -> None:
         "--label", "deaths_all=All-cause deaths", "--label", "pm25=PM2.5",
     ])  # fmt: skip
     assert code == 0 and capsys.readouterr().out.startswith("All-cause deaths and PM2.5:")
+
+
+def test_no_number_in_any_shown_table_is_in_scientific_notation(report: Path) -> None:
+    exponent = re.compile(r"\d[eE][+-]?\d")
+    for path in (report / "tables").glob("*.md"):
+        assert not exponent.search(path.read_text(encoding="utf-8")), path.name
+    for path in (report / "tables").glob("*.docx"):
+        cells = [c.text for t in docx.Document(str(path)).tables for row in t.rows for c in row.cells]
+        assert not [c for c in cells if exponent.search(c)], path.name
+    page_tables = re.findall(r"<table.*?</table>", (report / "index.html").read_text("utf-8"), flags=re.S)
+    assert page_tables and not [t for t in page_tables if exponent.search(t)]

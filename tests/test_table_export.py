@@ -48,7 +48,7 @@ def effects() -> pd.DataFrame:
 def read_markdown(path: Path) -> list[list[str]]:
     rows = [line for line in path.read_text(encoding="utf-8").splitlines() if line.startswith("|")]
     cells = [[c.strip() for c in re.split(r"(?<!\\)\|", row)[1:-1]] for row in rows]
-    cells = [[c.replace("\\|", "|").replace("\\\\", "\\") for c in row] for row in cells]
+    cells = [[re.sub(r"\\(.)", r"\1", c) for c in row] for row in cells]  # CommonMark backslash escapes
     return [cells[0], *cells[2:]]  # header, then the rows after the alignment line
 
 
@@ -195,6 +195,14 @@ def test_markdown_escapes_the_pipe_and_keeps_one_line_per_row(tmp_path):
     table = pd.DataFrame({"name": ["left | right", "two\nlines"], "n": [1, 2]})
     text = export_table(table, tmp_path, formats="md")["md"].read_text(encoding="utf-8")
     assert "left \\| right" in text and "| two lines | 2 |" in text
+    assert read_markdown(tmp_path / "table.md")[1:] == [["left | right", "1"], ["two lines", "2"]]
+
+
+def test_markdown_escapes_markup_so_text_cannot_become_html_or_emphasis(tmp_path):
+    table = pd.DataFrame({"name": ["<b>bold</b>", "*star* _under_ `code` [link](x)"]})
+    text = export_table(table, tmp_path, formats="md", caption="A *caption*")["md"].read_text(encoding="utf-8")
+    assert "\\<b>bold\\</b>" in text and "\\*star\\* \\_under\\_ \\`code\\` \\[link\\](x)" in text
+    assert "**A \\*caption\\***" in text
 
 
 def test_the_word_file_opens_and_holds_the_table_with_its_caption(awkward, tmp_path):

@@ -11,6 +11,7 @@ is escaped for each format, every file is written atomically (:mod:`airhealth._i
 from __future__ import annotations
 
 import html
+import re
 from collections.abc import Iterable, Sequence
 from pathlib import Path
 from typing import Literal
@@ -57,8 +58,13 @@ def parse_formats(formats: str | Iterable[str]) -> tuple[str, ...]:
 # -- the display formats -----------------------------------------------------------------------------------
 
 
+_MARKDOWN_SPECIAL = re.compile(r"([\\|<*_`\[\]])")
+
+
 def _markdown_cell(text: object) -> str:
-    return " ".join(str(text).split()).replace("\\", "\\\\").replace("|", "\\|")
+    """One line of Markdown text: line breaks joined, and ``\\ | < * _ ` [ ]`` backslash-escaped so that a
+    cell can neither end its column nor become markup (CommonMark: any ASCII punctuation may be escaped)."""
+    return _MARKDOWN_SPECIAL.sub(r"\\\1", " ".join(str(text).split()))
 
 
 def _markdown(shown: pd.DataFrame, caption: str, notes: Sequence[str]) -> str:
@@ -79,7 +85,7 @@ def _html(shown: pd.DataFrame, caption: str, notes: Sequence[str]) -> str:
     styler = _styler(shown, "html")
     if caption:
         styler = styler.set_caption(html.escape(caption))
-    body = styler.to_html()
+    body = re.sub(r"<style type=\"text/css\">\s*</style>\s*", "", styler.to_html())  # Styler's empty block
     notes_html = "".join(f"<p class='note'>{html.escape(n)}</p>" for n in notes)
     style = (
         "body{font-family:system-ui,sans-serif}table{border-collapse:collapse}"
