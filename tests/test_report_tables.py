@@ -170,3 +170,11 @@ def test_no_number_in_any_shown_table_is_in_scientific_notation(report: Path) ->
         assert not [c for c in cells if exponent.search(c)], path.name
     page_tables = re.findall(r"<table.*?</table>", (report / "index.html").read_text("utf-8"), flags=re.S)
     assert page_tables and not [t for t in page_tables if exponent.search(t)]
+
+
+def test_the_page_explains_every_abbreviation_its_tables_use(report: Path) -> None:
+    page = html.unescape((report / "index.html").read_text(encoding="utf-8"))
+    for needed in ("SD: standard deviation.", "QAIC: quasi-Akaike information criterion", "RR: relative risk",
+                   "IQR: interquartile range", "'0-1' the mean over lags 0 to 1"):  # fmt: skip
+        assert needed in page
+    assert page.count("RR: relative risk") == 1  # once under the effects table, not repeated in its note

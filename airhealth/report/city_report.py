@@ -29,7 +29,7 @@ from .lag_plots import plot_lag_response
 from .plots import observed_fitted_figure, plain, plot_effects
 from .report_fits import ReportFits, ReportRequest, check_request, fit_request
 from .suppression import mask_small_numbers, smallest_positive
-from .tables import abbreviation_notes, effects_table, format_effects
+from .tables import effects_table, format_effects
 
 __all__ = [
     "ReportContent",
@@ -136,13 +136,12 @@ def _effects_tables(
 ) -> list[Any]:
     shown = format_effects(table, level=level, labels=labels)
     exposures = list(dict.fromkeys(table["exposure"]))
-    notes = [
+    note = (
         "Each row is a separate model for one outcome, exposure and lag. QAIC compares models fitted on the same "
-        "days only: rows with different day counts are not comparable.",
-        *abbreviation_notes(shown.columns, table["lag"]),
-    ]
+        "days only: rows with different day counts are not comparable."
+    )  # the writers add a note for each abbreviation and lag code (tables.table_notes)
     return [
-        Table(f"Relative risks per {_per_text(per, exposures, request)}", shown, "effects", note=" ".join(notes)),
+        Table(f"Relative risks per {_per_text(per, exposures, request)}", shown, "effects", note=note),
         Table("Estimates at full precision", table, "effects_full", display=False),
     ]
 
@@ -214,7 +213,9 @@ def _lag_blocks(results: list[Any], per: float, level: float) -> list[Any]:
         return []
     frames = [r.lag_effects(per=per, level=level).assign(lag_structure=r.spec.lag.label) for r in distributed]
     table = pd.concat(frames, ignore_index=True)[["lag_structure", "lag", "coef", "se", "rr", "rr_low", "rr_high"]]
-    blocks: list[Any] = [Table("Per-lag effects of the distributed lags", table, "lag_effects")]
+    spec = distributed[0].spec
+    title = f"Per-lag effects of the distributed lags of {spec.exposure} (RR per {per:g} {spec.unit})"
+    blocks: list[Any] = [Table(title, table, "lag_effects")]
     for r in distributed:
         ax = plot_lag_response(r, per=per, level=level)
         ax.set_ylabel(plain(f"RR per {per:g} {r.spec.unit}"))
@@ -274,10 +275,8 @@ def _count_section(data: pd.DataFrame, outcomes: list[str]) -> Section:
 
 
 def _effects(fits: ReportFits, per: float, level: float) -> pd.DataFrame:
-    """The effects table: one row per successful fit, with the exposure's unit beside ``per``."""
-    table = effects_table(fits.done, per=per, level=level, iqr=True)
-    table.insert(table.columns.get_loc("per") + 1, "unit", [r.spec.unit for r in fits.done])
-    return table
+    """The effects table: one row per successful fit, with the exposure's unit beside ``per`` and per IQR."""
+    return effects_table(fits.done, per=per, level=level, iqr=True)
 
 
 def _sections(

@@ -24,7 +24,7 @@ from ..errors import DataError
 from .labels import Labels
 from .numbers import IntervalStyle
 from .safe_names import file_in
-from .tables import abbreviation_notes, display_table
+from .tables import display_table, table_notes
 
 __all__ = ["TableFormat", "export_table", "latex_escape", "parse_formats"]
 
@@ -242,8 +242,7 @@ def export_table(
     view = view.astype(str) if len(view) else view
     if explain:
         lags = table["lag"].dropna().unique() if "lag" in table else ()
-        given = " ".join(notes)
-        notes += [n for n in abbreviation_notes(view.columns, lags) if n not in given]
+        notes = table_notes(" ".join(notes), view.columns, lags)
     writers = {
         "csv": lambda p: _io.write_text(p, table.to_csv(index=False), make_parents=False),
         "md": lambda p: _io.write_text(p, _markdown(view, caption, notes), make_parents=False),

@@ -23,7 +23,7 @@ from .export import TableFormat, export_table, parse_formats
 from .labels import Labels
 from .safe_names import file_in
 from .suppression import check_threshold, suppress_table, suppression_note
-from .tables import display_table
+from .tables import display_table, table_notes
 
 __all__ = ["write_html_report"]
 
@@ -79,8 +79,10 @@ def _table_html(
     )
     if not block.display:
         return f"<p class='note'>{_e(block.title)}: {_link(path, path.name)}</p>", frame
-    body = display_table(frame, labels).to_html(index=False, border=0, na_rep="", escape=True)
-    note = f"<p class='note'>{_e(block.note)}</p>" if block.note else ""
+    shown = display_table(frame, labels)
+    body = shown.to_html(index=False, border=0, na_rep="", escape=True)
+    notes = table_notes(block.note, shown.columns, frame["lag"].dropna().unique() if "lag" in frame else ())
+    note = "".join(f"<p class='note'>{_e(n)}</p>" for n in notes)
     return f"<h3>{_e(block.title)}</h3>{body}{note}<p class='note'>{_link(path, path.name)}</p>", frame
 
 

@@ -30,7 +30,7 @@ from .numbers import (
     rr_decimals,
 )
 
-__all__ = ["abbreviation_notes", "display_table", "effects_table", "format_effects", "result_html"]
+__all__ = ["abbreviation_notes", "display_table", "effects_table", "format_effects", "result_html", "table_notes"]
 
 EFFECT_COLUMNS = [c for c in SUMMARY_COLUMNS if c not in ("coef", "se")]
 IQR_COLUMNS = ["exposure_iqr", "rr_iqr", "rr_iqr_low", "rr_iqr_high"]
@@ -43,7 +43,7 @@ FIXED_DECIMALS = {"dispersion": 2, "qaic": 1}  # fit statistics: a fixed number 
 
 
 def effects_table(results: Iterable[Any], per: float = 10.0, level: float = 0.95, *, iqr: bool = False) -> pd.DataFrame:
-    """One row per fitted model: the effect per ``per`` units and fit statistics.
+    """One row per fitted model: the effect per ``per`` units of the exposure's ``unit`` and fit statistics.
 
     With ``iqr=True`` the effect per interquartile range of the exposure on the days each model used is
     added beside it: ``exposure_iqr``, ``rr_iqr``, ``rr_iqr_low``, ``rr_iqr_high``.
@@ -52,6 +52,8 @@ def effects_table(results: Iterable[Any], per: float = 10.0, level: float = 0.95
     frame = pd.DataFrame([r.to_dict(per=per, level=level) for r in results])
     cols = [c for c in [*EFFECT_COLUMNS, "coef", "se", "interval"] if c in frame.columns]
     out = frame[cols].copy()
+    if "per" in out and "unit" in frame:
+        out.insert(out.columns.get_loc("per") + 1, "unit", frame["unit"])
     if iqr and results:
         effects = [r.effect(scale="iqr", level=level) for r in results]
         out["exposure_iqr"] = [r.exposure_iqr for r in results]
@@ -239,6 +241,12 @@ def abbreviation_notes(columns: Iterable[object], lags: Iterable[object] = ()) -
         if any(lag.startswith("dl") for lag in lags):
             notes.append(_DL_NOTE)
     return notes
+
+
+def table_notes(note: str | None, columns: Iterable[object], lags: Iterable[object] = ()) -> list[str]:
+    """A table's notes: its own ``note``, then :func:`abbreviation_notes` not already said in it."""
+    given = [note] if note else []
+    return given + [n for n in abbreviation_notes(columns, lags) if n not in (note or "")]
 
 
 _ABBREVIATIONS = (
