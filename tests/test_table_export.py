@@ -288,3 +288,8 @@ def test_dates_share_one_form_per_column_and_fractional_days_are_not_rounded(tmp
     })  # fmt: skip
     rows = read_markdown(export_table(table, tmp_path, formats="md")["md"])
     assert rows[1:] == [["2022-01-01 00:00", "73"], ["2022-04-22 12:00", "0.5"]]
+
+
+def test_labels_that_give_two_columns_one_heading_are_refused(effects, tmp_path):
+    with pytest.raises(SpecificationError, match="two columns headed 'Name'; give the columns different labels"):
+        export_table(effects, tmp_path, formats="md", labels={"outcome": "Name", "exposure": "Name"})

@@ -20,7 +20,7 @@ import pandas as pd
 
 from .. import _io
 from .._choices import check_choice
-from ..errors import DataError
+from ..errors import DataError, SpecificationError
 from .labels import Labels
 from .numbers import IntervalStyle
 from .safe_names import file_in
@@ -240,6 +240,12 @@ def export_table(
         return {"csv": _io.write_text(paths["csv"], table.to_csv(index=False), make_parents=False)}
     view = display_table(table, labels, level=level, style=style) if shown is None else shown
     view = view.astype(str) if len(view) else view
+    repeated = list(dict.fromkeys(view.columns[view.columns.duplicated()]))
+    if repeated:
+        raise SpecificationError(
+            f"the table {caption or name!r} would show two columns headed {repeated[0]!r}; give the columns "
+            "different labels."
+        )
     if explain:
         lags = table["lag"].dropna().unique() if "lag" in table else ()
         notes = table_notes(" ".join(notes), view.columns, lags)
