@@ -72,7 +72,8 @@ def _markdown(shown: pd.DataFrame, caption: str, notes: Sequence[str]) -> str:
     lines.append("| " + " | ".join(_markdown_cell(c) for c in shown.columns) + " |")
     lines.append("|" + "|".join(":---" if i == 0 else "---:" for i in range(len(shown.columns))) + "|")
     lines += ["| " + " | ".join(_markdown_cell(v) for v in row) + " |" for row in shown.itertuples(index=False)]
-    lines += ["", *(_markdown_cell(n) for n in notes)] if notes else []
+    for note in notes:  # one paragraph each
+        lines += ["", _markdown_cell(note)]
     return "\n".join(lines) + "\n"
 
 

@@ -33,7 +33,6 @@ from .numbers import (
 __all__ = ["abbreviation_notes", "display_table", "effects_table", "format_effects", "result_html", "table_notes"]
 
 EFFECT_COLUMNS = [c for c in SUMMARY_COLUMNS if c not in ("coef", "se")]
-IQR_COLUMNS = ["exposure_iqr", "rr_iqr", "rr_iqr_low", "rr_iqr_high"]
 
 # Columns of the library's tables that hold counts (whole numbers) and per-unit coefficients.
 COUNT_COLUMNS = frozenset({"n_days", "days", "n_dropped", "total", "min", "max", "n", "events"})
