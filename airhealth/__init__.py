@@ -34,6 +34,7 @@ from .model.spec import ModelSpec
 from .prep.align import align_daily
 from .prep.calendar import season_column
 from .report.city_report import write_report
+from .report.export import export_table
 from .sample import load_sample, load_sample_tables
 from .studies.compare import compare
 from .studies.copollutants import copollutant_table
@@ -76,6 +77,7 @@ __all__ = [
     "compare",
     "copollutant_table",
     "diagnose",
+    "export_table",
     "exposure_response",
     "fit",
     "fit_outcomes",

@@ -300,6 +300,7 @@ def test_lag_structure_section(sample):
     from airhealth.model.bases.distributed_lags import SplineLag
     from airhealth.report.document import Figure, Table, Text
     from airhealth.report.lag_section import lag_structure_section
+    from airhealth.report.numbers import rr_decimals
 
     section = lag_structure_section(sample, "deaths_all", "pm25", temperature="temperature")
     assert section.title == "Lag structures"
@@ -331,6 +332,7 @@ def test_lag_structure_section(sample):
     text = " ".join(b.text for b in section.blocks if isinstance(b, Text))
     assert f"lowest at temperature {mmt.exposure:.1f} (the {mmt.percentile:.0f}th percentile" in text
     assert f"from {mmt.low:.1f} to {mmt.high:.1f}" in text
-    assert f"RR {effect.rr:.4f} per 10 ({effect.rr_low:.4f} to {effect.rr_high:.4f})" in text
+    places = rr_decimals(effect.rr_low, effect.rr_high)  # the report's rule for RR decimals (report/numbers.py)
+    assert f"RR per 10 {effect.rr:.{places}f} ({effect.rr_low:.{places}f} to {effect.rr_high:.{places}f})" in text
     assert "lowest at temperature 18." in text  # the simulator's truth is 19 °C (see the test above)
     assert f"against {mmt.exposure:.1f}" in figures["temperature_exposure_lag_surface"].title

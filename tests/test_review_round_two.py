@@ -77,9 +77,10 @@ def test_write_report_refuses_one_unit_for_several_exposures(two_years, tmp_path
 
 
 def test_large_totals_read_in_full_in_the_html_tables():
-    from airhealth.report.html import _number
+    from airhealth.report.numbers import format_number
 
-    assert _number(179300.0) == "179,300" and _number(1.0084) == "1.008" and _number(12.5) == "12.5"
+    assert format_number(179300.0) == "179,300" and format_number(1.0084) == "1.008"
+    assert format_number(12.5) == "12.5"
 
 
 def test_columns_on_several_levels_are_refused_with_the_way_to_flatten_them(two_years):

@@ -12,12 +12,14 @@ from typing import Any
 
 from .options import (
     add_copollutant_options,
+    add_label_option,
     add_model_options,
     add_reading_options,
     check_min_count,
     confidence_level,
     copollutant_options,
     model_options,
+    parse_labels,
     parse_units,
     read_daily,
     with_min_count,
@@ -37,6 +39,7 @@ def register(sub: Any) -> None:
     p.add_argument("--exposure", required=True, help="column of the daily pollutant level")
     p.add_argument("--lag", default="0-1", help='lag: "0", "2", "0-1", "dl0-5", "dl0-7:poly3", ... (default "0-1")')
     p.add_argument("--json", action="store_true", help="print the result as JSON")
+    add_label_option(p)
     add_model_options(p)
     add_copollutant_options(p)
     add_reading_options(p)
@@ -92,6 +95,7 @@ def run(args: argparse.Namespace) -> int:
     warning that explains an error (a calendar gap, say) is not lost.
     """
     level = confidence_level(args.confidence)
+    labels = parse_labels(args.label)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
@@ -103,6 +107,10 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(_clean(record), indent=2))
     else:
+        if labels:
+            from ..report.labels import display_name
+
+            print(f"{display_name(args.outcome, labels)} and {display_name(args.exposure, labels)}:")
         _print_text(result, args.per, level)
         print(
             f"dispersion {result.dispersion:.3f}, QAIC {result.qaic:.1f}, {result.n_days} days used, "

@@ -22,12 +22,14 @@ from .tables import check_numeric_columns, read_table
 
 __all__ = [
     "add_copollutant_options",
+    "add_label_option",
     "add_layout_options",
     "add_model_options",
     "add_reading_options",
     "confidence_level",
     "copollutant_options",
     "model_options",
+    "parse_labels",
     "parse_na_values",
     "parse_units",
     "read_daily",
@@ -190,6 +192,34 @@ def parse_units(items: Sequence[str], exposures: Sequence[str]) -> dict[str, str
             raise SpecificationError(f"--unit gives the unit of {column!r} twice.")
         units[column] = unit
     return units
+
+
+def add_label_option(p: argparse.ArgumentParser) -> None:
+    """``--label NAME=TEXT`` (repeatable): display names in tables and figures (``report``, ``demo``, ``fit``)."""
+    p.add_argument(
+        "--label",
+        action="append",
+        default=[],
+        metavar="NAME=TEXT",
+        help="display name of a column, outcome or exposure in tables and figures, e.g. --label "
+        'deaths_all="All-cause deaths" (repeat for each name)',
+    )
+
+
+def parse_labels(items: Sequence[str]) -> dict[str, str]:
+    """``--label NAME=TEXT`` (repeatable) → ``{name: text}``; quotes around the text are removed."""
+    labels: dict[str, str] = {}
+    for item in items:
+        name, sep, text = item.partition("=")
+        name, text = name.strip(), text.strip()
+        if len(text) >= 2 and text[0] == text[-1] and text[0] in "'\"":
+            text = text[1:-1].strip()
+        if not sep or not name or not text:
+            raise SpecificationError(f'--label {item!r}: write NAME=TEXT, e.g. --label deaths_all="All-cause deaths".')
+        if name in labels:
+            raise SpecificationError(f"--label gives the display name of {name!r} twice.")
+        labels[name] = text
+    return labels
 
 
 def confidence_level(text: str) -> float:

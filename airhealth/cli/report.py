@@ -17,11 +17,13 @@ import pandas as pd
 
 from ..errors import SpecificationError
 from .options import (
+    add_label_option,
     add_model_options,
     add_reading_options,
     check_min_count,
     confidence_level,
     model_options,
+    parse_labels,
     parse_units,
     read_daily,
     with_min_count,
@@ -44,6 +46,14 @@ def add_report_options(p: argparse.ArgumentParser) -> None:
         help="suppress health counts below N in the report's tables and figures (local disclosure rules)",
     )
     p.add_argument("--title", default=None, help="heading of the report")
+    p.add_argument(
+        "--table-formats",
+        default="csv",
+        metavar="LIST",
+        help="formats of every table under DIR/tables/, comma-separated from csv,md,html,tex,docx "
+        "(default csv; e.g. csv,md,tex,docx); the CSV keeps full precision",
+    )
+    add_label_option(p)
 
 
 def register(sub: Any) -> None:
@@ -82,20 +92,25 @@ def write_and_print(data: pd.DataFrame, args: argparse.Namespace, extra_sections
     Warnings are printed to stderr (with their command-line remedy) even when a later step fails.
     """
     from ..report.city_report import check_output_folder, report_content, write_content
+    from ..report.export import parse_formats
     from ..report.tables import format_effects
 
     check_output_folder(args.out)
+    formats = parse_formats(args.table_formats)
+    labels = parse_labels(args.label)
 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            content = report_content(data, show_progress=True, small_count_threshold=args.suppress_below, **report)
-            path = write_content(content, args.out, args.title, args.suppress_below, extra_sections)
+            content = report_content(
+                data, show_progress=True, small_count_threshold=args.suppress_below, labels=labels, **report
+            )
+            path = write_content(content, args.out, args.title, args.suppress_below, extra_sections, formats, labels)
         finally:
             for w in caught:
                 print(f"warning: {with_command_line_remedy(str(w.message))}", file=sys.stderr)
     with pd.option_context("display.width", 160, "display.max_rows", 500, "display.max_colwidth", 60):
-        print(format_effects(content.effects).to_string(index=False))
+        print(format_effects(content.effects, level=report.get("level", 0.95), labels=labels).to_string(index=False))
     for row in content.failures.itertuples():
         message = with_command_line_remedy(row.error)
         print(f"could not fit {row.outcome} and {row.exposure} (lag {row.lag}): {message}", file=sys.stderr)

@@ -22,7 +22,9 @@ from ..prep.missing_codes import apply_na_values
 from ..prep.validate import parse_dates
 from .data_quality_section import data_quality_section
 from .document import Figure, Section, Table, Text
+from .export import parse_formats
 from .html import write_html_report
+from .labels import Labels, check_labels, display_name
 from .lag_plots import plot_lag_response
 from .plots import observed_fitted_figure, plain, plot_effects
 from .report_fits import ReportFits, ReportRequest, check_request, fit_request
@@ -129,37 +131,40 @@ def _per_text(per: float, exposures: Sequence[str], request: ReportRequest) -> s
     return f"{per:g} {_unit_text(exposures, request)}"
 
 
-def _effects_tables(table: pd.DataFrame, per: float, level: float, request: ReportRequest) -> list[Any]:
-    shown = format_effects(table).rename(columns={"RR (95% CI)": f"RR ({level:.0%} CI)"})
-    shown.insert(3, "per", [f"{per:g} {request.unit_of(e)}" for e in table["exposure"]])
+def _effects_tables(
+    table: pd.DataFrame, per: float, level: float, request: ReportRequest, labels: Labels | None = None
+) -> list[Any]:
+    shown = format_effects(table, level=level, labels=labels)
     exposures = list(dict.fromkeys(table["exposure"]))
+    note = (
+        "Each row is a separate model for one outcome, exposure and lag. QAIC compares models fitted on the same "
+        "days only: rows with different day counts are not comparable."
+    )  # the writers add a note for each abbreviation and lag code (tables.table_notes)
     return [
-        Table(
-            f"Relative risks per {_per_text(per, exposures, request)}",
-            shown,
-            "effects",
-            note="Each row is a separate model for one outcome, exposure and lag. QAIC compares models fitted on "
-            "the same days only: rows with different day counts are not comparable.",
-        ),
+        Table(f"Relative risks per {_per_text(per, exposures, request)}", shown, "effects", note=note),
         Table("Estimates at full precision", table, "effects_full", display=False),
     ]
 
 
-def _forest_figures(table: pd.DataFrame, per: float, level: float, request: ReportRequest) -> list[Figure]:
-    """One forest plot per outcome, rows labelled by exposure (with its unit) and lag."""
+def _forest_figures(
+    table: pd.DataFrame, per: float, level: float, request: ReportRequest, labels: Labels | None = None
+) -> list[Figure]:
+    """One forest plot per outcome, rows labelled by exposure (with its unit) and lag (display names)."""
     figures = []
     for outcome, rows in table.groupby("outcome", sort=False):
         exposures = list(dict.fromkeys(rows["exposure"]))
         single = len({request.unit_of(e) for e in exposures}) == 1
-        labels = [
-            f"{r.exposure} · lag {r.lag}" + ("" if single else f" (per {per:g} {request.unit_of(r.exposure)})")
+        rows_text = [
+            f"{display_name(r.exposure, labels)} · lag {r.lag}"
+            + ("" if single else f" (per {per:g} {request.unit_of(r.exposure)})")
             for r in rows.itertuples()
         ]
         per_label = _per_text(per, exposures, request) if single else f"{per:g} units"
-        ax = plot_effects(rows, labels=labels, per_label=per_label)
+        ax = plot_effects(rows, labels=rows_text, per_label=per_label)
         ax.set_xlabel(plain(f"relative risk per {per_label} ({level:.0%} CI)"))
-        ax.set_title(plain(outcome))
-        title = f"{outcome}: relative risks per {_per_text(per, exposures, request)} with {level:.0%} intervals"
+        name = display_name(outcome, labels)
+        ax.set_title(plain(name))
+        title = f"{name}: relative risks per {_per_text(per, exposures, request)} with {level:.0%} intervals"
         figures.append(Figure(title, ax.figure, f"effects_forest_{outcome}"))
     return figures
 
@@ -208,7 +213,9 @@ def _lag_blocks(results: list[Any], per: float, level: float) -> list[Any]:
         return []
     frames = [r.lag_effects(per=per, level=level).assign(lag_structure=r.spec.lag.label) for r in distributed]
     table = pd.concat(frames, ignore_index=True)[["lag_structure", "lag", "coef", "se", "rr", "rr_low", "rr_high"]]
-    blocks: list[Any] = [Table("Per-lag effects of the distributed lags", table, "lag_effects")]
+    spec = distributed[0].spec
+    title = f"Per-lag effects of the distributed lags of {spec.exposure} (RR per {per:g} {spec.unit})"
+    blocks: list[Any] = [Table(title, table, "lag_effects")]
     for r in distributed:
         ax = plot_lag_response(r, per=per, level=level)
         ax.set_ylabel(plain(f"RR per {per:g} {r.spec.unit}"))
@@ -258,7 +265,7 @@ def _count_section(data: pd.DataFrame, outcomes: list[str]) -> Section:
     """The daily counts per outcome; small counts, and totals and means resting on them, are suppressed."""
     table = Table(
         "Daily counts per outcome",
-        count_summary(data, outcomes).round(2),
+        count_summary(data, outcomes),
         "daily_counts",
         count_columns=("min", "p25", "median", "p75", "max"),
         aggregate_columns=("total", "mean", "sd"),
@@ -268,10 +275,8 @@ def _count_section(data: pd.DataFrame, outcomes: list[str]) -> Section:
 
 
 def _effects(fits: ReportFits, per: float, level: float) -> pd.DataFrame:
-    """The effects table: one row per successful fit, with the exposure's unit beside ``per``."""
-    table = effects_table(fits.done, per=per, level=level)
-    table.insert(table.columns.get_loc("per") + 1, "unit", [r.spec.unit for r in fits.done])
-    return table
+    """The effects table: one row per successful fit, with the exposure's unit beside ``per`` and per IQR."""
+    return effects_table(fits.done, per=per, level=level, iqr=True)
 
 
 def _sections(
@@ -281,6 +286,7 @@ def _sections(
     table: pd.DataFrame,
     options: dict[str, Any],
     threshold: int | None,
+    labels: Labels | None = None,
 ) -> list[Section]:
     """Every section of the report, in order (``threshold``: the small-count threshold of the figures)."""
     per, level, main, done = request.per, request.level, fits.main, fits.done
@@ -293,7 +299,7 @@ def _sections(
         Section("Analyses", [Text(_asked_text(request, main)), Text(model_text)]),
         *_problem_sections(fits.failures, fits.warnings, request.outcomes, threshold),
         _count_section(data, outcomes),
-        Section("Effect estimates", [*_effects_tables(table, per, level, request), *_forest_figures(table, per, level, request)]),  # noqa: E501
+        Section("Effect estimates", [*_effects_tables(table, per, level, request, labels), *_forest_figures(table, per, level, request, labels)]),  # noqa: E501
         Section("Main model", [*_main_blocks(main, fits.main_note, threshold, done), *_lag_blocks(main_pair, per, level)]),  # noqa: E501
         data_quality_section(
             data, [*exposures, *weather], exposures=exposures, date=options.get("date", "date"),
@@ -327,13 +333,15 @@ def report_content(
     level: float = 0.95,
     show_progress: bool = False,
     small_count_threshold: int | None = None,
+    labels: Labels | None = None,
     **model_options: Any,
 ) -> ReportContent:
     """Fit and build the report's sections without writing anything; see :func:`write_report`.
 
     ``small_count_threshold`` decides what the figures of daily counts show (the tables are suppressed when
-    written); give the writer the same threshold.
+    written); give the writer the same threshold. ``labels``: display names (see :func:`write_report`).
     """
+    labels = check_labels(labels)
     columns = [model_options.get(k) for k in ("date", "temperature", "humidity", "offset")]
     columns[0] = columns[0] or "date"
     request = check_request(
@@ -345,7 +353,7 @@ def report_content(
     fits = fit_request(data, request, show_progress=show_progress, **model_options)
     effects = _effects(fits, request.per, request.level)
     described = _with_codes_missing(data, fits, model_options)
-    sections = _sections(described, request, fits, effects, model_options, small_count_threshold)
+    sections = _sections(described, request, fits, effects, model_options, small_count_threshold, labels)
     return ReportContent(sections, effects, fits.failures, fits.warnings, fits.main)
 
 
@@ -371,6 +379,8 @@ def write_report(
     title: str | None = None,
     show_progress: bool = False,
     extra_sections: Sequence[Section] = (),
+    labels: Labels | None = None,
+    table_formats: str | Sequence[str] = ("csv",),
     **model_options: Any,
 ) -> Path:
     """Fit the outcomes × exposures × lag structures asked for and write an HTML report of them.
@@ -385,7 +395,7 @@ def write_report(
         Lag structures (``"0"``, ``"0-1"``, ``"dl0-5"``, ``"dl0-21:spline4"`` or objects such as
         ``MovingAverage(0, 3, min_count=2)``).
     out : path
-        Output folder: ``index.html``, ``tables/*.csv``, ``figures/*.png``.
+        Output folder: ``index.html``, ``tables/*.csv`` (and the other ``table_formats``), ``figures/*.png``.
     main_lag : str or LagStructure, optional
         The lag of the main model (default: the first of ``lags``). The main model is the first outcome and
         the first exposure at this lag: its fit is shown against the data, with its dropped days, its aliased
@@ -405,6 +415,12 @@ def write_report(
         Report progress on stderr.
     extra_sections : sequence of Section
         Further sections appended to the report (the demo's hourly monitoring data).
+    labels : mapping, optional
+        Display names of outcomes, exposures and columns in the tables and figures, e.g.
+        ``{"deaths_all": "All-cause deaths"}``; the data and the full-precision CSV keep the names.
+    table_formats : str or sequence of {"csv", "md", "html", "tex", "docx"}
+        Formats of every table under ``out/tables/`` (the CSV is always written), e.g. ``"csv,md,tex,docx"``;
+        see :func:`airhealth.report.export.export_table`.
     **model_options
         Any :class:`~airhealth.model.spec.ModelSpec` option (``temperature``, ``trend_df_per_year``,
         ``humidity``, ``family``, ``na_values``, ...).
@@ -433,11 +449,13 @@ def write_report(
     """
     check_request(data, outcomes, exposures, lags, main_lag, units, per, level, small_count_threshold)
     check_output_folder(out)
+    check_labels(labels)
+    formats = parse_formats(table_formats)
     content = report_content(
         data, outcomes, exposures, lags, main_lag=main_lag, units=units, per=per, level=level,
-        show_progress=show_progress, small_count_threshold=small_count_threshold, **model_options,
+        show_progress=show_progress, small_count_threshold=small_count_threshold, labels=labels, **model_options,
     )  # fmt: skip
-    return write_content(content, out, title, small_count_threshold, extra_sections)
+    return write_content(content, out, title, small_count_threshold, extra_sections, formats, labels)
 
 
 def write_content(
@@ -446,10 +464,13 @@ def write_content(
     title: str | None = None,
     small_count_threshold: int | None = None,
     extra_sections: Sequence[Section] = (),
+    table_formats: str | Sequence[str] = ("csv",),
+    labels: Labels | None = None,
 ) -> Path:
     """Write built report content as HTML (see :func:`write_report`)."""
-    outcomes = ", ".join(dict.fromkeys(content.effects["outcome"]))
+    outcomes = ", ".join(display_name(o, labels) for o in dict.fromkeys(content.effects["outcome"]))
     heading = title or f"Short-term effects of air pollution on daily {outcomes}"
     return write_html_report(
-        [*content.sections, *extra_sections], out, title=heading, small_count_threshold=small_count_threshold
-    )
+        [*content.sections, *extra_sections], out, title=heading, small_count_threshold=small_count_threshold,
+        table_formats=table_formats, labels=labels,
+    )  # fmt: skip

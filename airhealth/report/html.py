@@ -13,13 +13,17 @@ import datetime as _dt
 import html
 from collections.abc import Sequence
 from pathlib import Path
+from typing import get_args
 
 import pandas as pd
 
 from .. import _io
 from .document import CAUTION, Figure, Section, Table, Text
+from .export import TableFormat, export_table, parse_formats
+from .labels import Labels
 from .safe_names import file_in
 from .suppression import check_threshold, suppress_table, suppression_note
+from .tables import display_table, table_notes
 
 __all__ = ["write_html_report"]
 
@@ -63,14 +67,9 @@ def _link(path: Path, text: str) -> str:
     return f"<a href='{_e(href)}'>{_e(text)}</a>"
 
 
-def _number(value: float) -> str:
-    """A table number for reading: large values in full with thousands separators (never 1.793e+05)."""
-    if abs(value) >= 1e4:
-        return f"{value:,.0f}"
-    return f"{value:.4g}"
-
-
-def _table_html(block: Table, threshold: int | None, path: Path) -> tuple[str, pd.DataFrame]:
+def _table_html(
+    block: Table, threshold: int | None, path: Path, labels: Labels | None = None
+) -> tuple[str, pd.DataFrame]:
     frame = suppress_table(
         block.frame,
         threshold,
@@ -80,8 +79,10 @@ def _table_html(block: Table, threshold: int | None, path: Path) -> tuple[str, p
     )
     if not block.display:
         return f"<p class='note'>{_e(block.title)}: {_link(path, path.name)}</p>", frame
-    body = frame.to_html(index=False, border=0, na_rep="", float_format=_number, escape=True)
-    note = f"<p class='note'>{_e(block.note)}</p>" if block.note else ""
+    shown = display_table(frame, labels)
+    body = shown.to_html(index=False, border=0, na_rep="", escape=True)
+    notes = table_notes(block.note, shown.columns, frame["lag"].dropna().unique() if "lag" in frame else ())
+    note = "".join(f"<p class='note'>{_e(n)}</p>" for n in notes)
     return f"<h3>{_e(block.title)}</h3>{body}{note}<p class='note'>{_link(path, path.name)}</p>", frame
 
 
@@ -96,7 +97,7 @@ def _figure_html(block: Figure, path: Path) -> str:
 
 
 _LEFT_BY_FILE_BROWSERS = frozenset({".DS_Store", "Thumbs.db", "desktop.ini"})
-_REPORT_PARTS = {"tables": ".csv", "figures": ".png"}
+_REPORT_PARTS = {"tables": tuple(f".{f}" for f in get_args(TableFormat)), "figures": (".png",)}
 
 
 def _not_from_a_report(folder: Path) -> list[str]:
@@ -117,7 +118,24 @@ def _not_from_a_report(folder: Path) -> list[str]:
     return foreign
 
 
-def _page(sections: Sequence[Section], out: Path, title: str, threshold: int | None, subtitle: str) -> str:
+def _write_table(
+    block: Table, shown: pd.DataFrame, path: Path, formats: Sequence[str], labels: Labels | None = None
+) -> None:
+    """The table's CSV (as shown, after suppression) and its other requested formats beside it."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    notes = [block.note] if block.note else []
+    export_table(shown, path, ["csv", *formats], caption=block.title, notes=notes, labels=labels)
+
+
+def _page(
+    sections: Sequence[Section],
+    out: Path,
+    title: str,
+    threshold: int | None,
+    subtitle: str,
+    table_formats: Sequence[str] = (),
+    labels: Labels | None = None,
+) -> str:
     caution = f"<p class='caution'><strong>Caution.</strong> {_e(CAUTION)}</p>"
     parts = [f"<h1>{_e(title)}</h1>"]
     if subtitle:
@@ -133,8 +151,8 @@ def _page(sections: Sequence[Section], out: Path, title: str, threshold: int | N
                 parts.append(f"<p>{_e(block.text)}</p>")
             elif isinstance(block, Table):
                 path = tables.take(block.name, ".csv")
-                markup, shown = _table_html(block, threshold, path)
-                _io.write_text(path, shown.to_csv(index=False))
+                markup, shown = _table_html(block, threshold, path, labels)
+                _write_table(block, shown, path, table_formats, labels)
                 parts.append(markup)
             elif isinstance(block, Figure):
                 parts.append(_figure_html(block, figures.take(block.name, ".png")))
@@ -156,6 +174,8 @@ def write_html_report(
     title: str = "airhealth report",
     small_count_threshold: int | None = None,
     subtitle: str = "",
+    table_formats: str | Sequence[str] = ("csv",),
+    labels: Labels | None = None,
 ) -> Path:
     """Write ``index.html`` with every section, plus ``tables/*.csv`` and ``figures/*.png``.
 
@@ -178,6 +198,12 @@ def write_html_report(
         Health counts in the tables are suppressed below this threshold in the page and the CSV files
         (rules: :mod:`airhealth.report.suppression`). ``None`` disables suppression. Figures are drawn by
         the section builders, which apply the same rules with the same threshold.
+    table_formats : str or sequence of {"csv", "md", "html", "tex", "docx"}
+        Formats of every table under ``tables/`` (``"csv,md,tex,docx"`` or a list; the CSV is always
+        written): :func:`~airhealth.report.export.export_table`.
+    labels : mapping, optional
+        Display names of columns, outcomes and exposures in the page and the display formats (the CSV
+        files keep the names): :func:`~airhealth.report.labels.display_name`.
 
     Returns
     -------
@@ -185,7 +211,8 @@ def write_html_report(
         The path of ``index.html``.
     """
     check_threshold(small_count_threshold)
+    formats = parse_formats(table_formats)
     with _io.atomic_directory(out_dir, foreign_entries=_not_from_a_report) as tmp:
-        page = _page(sections, tmp, title, small_count_threshold, subtitle)
+        page = _page(sections, tmp, title, small_count_threshold, subtitle, formats, labels)
         _io.write_text(tmp / "index.html", page)
     return Path(out_dir) / "index.html"

@@ -26,6 +26,7 @@ from ..model.lag_predictions import minimum_risk_exposure
 from ..studies.compare import compare_results
 from .document import Figure, Section, Table, Text
 from .lag_plots import plot_exposure_lag_surface, plot_exposure_response, plot_lag_response
+from .numbers import format_rr
 from .tables import effects_table, format_effects
 
 __all__ = ["lag_structure_section"]
@@ -75,8 +76,8 @@ def _temperature_blocks(
             f"{mmt.exposure:.1f} (the {mmt.percentile:.0f}th percentile of days); from {mmt.low:.1f} to "
             f"{mmt.high:.1f} the risk is not significantly above that minimum (pointwise {mmt.level:.0%} tests; "
             "a descriptive band, not an interval for the minimum itself). With this temperature "
-            f"control the {exposure} effect (lag {result.spec.lag.label}) is RR {effect.rr:.4f} per 10 "
-            f"({effect.rr_low:.4f} to {effect.rr_high:.4f})."
+            f"control the {exposure} effect (lag {result.spec.lag.label}) is RR per 10 "
+            f"{format_rr(effect.rr, effect.rr_low, effect.rr_high)}."
         ),
         Figure(
             f"{term.column}: cumulative relative risk over lags {term.exposure_lag_basis.lag.label} against the "
