@@ -118,3 +118,16 @@ def test_the_callers_frame_is_unchanged(four_years):
     before = four_years.copy()
     quiet(lambda: compare(four_years, ["0", "0-1"], trend_df_per_year=[4, 6], **OPTIONS))
     pd.testing.assert_frame_equal(four_years, before)
+
+
+def _always_fallback(base, E, rows, *, fallback, **kwargs):
+    from airhealth.model.engine.grid_inference import exposure_block
+
+    fit = fallback()
+    return exposure_block(fit, fit.n_params - len(base.coef))
+
+
+def test_a_model_the_shared_work_leaves_gets_its_single_fit_on_the_common_days(four_years, monkeypatch):
+    monkeypatch.setattr(compare_module, "fit_exposure_only", _always_fallback)  # every model falls back
+    table = quiet(lambda: compare(four_years, LAGS, trend_df_per_year=DFS, **OPTIONS))
+    assert_rows_equal_single_fits(table, on_days(four_years, common_days_of(four_years, LAGS)))

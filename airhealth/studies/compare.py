@@ -73,10 +73,21 @@ class _Grid:
     confounders: ConfounderBlock
     designs: list[Design]
     shared: bool  # whether the shared-work path applies
+    #: With common days on the shared path: the unrestricted designs, from which a structure's restricted
+    #: design (matrix included) is made only if its single fit is needed (``designs`` then hold the
+    #: restricted days, response and reasons but the unrestricted matrix, which the shared path never reads).
+    originals: list[Design] | None = None
+    keep: np.ndarray | None = None
 
     def threads(self):
         """The BLAS thread policy for the widest design of the comparison."""
         return fitting_threads(len(self.frame), max(d.matrix.shape[1] for d in self.designs))
+
+    def fitting_design(self, i: int) -> Design:
+        """Structure ``i``'s design as its single fit uses it (restricted, matrix included)."""
+        if self.originals is None:
+            return self.designs[i]
+        return _restrict(self.originals[i], self.keep)
 
 
 def _check_lags(lags: Sequence[Any]) -> None:
@@ -120,7 +131,10 @@ def _restricted(grid: _Grid, keep: np.ndarray) -> _Grid:
                 f"lag {spec.lag.label} with trend_df_per_year={spec.trend_df_per_year:g} cannot use all of the "
                 "common days; use common_days=False."
             )
-    return dataclasses.replace(grid, designs=[_restrict(d, keep) for d in grid.designs])
+    if not grid.shared:
+        return dataclasses.replace(grid, designs=[_restrict(d, keep) for d in grid.designs])
+    light = [_restrict(d, keep, matrix=False) for d in grid.designs]
+    return dataclasses.replace(grid, designs=light, originals=grid.designs, keep=keep)
 
 
 def _common(masks: list[np.ndarray], designs: list[Design]) -> np.ndarray:
@@ -160,12 +174,13 @@ def _confounder_fit(grid: _Grid) -> tuple[ConfounderFit, np.ndarray] | None:
     return (base, rows) if base.fit.converged else None
 
 
-def _exposure_fit(grid: _Grid, shared, spec: ModelSpec, design: Design) -> ExposureFit:
-    """The exposure block of one structure: the shared work when it applies, else the single fit's."""
+def _exposure_fit(grid: _Grid, shared, i: int) -> ExposureFit:
+    """The exposure block of structure ``i``: the shared work when it applies, else the single fit's."""
+    spec, design = grid.specs[i], grid.designs[i]
     k = design.matrix.shape[1] - design.n_confounder_columns
 
     def single() -> GLMFit:
-        return fit_design(design, spec)
+        return fit_design(grid.fitting_design(i), spec)
 
     same_columns = design.column_names[: design.n_confounder_columns] == grid.confounders.column_names
     if shared is None or not same_columns:  # e.g. columns aliased for this structure's days
@@ -200,15 +215,22 @@ def _result_row(result: FitResult, per: float, level: float) -> dict[str, Any]:
     return row
 
 
-def _restrict(design: Design, keep: np.ndarray) -> Design:
-    """The design restricted to the calendar days ``keep`` (a subset of ``design.used``)."""
+def _restrict(design: Design, keep: np.ndarray, matrix: bool = True) -> Design:
+    """The design restricted to the calendar days ``keep`` (a subset of ``design.used``).
+
+    ``matrix=False``: the matrix is left unrestricted and the days left out for not being common are not
+    added to ``dropped`` (what :func:`warn_if_suspicious` counts there are the exposure reasons alone): the
+    cheap bookkeeping copy of the shared path, never fitted (see :meth:`_Grid.fitting_design`).
+    """
     inside = keep[design.used]
+    offset = None if design.offset is None else design.offset[inside]
+    if not matrix:
+        return dataclasses.replace(design, response=design.response[inside], offset=offset, used=keep)
     newly = design.used & ~keep
     extra = pd.DataFrame({"date": design.calendar[newly], "reason": NOT_COMMON})
     dropped = pd.concat([design.dropped, extra], ignore_index=True).sort_values("date", kind="stable")
     return dataclasses.replace(
-        design, matrix=design.matrix[inside], response=design.response[inside],
-        offset=None if design.offset is None else design.offset[inside], used=keep,
+        design, matrix=design.matrix[inside], response=design.response[inside], offset=offset, used=keep,
         dropped=dropped.reset_index(drop=True),
     )  # fmt: skip
 
@@ -232,10 +254,10 @@ def compare_results(
 
 def _full_results(grid: _Grid, show_progress: bool) -> list[FitResult]:
     """Each structure's single fit, as :func:`airhealth.fit` does it (same checks, same warnings)."""
-    pairs = list(zip(grid.specs, grid.designs, strict=True))
     results = []
     with grid.threads():
-        for spec, design in progress(pairs, label="lag structures", enabled=show_progress):
+        for i in progress(range(len(grid.specs)), label="lag structures", enabled=show_progress):
+            spec, design = grid.specs[i], grid.fitting_design(i)
             glm = fit_design(design, spec)
             warn_if_suspicious(design, spec, glm.dispersion)
             results.append(result_from_fit(design, spec, glm))
@@ -369,11 +391,12 @@ def _fit_row(grid: _Grid, shared, i: int, per: float, level: float) -> dict[str,
     spec, design = grid.specs[i], grid.designs[i]
     with grid.threads():
         if not grid.shared:
+            design = grid.fitting_design(i)
             glm = fit_design(design, spec)
             warn_if_suspicious(design, spec, glm.dispersion)
             row = _result_row(result_from_fit(design, spec, glm), per, level)
         else:
-            fit = _exposure_fit(grid, shared, spec, design)
+            fit = _exposure_fit(grid, shared, i)
             warn_if_suspicious(design, spec, fit.dispersion)
             row = _row(spec, fit, design, per, level)
     dates = design.calendar[design.used]
