@@ -131,3 +131,13 @@ def test_a_model_the_shared_work_leaves_gets_its_single_fit_on_the_common_days(f
     monkeypatch.setattr(compare_module, "fit_exposure_only", _always_fallback)  # every model falls back
     table = quiet(lambda: compare(four_years, LAGS, trend_df_per_year=DFS, **OPTIONS))
     assert_rows_equal_single_fits(table, on_days(four_years, common_days_of(four_years, LAGS)))
+
+
+def test_progress_counts_every_model(four_years, monkeypatch):
+    import io
+
+    stream = io.StringIO()
+    real = compare_module.progress
+    monkeypatch.setattr(compare_module, "progress", lambda *a, **k: real(*a, **{**k, "stream": stream}))
+    quiet(lambda: compare(four_years, ["0", "1"], trend_df_per_year=[4, 6, 8], show_progress=True, **OPTIONS))
+    assert "models 6/6" in stream.getvalue()

@@ -75,7 +75,8 @@ class _Grid:
     shared: bool  # whether the shared-work path applies
     #: With common days on the shared path: the unrestricted designs, from which a structure's restricted
     #: design (matrix included) is made only if its single fit is needed (``designs`` then hold the
-    #: restricted days, response and reasons but the unrestricted matrix, which the shared path never reads).
+    #: restricted days and response but the unrestricted matrix and reasons, which the shared path never
+    #: fits with; see :func:`_restrict`).
     originals: list[Design] | None = None
     keep: np.ndarray | None = None
 
