@@ -18,9 +18,9 @@ import pytest
 
 import airhealth
 from airhealth._threads import worker_initializer
-from airhealth.errors import SpecificationError
+from airhealth.errors import DataWarning, SpecificationError
 from airhealth.studies import compare as compare_module
-from airhealth.studies.compare import COMPARE_COLUMNS, compare, compare_results
+from airhealth.studies.compare import COMPARE_COLUMNS, TABLE_COLUMNS, compare, compare_results
 from airhealth.studies.sweep import sweep
 
 RTOL = 1e-8
@@ -55,8 +55,9 @@ def test_compare_rows_equal_single_fits(short_sample, monkeypatch):
     calls = []
     original = compare_module.fit_design
     monkeypatch.setattr(compare_module, "fit_design", lambda *a, **k: calls.append(1) or original(*a, **k))
-    table = compare(short_sample, LAGS, **OPTIONS)
-    assert list(table.columns) == COMPARE_COLUMNS and list(table["lag"]) == LAGS
+    with pytest.warns(DataWarning, match="QAIC values .* are not comparable"):
+        table = compare(short_sample, LAGS, common_days=False, **OPTIONS)
+    assert list(table.columns) == TABLE_COLUMNS and list(table["lag"]) == LAGS
     assert calls == []  # every structure took the shared-work path
     for row, lag in zip(table.to_dict(orient="records"), LAGS, strict=True):
         assert_row_equals(row, single(short_sample, lag))
@@ -94,7 +95,8 @@ def test_common_days_fit_every_structure_on_the_same_days(short_sample):
 
 
 def test_negative_binomial_uses_the_plain_path_and_equals_single_fits(short_sample):
-    table = compare(short_sample, ["0", "0-1"], family="negbin", **OPTIONS)
+    with pytest.warns(DataWarning, match="different days"):
+        table = compare(short_sample, ["0", "0-1"], family="negbin", common_days=False, **OPTIONS)
     for row, lag in zip(table.to_dict(orient="records"), ["0", "0-1"], strict=True):
         assert_row_equals(row, single(short_sample, lag, family="negbin"))
 
