@@ -99,7 +99,6 @@ HOUSE_RC: Mapping[str, Any] = {
     "font.size": 9.0,
     "axes.titlesize": 9.5,
     "axes.titleweight": "bold",
-    "axes.titlelocation": "left",
     "axes.labelsize": 9.0,
     "axes.labelcolor": "#222222",
     "axes.edgecolor": "#555555",
