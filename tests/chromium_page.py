@@ -134,7 +134,7 @@ def visit_page(page: Path, expression: str, screenshot: Path, width: int = 1200,
             stdout=subprocess.DEVNULL,
             stderr=subprocess.DEVNULL,
             pass_fds=(3, 4),
-            preexec_fn=_child_fds,  # noqa: PLW1509 - a test helper, no threads involved
+            preexec_fn=_child_fds,  # a test helper: no threads are running
         )
         os.close(to_browser_r)
         os.close(from_browser_w)

@@ -14,7 +14,6 @@ from html.parser import HTMLParser
 from pathlib import Path
 
 import pytest
-
 from chromium_page import find_chromium, visit_page
 
 _PAGE_FACTS = """(() => {
