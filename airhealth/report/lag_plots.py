@@ -19,6 +19,7 @@ import numpy as np
 
 from .._choices import check_choice
 from ..model.lag_predictions import exposure_response, find_lag_term, lag_response, minimum_risk_exposure
+from ..prep.plausibility import recognise_pollutant, temperature_like
 from .plots import new_axes, plain
 from .style import (
     CONTRAST,
@@ -43,13 +44,15 @@ def _reference_line(ax: Any) -> None:
 
 
 def _unit_of(result: Any, exposure: str) -> str | None:
-    """The unit of ``exposure``: the fit's exposure unit, °C for its temperature column, else unknown."""
+    """The unit of ``exposure``: °C for the fit's temperature column or a column named as a temperature (the
+    unit the guards of :mod:`airhealth.prep.plausibility` expect), else the fit's exposure unit for its
+    exposure, else unknown (no unit shown rather than a wrong one)."""
     spec = result.spec
-    if exposure == spec.exposure:
-        return spec.unit
-    if exposure == getattr(spec, "temperature", None):
+    if exposure == getattr(spec, "temperature", None) or (
+        temperature_like(exposure) and recognise_pollutant(exposure) is None
+    ):
         return "°C"
-    return None
+    return spec.unit if exposure == spec.exposure else None
 
 
 def exposure_label(result: Any, exposure: str) -> str:
@@ -142,11 +145,11 @@ def plot_exposure_response(
     draw_band(ax, x, curve["rr_low"], curve["rr_high"], label=f"{level:.0%} CI")
     ax.plot(x, curve["rr"], "-", color=ESTIMATE, label="cumulative RR")
     _reference_line(ax)
-    if show_distribution and _draw_distribution(ax, lt, exposure_values):
-        ax.plot([], [], color=DATA, lw=4, label="days at each level (strip; ticks: 5th, 50th, 95th pct)")
     if show_minimum and not lt.basis.response.is_linear and lt.summary is not None:
         mmt = minimum_risk_exposure(result, term=term, level=level)
         ax.axvline(mmt.exposure, color=CONTRAST, lw=0.9, ls=":", label=f"lowest risk {mmt.exposure:.3g}")
+    if show_distribution and _draw_distribution(ax, lt, exposure_values):
+        ax.plot([], [], color=DATA, lw=4, label="days at each level (strip; ticks: 5th, 50th, 95th pct)")
     ax.set_xlabel(exposure_label(result, lt.exposure))
     ax.set_ylabel(f"RR, all lags ({lt.basis.lag.label})")
     ax.set_title(plain(f"{result.spec.outcome} ~ {lt.exposure}: cumulative exposure-response"))
