@@ -266,7 +266,7 @@ def test_exposure_response_plot_marks_the_minimum_and_shows_the_distribution(tem
     np.testing.assert_allclose(low, expected["rr_low"], rtol=1e-12)
     np.testing.assert_allclose(high, expected["rr_high"], rtol=1e-12)
     assert minimum.get_xdata()[0] == pytest.approx(mmt.exposure)
-    strip = [a for a in fig.axes if a is not ax]  # the exposure distribution: a strip shaded by days per bin
+    strip = ax.child_axes  # the exposure distribution: a strip shaded by days per bin
     assert len(strip) == 1
     counts = np.asarray(find_lag_term(temperature_confounder_fit, "temperature").summary.counts, dtype=float)
     np.testing.assert_allclose(np.ravel(strip[0].collections[0].get_array()), counts / counts.max())
