@@ -130,12 +130,15 @@ def _sorted_rows(table: pd.DataFrame, label: str, weight: str | None) -> pd.Data
 
 
 def _right_column(ax: Any, y: float, text: str, weight_text: str = "", bold: bool = False) -> None:
-    """The printed estimate (and weight) beside a row, right of the panel."""
-    kw = {"transform": ax.get_yaxis_transform(), "va": "center", "fontsize": 8, "clip_on": False}
-    weight = {"fontweight": "bold" if bold else "normal"}
-    ax.text(1.17, y, text, ha="left", **kw, **weight)
+    """The printed estimate (and weight) beside a row, at fixed offsets (points) right of the panel, so
+    that the layout engine makes room for them whatever the panel's width."""
+    kw = {
+        "xycoords": ax.get_yaxis_transform(), "textcoords": "offset points", "va": "center", "fontsize": 8,
+        "annotation_clip": False, "fontweight": "bold" if bold else "normal",
+    }  # fmt: skip
+    ax.annotate(text, (1.0, y), xytext=(46, 0), ha="left", **kw)
     if weight_text:
-        ax.text(1.13, y, weight_text, ha="right", **kw, **weight)
+        ax.annotate(weight_text, (1.0, y), xytext=(40, 0), ha="right", **kw)
 
 
 @styled

@@ -13,7 +13,6 @@ from collections.abc import Mapping, Sequence
 from typing import Any
 
 import jinja2
-from markupsafe import Markup
 
 __all__ = ["STYLE", "render_page"]
 
@@ -69,6 +68,15 @@ _TEMPLATE = """<!DOCTYPE html>
 were sent anywhere, and the page loads nothing from the internet.</p></footer>
 </body></html>
 """
+
+
+class _Markup(str):
+    """Text already escaped (or the module's own constants): Jinja2's autoescape leaves objects with an
+    ``__html__`` method as they are."""
+
+    def __html__(self) -> str:
+        return str(self)
+
 
 _ENVIRONMENT = jinja2.Environment(autoescape=True, undefined=jinja2.StrictUndefined, keep_trailing_newline=True)
 _PAGE = _ENVIRONMENT.from_string(_TEMPLATE)
