@@ -65,10 +65,10 @@ def test_fixed_effect_forest_matches_the_inverse_variance_formulas(estimates: pd
     texts = _right_texts(ax)
     row = estimates.sort_values("coef").iloc[0]
     low, high = np.exp(10 * (row.coef - Z95 * row.se)), np.exp(10 * (row.coef + Z95 * row.se))
-    printed = [t for t in texts[3.0] if "to" in t][0]
+    printed = next(t for t in texts[3.0] if "to" in t)
     shown = [float(v) for v in printed.replace("(", " ").replace(")", " ").replace("to", " ").split()]
     np.testing.assert_allclose(shown, [np.exp(10 * row.coef), low, high], atol=5e-4)  # printed to >= 3 decimals
-    weight = [t for t in texts[3.0] if t.endswith("%")][0]
+    weight = next(t for t in texts[3.0] if t.endswith("%"))
     assert weight == f"{100 * (1 / row.se**2) / w.sum():.1f}%"
     # marker area grows with the weight
     sizes = scatter.get_sizes()
@@ -83,7 +83,7 @@ def test_the_heterogeneity_line_and_prediction_interval_come_from_the_pool(estim
     line = [t.get_text() for t in ax.texts if t.get_text().startswith("Heterogeneity")]
     q_p = "<0.001" if d["q_p"] < 0.001 else f"{d['q_p']:.3f}"
     assert line == [f"Heterogeneity: I² = {d['i2']:.1f}%, τ² = {d['tau2']:.3g}, Cochran's Q p = {q_p}"]
-    bar = [c for c in ax.collections if c.get_linewidth()[0] == 3.0][0]
+    bar = next(c for c in ax.collections if c.get_linewidth()[0] == 3.0)
     np.testing.assert_allclose(sorted(bar.get_segments()[0][:, 0]), [d["rr_pi_low"], d["rr_pi_high"]], rtol=1e-12)
     assert d["rr_pi_low"] <= d["rr_low"] and d["rr_pi_high"] >= d["rr_high"]
 
@@ -144,7 +144,7 @@ def test_the_pooled_lag_curve_is_the_basis_times_the_pooled_vector(lag_pool) -> 
     assert len(city_lines) == lag_pool.k
     blups = lag_pool.blup().coef.to_numpy() @ basis.T
     np.testing.assert_allclose(city_lines[0].get_ydata(), np.exp(10 * blups[0]), rtol=1e-12)
-    pooled_line = [line for line in ax.get_lines() if line.get_label() == "pooled"][0]
+    pooled_line = next(line for line in ax.get_lines() if line.get_label() == "pooled")
     np.testing.assert_allclose(pooled_line.get_ydata(), curve["rr"], rtol=1e-12)
     assert ax.get_ylabel() == "RR per 10 µg/m³" and ax.get_xlabel() == "lag (days)"
 

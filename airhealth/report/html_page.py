@@ -93,7 +93,7 @@ def render_page(
     generator: str,
 ) -> str:
     """The whole page. ``sections``: ``id``, ``title`` (text, escaped here) and ``body`` (escaped markup)."""
-    shown = [{"id": s["id"], "title": s["title"], "body": Markup(s["body"])} for s in sections]
+    shown = [{"id": s["id"], "title": s["title"], "body": _Markup(s["body"])} for s in sections]
     return _PAGE.render(
         title=title,
         subtitle=subtitle,
@@ -101,6 +101,6 @@ def render_page(
         suppression=suppression,
         sections=shown,
         stamp=stamp,
-        generator=Markup(generator),
-        style=Markup(STYLE),
+        generator=_Markup(generator),
+        style=_Markup(STYLE),
     )
