@@ -9,7 +9,7 @@ exposure increase (``per``). City curves use the best linear unbiased prediction
 References
 ----------
 Gasparrini A, Armstrong B, Kenward MG (2012). Multivariate meta-analysis for non-linear and other
-multi-parameter associations. Statistics in Medicine 31:3821–3839.
+multi-parameter associations. Statistics in Medicine 31:3821–3839 (from memory).
 """
 
 from __future__ import annotations
