@@ -38,7 +38,7 @@ from typing import Any, TypeVar
 
 import matplotlib
 import numpy as np
-from cycler import cycler
+from matplotlib import cycler
 from matplotlib.colors import LinearSegmentedColormap, TwoSlopeNorm
 from matplotlib.figure import Figure as MplFigure
 from matplotlib.ticker import MaxNLocator
