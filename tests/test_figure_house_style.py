@@ -64,9 +64,12 @@ def _cut_texts(figure) -> list[str]:
     box = figure.bbox
     cut = []
     for ax in figure.axes:
-        extent = ax.get_tightbbox(renderer)
-        if extent.x0 < box.x0 - 1 or extent.y0 < box.y0 - 1 or extent.x1 > box.x1 + 1 or extent.y1 > box.y1 + 1:
-            cut.append(ax.get_xlabel() or ax.get_ylabel() or ax.get_title() or "a panel")
+        labels = [t for t in (ax.xaxis.label, ax.yaxis.label, ax.title) if t.get_text()]
+        extents = [ax.get_tightbbox(renderer), *(t.get_window_extent(renderer) for t in labels)]
+        for e in extents:  # (the axis labels separately: matplotlib 3.8 leaves a colour bar's out of the first)
+            if e.x0 < box.x0 - 1 or e.y0 < box.y0 - 1 or e.x1 > box.x1 + 1 or e.y1 > box.y1 + 1:
+                cut.append(ax.get_xlabel() or ax.get_ylabel() or ax.get_title() or "a panel")
+                break
     return cut
 
 
