@@ -197,8 +197,7 @@ def _forest_figures(table: pd.DataFrame, per: float, level: float, request: Repo
         ]
         per_label = _per_text(per, exposures, request) if single else f"{per:g} units"
         xlabel = f"relative risk per {per_label} ({level:.0%} CI)"
-        ax = plot_forest(rows.assign(row=labels), "row", None, xlabel=xlabel, limits=limits, level=level)
-        ax.set_title(plain(outcome))
+        ax = plot_forest(rows.assign(row=labels), "row", None, xlabel=xlabel, limits=limits, level=level, title=outcome)
         title = f"{outcome}: relative risks per {_per_text(per, exposures, request)} with {level:.0%} intervals"
         figures.append(Figure(title, ax.figure, f"effects_forest_{outcome}", note=_ABBREVIATIONS))
     return figures

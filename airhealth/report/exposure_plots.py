@@ -168,6 +168,7 @@ def plot_coverage(clean: pd.DataFrame, *, ax: Axes | None = None) -> Axes:
     image = ax.imshow(share, aspect="auto", vmin=0, vmax=1, cmap="cividis", interpolation="nearest")
     ax.set_yticks(range(len(counts)), [plain(m) for m in counts.index])
     ax.set_ylabel("monitor (code)")
+    ax.set_xlabel("month")
     step = max(1, len(months) // 12)
     ax.set_xticks(range(0, len(months), step), [str(p) for p in months[::step]], rotation=45, ha="right")
     ax.grid(False)

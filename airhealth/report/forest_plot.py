@@ -152,6 +152,7 @@ def plot_forest(
     limits: tuple[float, float] | None = None,
     level: float = 0.95,
     ax: Any = None,
+    title: str | None = None,
 ) -> Any:
     """A forest plot of the rows of ``table`` (``rr``, ``rr_low``, ``rr_high`` and a ``label`` column).
 
@@ -173,8 +174,12 @@ def plot_forest(
         Display names of row labels, e.g. ``{"deaths_all": "All-cause deaths"}``.
     limits : (float, float), optional
         The x-range; :func:`forest_figure` gives every panel the same one (:func:`rr_limits`).
+    title : str, optional
+        Panel title (shown through ``labels``).
     """
     ax = ax if ax is not None else new_figure((8.0, 0.3 * (len(table) + 4) + 1.2))
+    if title is not None:
+        ax.set_title(plain(display_name(title, labels)))
     weight = weight if weight is not None and weight in table.columns else None
     rows = _sorted_rows(table, label, weight)
     if rows.empty:
@@ -247,7 +252,6 @@ def forest_figure(
         figure = MplFigure(figsize=(8.0, 0.28 * sum(heights) + 0.6), layout="constrained")
         axes = figure.subplots(len(panels), 1, sharex=True, squeeze=False, height_ratios=heights)[:, 0]
         for ax, (title, (rows, pooled)) in zip(axes, panels.items(), strict=True):
-            plot_forest(rows, label, weight, pooled, labels, xlabel, limits, level, ax=ax)
-            ax.set_title(plain(display_name(title, labels)))
+            plot_forest(rows, label, weight, pooled, labels, xlabel, limits, level, ax=ax, title=title)
             ax.set_xlabel(plain(xlabel) if ax is axes[-1] else "")
     return figure
