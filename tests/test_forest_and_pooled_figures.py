@@ -176,3 +176,23 @@ def test_the_cities_section_is_written_into_the_report(estimates, tmp_path) -> N
     page = write_html_report([section], tmp_path / "r").read_text(encoding="utf-8")
     assert "Many cities: pooled estimates" in page and "data:image/svg+xml;base64," in page
     assert (tmp_path / "r" / "figures" / "forest_cities.svg").is_file()
+
+
+def test_awkward_labels_are_drawn_as_written(estimates: pd.DataFrame) -> None:
+    """HTML and LaTeX special characters, dollars, non-ASCII and a very long name: drawn, not interpreted."""
+    import io
+
+    awkward = {
+        "city_0": "São Paulo <&> 100% a_b $x$",
+        "city_1": "Ħ" + "very long city name " * 8,
+    }
+    pooled = airhealth.pool(estimates, per=10)
+    ax = plot_forest(pooled_forest_table(pooled), pooled=pooled_summary(pooled), labels=awkward)
+    ax.figure.savefig(io.BytesIO(), format="png")  # a "$x$" read as mathematics would fail or change here
+    names = [t.get_text() for t in ax.get_yticklabels()]
+    assert "São Paulo <&> 100% a_b \\$x\\$" in names
+    long = next(n for n in names if n.startswith("Ħ"))
+    assert (
+        max(len(line) for line in long.splitlines()) <= 40
+        and long.replace("\n", " ").split() == awkward["city_1"].split()
+    )

@@ -98,3 +98,12 @@ def test_an_empty_report_still_writes_a_valid_page(tmp_path: Path) -> None:
     html = write_html_report([], tmp_path / "r").read_text(encoding="utf-8")
     assert "<nav" not in html and html.count("<strong>Caution.</strong>") == 2
     assert np.all([tag in html for tag in ("<main>", "</main>", "<footer>")])
+
+
+def test_an_empty_table_is_written_with_its_header(tmp_path: Path) -> None:
+    empty = pd.DataFrame({"outcome": pd.Series([], dtype=str), "rr": pd.Series([], dtype=float)})
+    html = write_html_report([Section("s", [Table("Nothing yet", empty, "empty")])], tmp_path / "r").read_text(
+        encoding="utf-8"
+    )
+    assert "<h3>Nothing yet</h3>" in html and "<th>outcome</th>" in html
+    assert pd.read_csv(tmp_path / "r" / "tables" / "empty.csv").columns.tolist() == ["outcome", "rr"]

@@ -18,6 +18,7 @@ J R Stat Soc A 172:137–159 (the prediction interval).
 
 from __future__ import annotations
 
+import textwrap
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -118,6 +119,12 @@ def _diamond(ax: Any, y: float, p: Mapping[str, Any]) -> None:
     )  # fmt: skip
 
 
+def _row_name(value: object, labels: Mapping[str, str] | None) -> str:
+    """A row's display name, drawn as written and wrapped at 40 characters (a very long label would squeeze
+    the panel to nothing)."""
+    return plain(textwrap.fill(display_name(value, labels), 40, break_long_words=True))
+
+
 def _sorted_rows(table: pd.DataFrame, label: str, weight: str | None) -> pd.DataFrame:
     missing = [c for c in (*_NEEDED, label, *([weight] if weight else [])) if c not in table.columns]
     if missing:
@@ -190,7 +197,7 @@ def plot_forest(
     ax.hlines(y, low, high, color=ESTIMATE, lw=1.1, zorder=2)
     sizes = 12 + 110 * rows[weight].to_numpy(dtype=float) / 100 * min(n, 20) / 2 if weight else np.full(n, 22.0)
     ax.scatter(rr, y, s=np.clip(sizes, 8, 160), marker="s", color=ESTIMATE, zorder=3, lw=0)
-    names = [plain(display_name(v, labels)) for v in rows[label]]
+    names = [_row_name(v, labels) for v in rows[label]]
     ticks, tick_names = list(y), names
     dec = _decimals([*low, *([pooled["rr_low"]] if pooled else [])], [*high, *([pooled["rr_high"]] if pooled else [])])
     for yi, r in zip(y, rows.itertuples(index=False), strict=True):
