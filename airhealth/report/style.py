@@ -2,7 +2,9 @@
 
 Every plot function in :mod:`airhealth.report` is wrapped in :func:`styled`, which draws it inside a
 :func:`matplotlib.rc_context` holding :data:`HOUSE_RC` — the style is applied per figure, while it is drawn,
-and pyplot's global state is never touched (the caller's own rcParams are restored afterwards).
+and pyplot's global state is never touched (the caller's own rcParams are restored afterwards). As with any
+``rc_context``, the settings are process-wide while a figure is being drawn: draw figures from one thread at
+a time.
 
 Colours (our own assignment of roles to a palette readable with the common colour-vision deficiencies):
 
