@@ -59,3 +59,13 @@ def rscript() -> str:
     if path is None:
         r_unavailable("Rscript is not on PATH: live cross-checks against base R skipped (frozen values still tested)")
     return path
+
+
+@pytest.fixture(scope="session")
+def demo_report(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The folder of ``airhealth demo --suppress-below 5``, written once per test session (it fits 60 models)."""
+    from airhealth.cli.main import main
+
+    out = tmp_path_factory.mktemp("demo") / "report"
+    assert main(["demo", "--out", str(out), "--suppress-below", "5"]) == 0
+    return out

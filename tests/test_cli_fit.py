@@ -107,10 +107,8 @@ def test_fit_missing_file(tmp_path: Path, capsys: pytest.CaptureFixture) -> None
 
 
 @pytest.fixture(scope="module")
-def demo_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    out = tmp_path_factory.mktemp("demo") / "report"
-    assert main(["demo", "--out", str(out), "--suppress-below", "5"]) == 0
-    return out
+def demo_dir(demo_report: Path) -> Path:
+    return demo_report  # written once per session (tests/conftest.py), shared with the browser test
 
 
 def test_demo_writes_report_tables_and_figures(demo_dir: Path) -> None:

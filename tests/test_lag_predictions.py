@@ -244,7 +244,7 @@ def test_lag_response_plot_draws_the_band_and_curve(dl_fit):
     np.testing.assert_allclose(low, table["rr_low"], rtol=1e-12)
     np.testing.assert_allclose(high, table["rr_high"], rtol=1e-12)
     assert ax.get_lines()[1].get_ydata()[0] == 1.0  # the RR = 1 reference line
-    assert ax.get_xlabel() == "lag (days)" and ax.get_ylabel() == "RR per 10 units"
+    assert ax.get_xlabel() == "lag (days)" and ax.get_ylabel() == "RR per 10 µg/m³"  # the fit's unit
 
 
 def test_exposure_response_plot_marks_the_minimum_and_shows_the_distribution(temperature_confounder_fit):
@@ -266,18 +266,19 @@ def test_exposure_response_plot_marks_the_minimum_and_shows_the_distribution(tem
     np.testing.assert_allclose(low, expected["rr_low"], rtol=1e-12)
     np.testing.assert_allclose(high, expected["rr_high"], rtol=1e-12)
     assert minimum.get_xdata()[0] == pytest.approx(mmt.exposure)
-    histogram = [a for a in fig.axes if a is not ax]
-    assert len(histogram) == 1
-    counts = find_lag_term(temperature_confounder_fit, "temperature").summary.counts
-    assert [p.get_height() for p in histogram[0].patches] == list(counts)
+    strip = ax.child_axes  # the exposure distribution: a strip shaded by days per bin
+    assert len(strip) == 1
+    counts = np.asarray(find_lag_term(temperature_confounder_fit, "temperature").summary.counts, dtype=float)
+    np.testing.assert_allclose(np.ravel(strip[0].collections[0].get_array()), counts / counts.max())
     assert sum(counts) == 5113
+    assert ax.get_xlabel() == "temperature (°C)"
 
 
 def test_surface_plots(temperature_exposure_fit):
     from airhealth.report.lag_plots import plot_exposure_lag_surface
 
     ax = plot_exposure_lag_surface(temperature_exposure_fit, reference=19.0, n_exposure=30)
-    assert ax.get_ylabel() == "temperature" and len(ax.figure.axes) == 2  # contour and colour bar
+    assert ax.get_ylabel() == "temperature (°C)" and len(ax.figure.axes) == 2  # contour and colour bar
     summary = temperature_exposure_fit.spec.lag.response.summary
     grid = np.linspace(summary.low, summary.high, 30)
     rr = exposure_response(temperature_exposure_fit, values=grid, reference=19.0, per_lag=True)["rr"].to_numpy()

@@ -77,7 +77,7 @@ def test_a_new_report_replaces_the_old_one_whole(tmp_path: Path) -> None:
     write_html_report(_sections(_good_figure(), "old"), out)
     write_html_report(_sections(_good_figure(), "new"), out)
     assert _entries(out / "tables") == ["table_new.csv"], "files of the old report must not linger"
-    assert _entries(out / "figures") == ["figure_new.png", "last.png"]
+    assert _entries(out / "figures") == ["figure_new.png", "figure_new.svg", "last.png", "last.svg"]
     assert "new text" in (out / "index.html").read_text(encoding="utf-8")
     assert _entries(tmp_path) == ["report"]
 

@@ -247,7 +247,7 @@ def test_figures_draw_on_the_given_axes(city, result, checks):
     assert len(ax.collections) == 2  # ACF and PACF stems
     assert checks.plot_residuals_over_time().get_ylabel() == "deviance residual"
     temperature = city.set_index("date")["temperature"]
-    assert checks.plot_residuals_against(temperature).get_xlabel() == "temperature"
+    assert checks.plot_residuals_against(temperature).get_xlabel() == "temperature (°C)"  # with its unit
 
 
 def test_residuals_against_a_series_without_dates_is_explained(checks):

@@ -118,8 +118,8 @@ def test_a_traversing_column_name_cannot_write_outside_the_report(tmp_path: Path
     assert len(list((out / "figures").glob("*.png"))) == len(names)
     assert len(list((out / "tables").glob("*.csv"))) == len(names)
     page = (out / "index.html").read_text(encoding="utf-8")
-    for p in (out / "figures").iterdir():
-        assert f"src='figures/{p.name}'" in page
+    for p in (out / "figures").iterdir():  # each PNG and SVG file is linked from the page
+        assert f"href='figures/{p.name}'" in page
 
 
 def test_repeated_block_names_get_distinct_files(tmp_path: Path) -> None:
@@ -142,6 +142,6 @@ def test_the_measured_outcome_name_stays_inside_the_city_report(tmp_path: Path) 
     )
     written = [p for p in tmp_path.rglob("*") if p.is_file()]
     assert all(out in p.parents for p in written), [str(p) for p in written if out not in p.parents]
-    forest = [p.name for p in (out / "figures").iterdir() if p.name.startswith("effects_forest_")]
+    forest = [p.name for p in (out / "figures").glob("*.png") if p.name.startswith("effects_forest_")]
     assert forest == [f"{safe_stem('effects_forest_x/../../../escaped')}.png"]
     assert forest[0].startswith("effects_forest_x_escaped-")

@@ -39,7 +39,10 @@ def hourly_section() -> Any:
     clean = clean_hourly(load_sample_hourly(), time="time", value="no2_ppb", monitor="monitor")
     daily = aggregate_daily(clean, statistic="mean", convention="eu", name="no2_ppb")
     rule = validity_rule("mean", "eu")
-    return hourly_quality_section(clean, daily, value="no2_ppb", rule_note=rule.source)
+    names = {"NHC": "city centre", "NHH": "harbour road (traffic)", "NHP": "park"}  # sample_data/generate_hourly.py
+    return hourly_quality_section(
+        clean, daily, value="no2_ppb", rule_note=rule.source, monitor_names=names, label="NO2 (ppb)"
+    )
 
 
 def run(args: argparse.Namespace) -> int:

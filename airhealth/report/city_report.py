@@ -23,10 +23,11 @@ from ..prep.validate import parse_dates
 from .data_quality_section import data_quality_section
 from .document import Figure, Section, Table, Text
 from .export import parse_formats
+from .forest_plot import plot_forest, rr_limits
 from .html import write_html_report
 from .labels import Labels, check_labels, display_name
 from .lag_plots import plot_lag_response
-from .plots import observed_fitted_figure, plain, plot_effects
+from .plots import observed_fitted_figure, plain
 from .report_fits import ReportFits, ReportRequest, check_request, fit_request
 from .suppression import mask_small_numbers, smallest_positive
 from .tables import effects_table, format_effects
@@ -61,10 +62,41 @@ def _interval_text(spec: ModelSpec) -> str:
     return ""
 
 
+def software_text() -> str:
+    """The software versions behind a report (for its methods paragraph)."""
+    import platform
+
+    import numpy
+    import scipy
+
+    from .. import __version__
+
+    return (
+        f"Computed with airhealth {__version__} (Python {platform.python_version()}, NumPy {numpy.__version__}, "
+        f"SciPy {scipy.__version__}, pandas {pd.__version__})."
+    )
+
+
+def _lags_text(lags: Sequence[str]) -> str:
+    if not lags:
+        return ""
+    return (
+        f" Lag structures: {', '.join(lags)} (0: the same day; a-b: the mean of days a to b; dla-b: a distributed "
+        "lag over days a to b)."
+    )
+
+
 def describe_model(
-    spec: ModelSpec, n_calendar: int, per: float = 10.0, unit: str = DEFAULT_UNIT, level: float = 0.95
+    spec: ModelSpec,
+    n_calendar: int,
+    per: float = 10.0,
+    unit: str = DEFAULT_UNIT,
+    level: float = 0.95,
+    lags: Sequence[str] = (),
 ) -> str:
-    """A plain-English description of the confounder model of ``spec``, for a report's methods section."""
+    """A plain-English description of the confounder model of ``spec``, for a report's methods section:
+    the model, its confounders and their df, the lag structures (``lags``, labels), the interval type and
+    the software versions."""
     years = n_calendar / 365.25
     if spec.seasonality == "spline":
         season = f"a natural spline of time with {spec.trend_df_per_year:g} df per year"
@@ -91,7 +123,7 @@ def describe_model(
         + f". Relative risks are per {per:g} {unit} with {level:.0%} Wald intervals{_interval_text(spec)}; "
         "single-day lags use the "
         "exposure of that day, moving averages the mean of the days shown, distributed lags the sum of the "
-        "effects of every lag day (the cumulative effect)."
+        "effects of every lag day (the cumulative effect)." + _lags_text(lags) + " " + software_text()
     )
 
 
@@ -146,11 +178,19 @@ def _effects_tables(
     ]
 
 
+_ABBREVIATIONS = (
+    "RR: relative risk; CI: confidence interval. Lag 0: the same day; 0-1: the mean of the same day and the day "
+    "before; dl0-5: a distributed lag over days 0 to 5 (the cumulative effect). Rows are sorted by estimate; "
+    "every outcome's figure uses the same log scale."
+)
+
+
 def _forest_figures(
     table: pd.DataFrame, per: float, level: float, request: ReportRequest, labels: Labels | None = None
 ) -> list[Figure]:
-    """One forest plot per outcome, rows labelled by exposure (with its unit) and lag (display names)."""
+    """One forest plot per outcome, rows labelled by exposure (with its unit) and lag (display names), one x-scale."""
     figures = []
+    limits = rr_limits(table) if len(table) else None
     for outcome, rows in table.groupby("outcome", sort=False):
         exposures = list(dict.fromkeys(rows["exposure"]))
         single = len({request.unit_of(e) for e in exposures}) == 1
@@ -160,12 +200,11 @@ def _forest_figures(
             for r in rows.itertuples()
         ]
         per_label = _per_text(per, exposures, request) if single else f"{per:g} units"
-        ax = plot_effects(rows, labels=rows_text, per_label=per_label)
-        ax.set_xlabel(plain(f"relative risk per {per_label} ({level:.0%} CI)"))
+        xlabel = f"relative risk per {per_label} ({level:.0%} CI)"
         name = display_name(outcome, labels)
-        ax.set_title(plain(name))
+        ax = plot_forest(rows.assign(row=rows_text), "row", None, xlabel=xlabel, limits=limits, level=level, title=name)
         title = f"{name}: relative risks per {_per_text(per, exposures, request)} with {level:.0%} intervals"
-        figures.append(Figure(title, ax.figure, f"effects_forest_{outcome}"))
+        figures.append(Figure(title, ax.figure, f"effects_forest_{outcome}", note=_ABBREVIATIONS))
     return figures
 
 
@@ -292,7 +331,8 @@ def _sections(
     per, level, main, done = request.per, request.level, fits.main, fits.done
     outcomes = list(dict.fromkeys(r.spec.outcome for r in done))
     exposures = list(dict.fromkeys(r.spec.exposure for r in done))
-    model_text = describe_model(main.spec, len(data), per, _unit_text(exposures, request), level)
+    lag_labels = [lag.label for lag in request.lags]
+    model_text = describe_model(main.spec, len(data), per, _unit_text(exposures, request), level, lag_labels)
     weather = [c for c in (options.get("temperature"), options.get("humidity")) if c]
     main_pair = fits.results[(main.spec.outcome, main.spec.exposure)]
     return [
@@ -303,9 +343,15 @@ def _sections(
         Section("Main model", [*_main_blocks(main, fits.main_note, threshold, done), *_lag_blocks(main_pair, per, level)]),  # noqa: E501
         data_quality_section(
             data, [*exposures, *weather], exposures=exposures, date=options.get("date", "date"),
-            units={e: request.unit_of(e) for e in exposures},
+            units={e: request.unit_of(e) for e in exposures} | _weather_units(options),
         ),
     ]  # fmt: skip
+
+
+def _weather_units(options: dict[str, Any]) -> dict[str, str]:
+    """Units of the weather columns (temperature in °C, humidity in %), for Table 1 and axes."""
+    units = {options.get("temperature"): "°C", options.get("humidity"): "%"}
+    return {column: unit for column, unit in units.items() if column}
 
 
 def _with_codes_missing(data: pd.DataFrame, fits: ReportFits, options: dict[str, Any]) -> pd.DataFrame:

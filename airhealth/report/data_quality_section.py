@@ -143,6 +143,8 @@ def hourly_quality_section(
     rule_note: str | None = None,
     title: str = "Hourly monitoring data: coverage and completeness",
     n_gaps: int = 3,
+    monitor_names: Mapping[str, str] | None = None,
+    label: str | None = None,
 ) -> Section:
     """Coverage per monitor and year, days lost to each rule, longest gaps, monitor agreement, and plots.
 
@@ -160,6 +162,10 @@ def hourly_quality_section(
         Value column of ``daily_by_monitor``.
     rule_note : str, optional
         The completeness rule applied (e.g. ``ValidityRule.source``), shown under the days-lost table.
+    monitor_names : mapping, optional
+        What each monitor code stands for (``{"NHP": "park"}``), in the figure legends and captions.
+    label : str, optional
+        The value axis label with its unit, e.g. ``"NO2 (ppb)"`` (default: the value column).
     """
     coverage = hourly_coverage(clean)
     lost = days_lost(daily_by_monitor)
@@ -182,12 +188,24 @@ def hourly_quality_section(
                 f"1/{MAX_RATIO:g} to {MAX_RATIO:g}, or fewer than {MIN_OVERLAP} shared days).",
             )
         )
+    codes = _codes_note(sorted(map(str, daily_by_monitor["monitor"].unique())), monitor_names)
     blocks += [
-        Figure("Share of hours present by month", plot_coverage(clean).figure, name="hourly_coverage"),
+        Figure("Share of hours present by month", plot_coverage(clean).figure, name="hourly_coverage", note=codes),
         Figure(
             "Daily values per monitor",
-            plot_monitor_series(daily_by_monitor, value=value).figure,
+            plot_monitor_series(daily_by_monitor, value=value, names=monitor_names, label=label).figure,
             name="monitor_series",
+            note=codes,
         ),
     ]
     return Section(title, blocks)
+
+
+def _codes_note(codes: Sequence[str], names: Mapping[str, str] | None) -> str:
+    """A caption line explaining the monitor codes of a figure."""
+    named = [f"{c}: {names[c]}" for c in codes if names and c in names]
+    unnamed = [c for c in codes if not names or c not in names]
+    parts = ["Monitor codes as in the input data"] + (["; ".join(named)] if named else [])
+    if unnamed and named:
+        parts.append(f"no description given for {', '.join(unnamed)}")
+    return ". ".join(parts) + "."

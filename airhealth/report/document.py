@@ -50,7 +50,8 @@ class Table:
 
 @dataclass(frozen=True)
 class Figure:
-    """A matplotlib figure; ``name`` names its PNG file (made safe by the writer)."""
+    """A matplotlib figure; ``name`` names its PNG (300 dpi) and SVG files (made safe by the writer); the page
+    embeds the SVG."""
 
     title: str
     figure: Any

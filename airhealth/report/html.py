@@ -1,6 +1,11 @@
 """Write a report (sections of text, tables and figures) as a self-contained HTML page.
 
-Tables are also written as CSV and figures as PNG beside the page. Health counts in tables are suppressed
+``index.html`` opens offline in any browser: its figures are embedded as SVG data URIs and its style sheet
+is inline; it makes no external request (no fonts, scripts or styles from elsewhere). It has a table of
+contents, the sections in the order given, the caution text at the top and bottom, the QAIC caveat under
+every table or text mentioning QAIC, and print rules so that it reads well printed to PDF. The page layout
+is the Jinja2 template of :mod:`airhealth.report.html_page` (autoescaped). Tables are also written as CSV
+and figures as PNG (300 dpi) and SVG under ``figures/`` for reuse. Health counts in tables are suppressed
 below the user's disclosure threshold. Every report carries the caution that results are associations.
 Nothing is sent anywhere: everything is written to the local output folder, which appears whole or not at
 all. File names derived from user text are made safe in :mod:`airhealth.report.safe_names`; every piece
@@ -9,8 +14,10 @@ of text in the page is HTML-escaped here.
 
 from __future__ import annotations
 
+import base64
 import datetime as _dt
 import html
+import io
 from collections.abc import Sequence
 from pathlib import Path
 from typing import get_args
@@ -20,24 +27,22 @@ import pandas as pd
 from .. import _io
 from .document import CAUTION, Figure, Section, Table, Text
 from .export import TableFormat, export_table, parse_formats
+from .html_page import render_page
 from .labels import Labels
 from .safe_names import file_in
 from .suppression import check_threshold, suppress_table, suppression_note
 from .tables import display_table, table_notes
 
-__all__ = ["write_html_report"]
+__all__ = ["FIGURE_DPI", "QAIC_CAVEAT", "write_html_report"]
 
 _GENERATOR = "<meta name='generator' content='airhealth'>"
-_STYLE = """
-body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;max-width:1080px;margin:2em auto;padding:0 1em;
-color:#1d2430;line-height:1.45}
-h1{font-size:1.6em;margin-bottom:.2em}h2{border-bottom:1px solid #d0d5dd;padding-bottom:.2em;margin-top:2em}
-table{border-collapse:collapse;margin:.6em 0 1.2em;font-size:.9em}
-th,td{border-bottom:1px solid #e4e7ec;padding:.25em .6em;text-align:right}
-th:first-child,td:first-child{text-align:left}thead th{background:#f2f4f7}
-.caution{background:#fff8e6;border-left:4px solid #d99a00;padding:.6em 1em}
-.note{color:#475467;font-size:.88em}figure{margin:1em 0}figure img{max-width:100%}
-"""
+FIGURE_DPI = 300  # the PNG files written for reuse (print resolution)
+
+QAIC_CAVEAT = (
+    "QAIC (the quasi-likelihood Akaike information criterion) compares models of the same outcome fitted on the "
+    "same days only: rows with different day counts are not comparable. A lower QAIC is a guide to fit, not a "
+    "test, and says nothing about whether an association is causal."
+)
 
 
 def _e(text: object) -> str:
@@ -86,18 +91,29 @@ def _table_html(
     return f"<h3>{_e(block.title)}</h3>{body}{note}<p class='note'>{_link(path, path.name)}</p>", frame
 
 
-def _figure_html(block: Figure, path: Path) -> str:
-    _io.write_with(path, lambda tmp: block.figure.savefig(tmp, dpi=110, format="png"))
+def _mentions_qaic(block: Text | Table) -> bool:
+    if isinstance(block, Text):
+        return "qaic" in block.text.lower()
+    return any("qaic" in str(c).lower() for c in block.frame.columns) and block.display
+
+
+def _figure_html(block: Figure, png: Path, svg: Path) -> str:
+    """Write the figure's PNG (300 dpi) and SVG files; embed the SVG in the page as a data URI."""
+    _io.write_with(png, lambda tmp: block.figure.savefig(tmp, dpi=FIGURE_DPI, format="png"))
+    buffer = io.BytesIO()
+    block.figure.savefig(buffer, format="svg", metadata={"Date": None})
+    _io.write_with(svg, lambda tmp: tmp.write_bytes(buffer.getvalue()))
+    uri = "data:image/svg+xml;base64," + base64.b64encode(buffer.getvalue()).decode("ascii")
     note = f"<p class='note'>{_e(block.note)}</p>" if block.note else ""
-    src = f"{path.parent.name}/{path.name}"
+    files = f"{_link(png, 'PNG, 300 dpi')} · {_link(svg, 'SVG')}"
     return (
-        f"<figure><img src='{_e(src)}' alt='{_e(block.title)}'>"
-        f"<figcaption>{_e(block.title)}</figcaption></figure>{note}"
+        f"<figure><img src='{uri}' alt='{_e(block.title)}'>"
+        f"<figcaption>{_e(block.title)} <span class='files'>({files})</span></figcaption></figure>{note}"
     )
 
 
 _LEFT_BY_FILE_BROWSERS = frozenset({".DS_Store", "Thumbs.db", "desktop.ini"})
-_REPORT_PARTS = {"tables": tuple(f".{f}" for f in get_args(TableFormat)), "figures": (".png",)}
+_REPORT_PARTS = {"tables": tuple(f".{f}" for f in get_args(TableFormat)), "figures": (".png", ".svg")}
 
 
 def _not_from_a_report(folder: Path) -> list[str]:
@@ -127,6 +143,32 @@ def _write_table(
     export_table(shown, path, ["csv", *formats], caption=block.title, notes=notes, labels=labels)
 
 
+def _blocks_html(
+    section: Section,
+    threshold: int | None,
+    tables: _FileNames,
+    figures: _FileNames,
+    table_formats: Sequence[str] = (),
+    labels: Labels | None = None,
+) -> list[str]:
+    """The markup of one section's blocks (each already escaped); files written as a side effect."""
+    parts = []
+    for block in section.blocks:
+        if isinstance(block, Text):
+            parts.append(f"<p>{_e(block.text)}</p>")
+        elif isinstance(block, Table):
+            path = tables.take(block.name, ".csv")
+            markup, shown = _table_html(block, threshold, path, labels)
+            _write_table(block, shown, path, table_formats, labels)
+            parts.append(markup)
+        elif isinstance(block, Figure):
+            png = figures.take(block.name, ".png")
+            parts.append(_figure_html(block, png, png.with_suffix(".svg")))
+        if isinstance(block, Text | Table) and _mentions_qaic(block):
+            parts.append(f"<p class='note qaic'>{_e(QAIC_CAVEAT)}</p>")
+    return parts
+
+
 def _page(
     sections: Sequence[Section],
     out: Path,
@@ -136,35 +178,25 @@ def _page(
     table_formats: Sequence[str] = (),
     labels: Labels | None = None,
 ) -> str:
-    caution = f"<p class='caution'><strong>Caution.</strong> {_e(CAUTION)}</p>"
-    parts = [f"<h1>{_e(title)}</h1>"]
-    if subtitle:
-        parts.append(f"<p class='note'>{_e(subtitle)}</p>")
-    parts.append(caution)
-    if threshold is not None:
-        parts.append(f"<p class='note'>Counts below {threshold} are suppressed. {_e(suppression_note(threshold))}</p>")
     tables, figures = _FileNames(out / "tables"), _FileNames(out / "figures")
-    for section in sections:
-        parts.append(f"<h2>{_e(section.title)}</h2>")
-        for block in section.blocks:
-            if isinstance(block, Text):
-                parts.append(f"<p>{_e(block.text)}</p>")
-            elif isinstance(block, Table):
-                path = tables.take(block.name, ".csv")
-                markup, shown = _table_html(block, threshold, path, labels)
-                _write_table(block, shown, path, table_formats, labels)
-                parts.append(markup)
-            elif isinstance(block, Figure):
-                parts.append(_figure_html(block, figures.take(block.name, ".png")))
-    stamp = _dt.datetime.now().strftime("%Y-%m-%d %H:%M")
-    parts.append(caution)
-    parts.append(
-        f"<p class='note'>Written by airhealth on {stamp}. Everything in this report was computed "
-        "locally; no data were sent anywhere.</p>"
-    )
-    return (
-        f"<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>{_GENERATOR}"
-        f"<title>{_e(title)}</title><style>{_STYLE}</style></head><body>" + "\n".join(parts) + "</body></html>"
+    rendered = [
+        {
+            "id": f"section-{i}",
+            "title": section.title,
+            "body": "\n".join(_blocks_html(section, threshold, tables, figures, table_formats, labels)),
+        }
+        for i, section in enumerate(sections, start=1)
+    ]
+    return render_page(
+        title=title,
+        subtitle=subtitle,
+        caution=CAUTION,
+        suppression=f"Counts below {threshold} are suppressed. {suppression_note(threshold)}"
+        if threshold is not None
+        else "",
+        sections=rendered,
+        stamp=_dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
+        generator=_GENERATOR,
     )
 
 
@@ -177,7 +209,7 @@ def write_html_report(
     table_formats: str | Sequence[str] = ("csv",),
     labels: Labels | None = None,
 ) -> Path:
-    """Write ``index.html`` with every section, plus ``tables/*.csv`` and ``figures/*.png``.
+    """Write ``index.html`` with every section, plus ``tables/*.csv`` and ``figures/*.png`` / ``*.svg``.
 
     The whole folder is written beside ``out_dir`` under a temporary name and renamed into place only when
     everything succeeded (:func:`airhealth._io.atomic_directory`): a failed run leaves no half-written

@@ -19,18 +19,49 @@ import numpy as np
 
 from .._choices import check_choice
 from ..model.lag_predictions import exposure_response, find_lag_term, lag_response, minimum_risk_exposure
+from ..prep.plausibility import recognise_pollutant, temperature_like
 from .plots import new_axes, plain
+from .style import (
+    CONTRAST,
+    DATA,
+    ESTIMATE,
+    RR_COLOURS,
+    draw_band,
+    draw_no_effect_line,
+    integer_lags,
+    new_figure,
+    rr_norm,
+    styled,
+)
 
-__all__ = ["plot_exposure_lag_surface", "plot_exposure_response", "plot_lag_response"]
+__all__ = ["exposure_label", "plot_exposure_lag_surface", "plot_exposure_response", "plot_lag_response"]
 
 SurfaceKind = Literal["contour", "surface"]
-BAND = {"color": "C0", "alpha": 0.25, "lw": 0}
 
 
 def _reference_line(ax: Any) -> None:
-    ax.axhline(1.0, color="0.4", lw=0.8, ls="--")
+    draw_no_effect_line(ax)
 
 
+def _unit_of(result: Any, exposure: str) -> str | None:
+    """The unit of ``exposure``: °C for the fit's temperature column or a column named as a temperature (the
+    unit the guards of :mod:`airhealth.prep.plausibility` expect), else the fit's exposure unit for its
+    exposure, else unknown (no unit shown rather than a wrong one)."""
+    spec = result.spec
+    if exposure == getattr(spec, "temperature", None) or (
+        temperature_like(exposure) and recognise_pollutant(exposure) is None
+    ):
+        return "°C"
+    return spec.unit if exposure == spec.exposure else None
+
+
+def exposure_label(result: Any, exposure: str) -> str:
+    """An exposure axis label with its unit, e.g. ``pm25 (µg/m³)``."""
+    unit = _unit_of(result, exposure)
+    return plain(f"{exposure} ({unit})" if unit else exposure)
+
+
+@styled
 def plot_lag_response(
     result: Any,
     value: float | None = None,
@@ -48,38 +79,49 @@ def plot_lag_response(
     ax = new_axes(ax, (6.5, 3.5))
     table = lag_response(result, value=value, reference=reference, per=per, term=term, level=level)
     lags = table["lag"].to_numpy()
-    ax.fill_between(lags, table["rr_low"], table["rr_high"], **BAND, label=f"{level:.0%} CI")
-    ax.plot(lags, table["rr"], "-o" if len(lags) <= 8 else "-", color="C0", ms=4, label="RR")
+    draw_band(ax, lags, table["rr_low"], table["rr_high"], label=f"{level:.0%} CI")
+    ax.plot(lags, table["rr"], "-o" if len(lags) <= 8 else "-", color=ESTIMATE, ms=4, label="RR")
     _reference_line(ax)
     lt = find_lag_term(result, term)
+    unit = _unit_of(result, lt.exposure) or "units"
     if value is None:
-        ax.set_ylabel(f"RR per {per:g} units")
+        ax.set_ylabel(plain(f"RR per {per:g} {unit}"))
     else:
         ref = table.attrs.get("reference", reference)
-        ax.set_ylabel(f"RR at {value:g} vs {ref:g}" if ref is not None else f"RR at {value:g}")
+        versus = f" vs {ref:g}" if ref is not None else ""
+        ax.set_ylabel(plain(f"RR at {value:g}{versus} {unit}"))
     ax.set_xlabel("lag (days)")
+    integer_lags(ax)
     ax.set_title(plain(f"{result.spec.outcome} ~ {lt.exposure}: lag-response ({lt.basis.lag.label})"))
     return ax
 
 
-def _draw_distribution(ax: Any, lt: Any, exposure_values: Any) -> None:
-    """Histogram of the exposure on a twin axis, in the bottom fifth of the panel."""
+def _draw_distribution(ax: Any, lt: Any, exposure_values: Any) -> bool:
+    """The exposure distribution as a shaded strip along the bottom of the panel: each bin of exposure is
+    shaded by its share of days (darker = more days), with ticks at the 5th, 50th and 95th percentiles.
+
+    Our own choice: it shows where the data are (and how thin the ends of the curve are) without a second
+    y-axis. Returns whether anything was drawn.
+    """
     if exposure_values is not None:
         v = np.asarray(exposure_values, dtype=float)
         counts, edges = np.histogram(v[np.isfinite(v)], bins=40)
     elif lt.summary is not None:
-        counts, edges = np.asarray(lt.summary.counts), np.asarray(lt.summary.edges)
+        counts, edges = np.asarray(lt.summary.counts, dtype=float), np.asarray(lt.summary.edges, dtype=float)
     else:
-        return
-    hist = ax.twinx()
-    hist.bar(edges[:-1], counts, width=np.diff(edges), align="edge", color="0.75", lw=0, zorder=0)
-    hist.set_ylim(0, counts.max() * 5)
-    hist.set_yticks([])
-    hist.set_ylabel("")
-    ax.set_zorder(hist.get_zorder() + 1)
-    ax.patch.set_visible(False)
+        return False
+    if counts.sum() <= 0:
+        return False
+    strip = ax.inset_axes([0.0, 0.0, 1.0, 0.06], sharex=ax)
+    strip.pcolormesh(edges, [0, 1], (counts / counts.max())[None, :], cmap="Greys", vmin=0, vmax=1.25)
+    cumulative = np.concatenate([[0], np.cumsum(counts)]) / counts.sum()
+    for q in (0.05, 0.5, 0.95):
+        strip.axvline(float(np.interp(q, cumulative, edges)), color=CONTRAST, lw=1.0)
+    strip.set_axis_off()
+    return True
 
 
+@styled
 def plot_exposure_response(
     result: Any,
     reference: float | None = None,
@@ -100,21 +142,22 @@ def plot_exposure_response(
     lt = find_lag_term(result, term)
     curve = exposure_response(result, values=values, reference=reference, term=term, level=level)
     x = curve["exposure"].to_numpy()
-    ax.fill_between(x, curve["rr_low"], curve["rr_high"], **BAND, label=f"{level:.0%} CI")
-    ax.plot(x, curve["rr"], "-", color="C0", label="cumulative RR")
+    draw_band(ax, x, curve["rr_low"], curve["rr_high"], label=f"{level:.0%} CI")
+    ax.plot(x, curve["rr"], "-", color=ESTIMATE, label="cumulative RR")
     _reference_line(ax)
-    if show_distribution:
-        _draw_distribution(ax, lt, exposure_values)
     if show_minimum and not lt.basis.response.is_linear and lt.summary is not None:
         mmt = minimum_risk_exposure(result, term=term, level=level)
-        ax.axvline(mmt.exposure, color="C3", lw=0.9, ls=":", label=f"lowest risk {mmt.exposure:.3g}")
-    ax.set_xlabel(plain(lt.exposure))
+        ax.axvline(mmt.exposure, color=CONTRAST, lw=0.9, ls=":", label=f"lowest risk {mmt.exposure:.3g}")
+    if show_distribution and _draw_distribution(ax, lt, exposure_values):
+        ax.plot([], [], color=DATA, lw=4, label="days at each level (strip; ticks: 5th, 50th, 95th pct)")
+    ax.set_xlabel(exposure_label(result, lt.exposure))
     ax.set_ylabel(f"RR, all lags ({lt.basis.lag.label})")
     ax.set_title(plain(f"{result.spec.outcome} ~ {lt.exposure}: cumulative exposure-response"))
     ax.legend(loc="upper center", frameon=False, fontsize="small")
     return ax
 
 
+@styled
 def plot_exposure_lag_surface(
     result: Any,
     reference: float | None = None,
@@ -137,24 +180,19 @@ def plot_exposure_lag_surface(
     exposure = table["exposure"].to_numpy().reshape(-1, lags.size)[:, 0]
     rr = table["rr"].to_numpy().reshape(exposure.size, lags.size)
     if kind == "surface":
-        if ax is None:
-            from matplotlib.figure import Figure
-
-            ax = Figure(figsize=(7, 5), layout="constrained").add_subplot(projection="3d")
+        ax = ax if ax is not None else new_figure((7, 5), projection="3d")
         grid_lag, grid_x = np.meshgrid(lags, exposure)
-        ax.plot_surface(grid_lag, grid_x, rr, cmap="RdBu_r", linewidth=0, antialiased=True)
+        ax.plot_surface(grid_lag, grid_x, rr, cmap=RR_COLOURS, norm=rr_norm(rr), linewidth=0, antialiased=True)
         ax.set_zlabel("RR")
     else:
-        from matplotlib.colors import TwoSlopeNorm
-
         ax = new_axes(ax, (7, 4.5))
-        spread = max(float(np.max(np.abs(np.log(rr)))), 1e-6)
-        norm = TwoSlopeNorm(vcenter=1.0, vmin=np.exp(-spread), vmax=np.exp(spread))
-        filled = ax.contourf(lags, exposure, rr, levels=21, cmap="RdBu_r", norm=norm)
+        filled = ax.contourf(lags, exposure, rr, levels=21, cmap=RR_COLOURS, norm=rr_norm(rr))
         ax.contour(lags, exposure, rr, levels=[1.0], colors="0.3", linewidths=0.8)
-        ax.figure.colorbar(filled, ax=ax, label="RR")
+        ax.figure.colorbar(filled, ax=ax, label="RR (white: 1, no association; line: RR = 1)")
+        ax.grid(False)
     ax.set_xlabel("lag (days)")
-    ax.set_ylabel(plain(lt.exposure))
+    integer_lags(ax)
+    ax.set_ylabel(exposure_label(result, lt.exposure))
     ax.set_title(plain(f"{result.spec.outcome} ~ {lt.exposure}: exposure-lag-response"))
     return ax
 

@@ -146,7 +146,11 @@ def lag_structure_section(
         ax = plot_lag_response(result, per=per)
         name = f"lag_response_{result.spec.lag.label}"  # made a safe file name by the writer
         blocks.append(
-            Figure(f"{exposure}: relative risk per {per:g} at each lag, {result.spec.lag.label}", ax.figure, name)
+            Figure(
+                f"{exposure}: relative risk per {per:g} {result.spec.unit} at each lag, {result.spec.lag.label}",
+                ax.figure,
+                name,
+            )
         )
     column = model_options.get("temperature")
     if temperature_term is None and column is not None:

@@ -1,14 +1,14 @@
 """Figures of fitted models. Every function takes ``ax=None``, draws on it (or a new figure) and returns
-the Axes; none touches pyplot's global state."""
+the Axes; none touches pyplot's global state. Every figure is drawn in the house style of
+:mod:`airhealth.report.style`; intervals around lag curves are always bands."""
 
 from __future__ import annotations
 
 from collections.abc import Sequence
 from typing import Any
 
-import numpy as np
-
 from .document import Figure
+from .style import DATA, ESTIMATE, draw_band, draw_no_effect_line, integer_lags, new_figure, styled
 from .suppression import counts_for_figure
 
 __all__ = ["new_axes", "observed_fitted_figure", "plain", "plot_effects", "plot_lag_effects", "plot_observed_fitted"]
@@ -18,11 +18,7 @@ _PER = {"daily": "daily", "weekly": "weekly", "monthly": "monthly", "omitted": "
 
 def new_axes(ax: Any = None, size: tuple[float, float] = (8, 3.5)) -> Any:
     """Return ``ax`` or the Axes of a new figure not registered with pyplot."""
-    if ax is not None:
-        return ax
-    from matplotlib.figure import Figure as MplFigure
-
-    return MplFigure(figsize=size, layout="constrained").add_subplot()
+    return ax if ax is not None else new_figure(size)
 
 
 def plain(text: object) -> str:
@@ -34,6 +30,7 @@ def plain(text: object) -> str:
     return str(text).replace("$", r"\$")
 
 
+@styled
 def plot_observed_fitted(result: Any, ax: Any = None, suppress_below: int | None = None) -> Any:
     """Observed daily counts (points) and fitted means (line) over time.
 
@@ -45,12 +42,12 @@ def plot_observed_fitted(result: Any, ax: Any = None, suppress_below: int | None
     outcome = plain(result.spec.outcome)
     if shown.resolution != "omitted":
         marker = {"ms": 2} if shown.resolution == "daily" else {"ms": 3}
-        ax.plot(shown.observed.index, shown.observed.to_numpy(), ".", color="0.55", label="observed", **marker)
+        ax.plot(shown.observed.index, shown.observed.to_numpy(), ".", color=DATA, label="observed", **marker)
     if shown.alongside is not None:
-        ax.plot(shown.alongside.index, shown.alongside.to_numpy(), "-", lw=0.8, color="C0", label="fitted")
+        ax.plot(shown.alongside.index, shown.alongside.to_numpy(), "-", lw=0.9, color=ESTIMATE, label="fitted")
     per = _PER[shown.resolution]
     ax.set_xlabel("date")
-    ax.set_ylabel(f"{per} {outcome}")
+    ax.set_ylabel(f"{per} {outcome} (count)")
     what = "observed and fitted" if shown.resolution != "omitted" else "fitted (observed counts withheld)"
     ax.set_title(f"{outcome}: {what}" + ("" if per == "daily" else f", {per} totals"))
     ax.legend(loc="upper right", frameon=False)
@@ -68,35 +65,27 @@ def observed_fitted_figure(result: Any, suppress_below: int | None = None, name:
 
 
 def plot_effects(table: Any, labels: Sequence[str] | None = None, ax: Any = None, per_label: str = "10 units") -> Any:
-    """Relative risks with intervals, one row per line of an effects table (a forest-style plot)."""
-    n = len(table)
-    ax = new_axes(ax, (6.5, 0.35 * n + 1.2))
-    y = np.arange(n)[::-1]
-    rr, lo, hi = (table[c].to_numpy(dtype=float) for c in ("rr", "rr_low", "rr_high"))
-    # a 2 x n array, not a list of two arrays: matplotlib 3.8 turns the list of one-element arrays of a one-row
-    # table into scalars, which numpy >= 1.25 deprecates
-    ax.errorbar(rr, y, xerr=np.vstack([rr - lo, hi - rr]), fmt="o", color="C0", ms=4, capsize=2)
-    ax.axvline(1.0, color="0.4", lw=0.8, ls="--")
+    """Relative risks with intervals, one row per line of an effects table: a forest plot
+    (:func:`airhealth.report.forest_plot.plot_forest`, log scale, estimates printed beside the rows)."""
+    from .forest_plot import plot_forest
+
     if labels is None:
         labels = [f"{r.outcome} · {r.exposure} · lag {r.lag}" for r in table.itertuples()]
-    ax.set_yticks(y, [plain(label) for label in labels])
-    ax.set_xlabel(plain(f"relative risk per {per_label} (95% CI)"))
-    return ax
+    rows = table.assign(row_label=list(labels))
+    return plot_forest(rows, label="row_label", weight=None, xlabel=f"relative risk per {per_label} (95% CI)", ax=ax)
 
 
+@styled
 def plot_lag_effects(result: Any, per: float = 10.0, ax: Any = None) -> Any:
-    """Relative risk at each lag with its interval (points for few lags, a band for many)."""
+    """Relative risk at each lag (points joined by a line) with its interval as a band."""
     ax = new_axes(ax, (6.5, 3.5))
     table = result.lag_effects(per=per)
     lags = table["lag"].to_numpy()
-    if len(lags) > 8:
-        ax.fill_between(lags, table["rr_low"], table["rr_high"], color="C0", alpha=0.25, lw=0)
-        ax.plot(lags, table["rr"], "-", color="C0")
-    else:
-        rr = table["rr"].to_numpy()
-        ax.errorbar(lags, rr, yerr=[rr - table["rr_low"], table["rr_high"] - rr], fmt="o", capsize=3)
-    ax.axhline(1.0, color="0.4", lw=0.8, ls="--")
+    draw_band(ax, lags, table["rr_low"], table["rr_high"], label="95% CI")
+    ax.plot(lags, table["rr"], "-o" if len(lags) <= 8 else "-", color=ESTIMATE, ms=4, label="RR")
+    draw_no_effect_line(ax)
+    integer_lags(ax)
     ax.set_xlabel("lag (days)")
-    ax.set_ylabel(f"RR per {per:g} units")
+    ax.set_ylabel(plain(f"RR per {per:g} {result.spec.unit}"))
     ax.set_title(plain(f"{result.spec.outcome} ~ {result.spec.exposure}: lag structure {result.spec.lag.label}"))
     return ax
