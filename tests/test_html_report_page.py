@@ -105,5 +105,5 @@ def test_an_empty_table_is_written_with_its_header(tmp_path: Path) -> None:
     html = write_html_report([Section("s", [Table("Nothing yet", empty, "empty")])], tmp_path / "r").read_text(
         encoding="utf-8"
     )
-    assert "<h3>Nothing yet</h3>" in html and "<th>outcome</th>" in html
+    assert "<h3>Nothing yet</h3>" in html and "<th>Outcome</th>" in html  # headings read as words
     assert pd.read_csv(tmp_path / "r" / "tables" / "empty.csv").columns.tolist() == ["outcome", "rr"]
