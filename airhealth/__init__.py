@@ -4,7 +4,7 @@ Results are statistical associations, not proof of causation; they inform but do
 review, local regulation or licensed public-health practice.
 """
 
-from .cities import pool, pool_multivariate
+from .cities import fit_cities, pool, pool_multivariate
 from .errors import (
     AirhealthError,
     AirhealthWarning,
@@ -68,6 +68,7 @@ __all__ = [
     "diagnose",
     "exposure_response",
     "fit",
+    "fit_cities",
     "lag_response",
     "load_sample",
     "load_sample_tables",
