@@ -182,7 +182,7 @@ def _table(rows: list[dict[str, Any] | None], spec: ModelSpec, per: float, level
         outcome=spec.outcome,
         exposure=spec.exposure,
         lag=spec.lag.label,
-        lags=list(spec.lag.lags),
+        lags=[int(x) for x in spec.lag.lags],
         lag_basis=np.asarray(spec.lag.basis(), dtype=float),
     )
     failed = table.loc[table["error"] != "", "city"].tolist()
