@@ -164,8 +164,21 @@ def run_tasks(
         finally:
             runner.executor.shutdown(wait=True, cancel_futures=True)
         return
-    n = workers or os.cpu_count() or 1
+    n = workers or executor_slots(executor)
     _Runner(work, executor, None, retries, max(IN_FLIGHT_PER_WORKER * n, 4), on_done).run(tasks)
+
+
+def executor_slots(executor: Executor) -> int:
+    """How many jobs ``executor`` runs at once: a dask client's total worker threads, a pool's workers, or
+    this machine's cores."""
+    client = getattr(executor, "_client", None)  # dask's ClientExecutor
+    if client is not None and hasattr(client, "nthreads"):
+        try:
+            return max(1, sum(client.nthreads().values()))
+        except Exception:  # a client that cannot answer: fall back on the cores
+            pass
+    workers = getattr(executor, "_max_workers", None)
+    return workers if isinstance(workers, int) and workers > 0 else os.cpu_count() or 1
 
 
 def connect_dask(address: str, timeout: float = 10.0) -> tuple[Any, Executor]:

@@ -125,7 +125,9 @@ def fit_cities(
     retries : int
         Times a city is rerun after its worker crashed (died, was killed); then it is reported in ``error``.
     workers : int, optional
-        Processes of the local pool (default: the machine's cores).
+        Processes of the local pool (default: the machine's cores, at most one per city). With another
+        executor, how many cities it runs at once (twice as many are kept in flight; default: a dask client's
+        total worker threads, a pool's workers, else the machine's cores).
     per, level : float
         Exposure increase of ``rr`` (default 10 units) and confidence level of its interval.
     **model_options

@@ -17,10 +17,12 @@ recorded in kelvins — data the model refuses, so a multi-city run must report 
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+from scipy import signal
 
 from ..errors import SpecificationError
 
@@ -58,15 +60,19 @@ def _names(n: int) -> list[str]:
 def _ar1(rng: np.random.Generator, n: int, phi: float, sd: float) -> np.ndarray:
     """Stationary AR(1) series with lag-one correlation ``phi`` and marginal SD ``sd``."""
     e = rng.normal(0.0, sd * np.sqrt(1 - phi**2), n)
-    out = np.empty(n)
-    out[0] = rng.normal(0.0, sd)
-    for t in range(1, n):
-        out[t] = phi * out[t - 1] + e[t]
-    return out
+    e[0] = rng.normal(0.0, sd)  # the stationary start
+    return signal.lfilter([1.0], [1.0, -phi], e)  # out[t] = phi * out[t-1] + e[t]
+
+
+@functools.lru_cache(maxsize=8)
+def _calendar(n_days: int) -> tuple[pd.DatetimeIndex, np.ndarray]:
+    """The days from 2008-01-01 and their ISO text (shared by cities of the same length)."""
+    dates = pd.date_range(_START, periods=n_days, freq="D")
+    return dates, np.asarray(dates.strftime("%Y-%m-%d"), dtype=object)
 
 
 def _city(rng: np.random.Generator, n_days: int, coef: float, missing: float) -> pd.DataFrame:
-    dates = pd.date_range(_START, periods=n_days, freq="D")
+    dates, text = _calendar(n_days)
     doy = dates.day_of_year.to_numpy()
     season = np.cos(2 * np.pi * (doy - 15) / 365.25)  # 1 in mid-January
     temperature = 11 + rng.uniform(-4, 4) - 8 * season + _ar1(rng, n_days, 0.75, 3.0)
@@ -80,9 +86,7 @@ def _city(rng: np.random.Generator, n_days: int, coef: float, missing: float) ->
     deaths = rng.poisson(mean * rng.gamma(shape, 1 / shape))
     pm_seen = np.round(pm, 1)
     pm_seen[rng.random(n_days) < missing] = np.nan
-    return pd.DataFrame(
-        {"date": dates.strftime("%Y-%m-%d"), "deaths": deaths, "pm25": pm_seen, "temperature": temperature.round(1)}
-    )
+    return pd.DataFrame({"date": text.copy(), "deaths": deaths, "pm25": pm_seen, "temperature": temperature.round(1)})
 
 
 def simulate_cities(
