@@ -109,6 +109,23 @@ def test_an_empty_city_is_reported_and_the_others_are_fitted(scenario, tmp_path)
     )
 
 
+def test_city_is_refused_where_the_cities_are_already_named(scenario, tmp_path):
+    with pytest.raises(SpecificationError, match="a mapping's keys are the city names already"):
+        fit(scenario.frames, city="city")
+    scenario.frames["Alderwick"].to_csv(tmp_path / "Alderwick.csv", index=False)
+    with pytest.raises(SpecificationError, match=rf"city='city' names .* but {tmp_path} is a folder of CSV files"):
+        fit(tmp_path, city="city")
+
+
+def test_a_parquet_city_missing_a_model_column_gets_the_message_listing_every_column(scenario, tmp_path):
+    scenario.long().drop(columns="temperature").to_parquet(tmp_path / "long.parquet")
+    with pytest.warns(airhealth.DataWarning, match="could not be fitted"):
+        table = fit(tmp_path / "long.parquet", city="city")
+    with pytest.raises(DataError) as single:
+        airhealth.fit(scenario.frames["Alderwick"].drop(columns="temperature"), **MODEL)
+    assert table.set_index("city").loc["Alderwick", "error"] == str(single.value)
+
+
 def test_no_cities_and_unknown_inputs_are_refused(tmp_path):
     with pytest.raises(DataError, match="no cities were given"):
         fit({})

@@ -18,7 +18,7 @@ from __future__ import annotations
 import os
 from collections import deque
 from collections.abc import Callable, Sequence
-from concurrent.futures import FIRST_COMPLETED, Executor, Future, ProcessPoolExecutor, wait
+from concurrent.futures import FIRST_COMPLETED, CancelledError, Executor, Future, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from typing import Any
 
@@ -55,6 +55,13 @@ def crash_message(exc: BaseException, attempts: int) -> str:
     )
 
 
+def _exception(future: Future) -> BaseException | None:
+    """The future's exception (a cancelled future's is a ``CancelledError``, returned, not raised)."""
+    if future.cancelled():
+        return CancelledError(f"the executor cancelled the job ({future!r})")
+    return future.exception()
+
+
 class _Runner:
     """The loop over cities: a window of futures, retries, pool replacement and one-at-a-time reruns."""
 
@@ -79,7 +86,7 @@ class _Runner:
             return True
 
     def _replace_pool(self) -> None:
-        self.executor.shutdown(wait=False, cancel_futures=True)
+        self.executor.shutdown(wait=False)  # a broken pool: its futures have all failed already
         self.executor = self.make_pool()
 
     def _fill(self) -> None:
@@ -101,14 +108,14 @@ class _Runner:
             self.on_done(task, None, crash_message(exc, self.attempts[task.index]))
 
     def _collect(self, done: set[Future]) -> None:
-        broken = any(isinstance(f.exception(), BrokenProcessPool) for f in done)
+        broken = any(isinstance(_exception(f), BrokenProcessPool) for f in done)
         if broken and self.make_pool is not None:
             wait(self.pending)  # every city in flight fails with the pool
             done = set(self.pending)
         shared = broken and self.make_pool is not None and len(done) > 1
         for fut in [f for f in self.pending if f in done]:
             task = self.pending.pop(fut)
-            exc = fut.exception()
+            exc = _exception(fut)
             if exc is None:
                 self.on_done(task, fut.result(), None)
             else:

@@ -95,8 +95,9 @@ class ParquetRows(CitySource):
         import pyarrow.dataset as ds
 
         dataset = ds.dataset(self.path, format="parquet")
-        present = set(dataset.schema.names)
-        wanted = [c for c in dict.fromkeys(columns) if c in present]  # missing ones are named by the model's check
+        wanted = list(dict.fromkeys(columns))
+        if not set(wanted) <= set(dataset.schema.names):  # read every column, so the model's message lists them all
+            wanted = [c for c in dataset.schema.names if c != self.column]
         table = dataset.to_table(columns=wanted, filter=ds.field(self.column) == self.value)
         return table.to_pandas()
 
@@ -226,8 +227,13 @@ def _from_path(path: Path, city: str | None) -> list[CityTask]:
     if not path.exists():
         raise DataError(f"{path} does not exist; give a folder of CSV files, a CSV file or a Parquet file.")
     if path.is_dir():
-        if any(p.suffix.lower() == ".parquet" for p in path.rglob("*.parquet")) and city is not None:
+        if any(path.rglob("*.parquet")):
             return _from_parquet(path, city)
+        if city is not None:
+            raise SpecificationError(
+                f"city={city!r} names the city column of one table, but {path} is a folder of CSV files, one city "
+                "per file named by the file stem: leave out city, or give the path of one table."
+            )
         return _from_folder(CsvFolder(path))
     if path.suffix.lower() in (".parquet", ".pq"):
         return _from_parquet(path, city)
@@ -248,6 +254,10 @@ def city_tasks(cities: Any, city: str | None = None) -> list[CityTask]:
     if isinstance(cities, pd.DataFrame):
         tasks = _from_long_frame(cities, city)
     elif isinstance(cities, Mapping):
+        if city is not None:
+            raise SpecificationError(
+                f"city={city!r} names the city column of one table; a mapping's keys are the city names already."
+            )
         tasks = _from_mapping(cities)
     elif isinstance(cities, CsvFolder):
         tasks = _from_folder(cities)
