@@ -118,3 +118,23 @@ def test_an_unreachable_dask_scheduler_ends_with_exit_2_naming_it(folder, tmp_pa
     assert main([*args, "--scheduler", address, "--connect-timeout", "1"]) == 2
     assert f"the dask scheduler at '{address}' could not be reached" in one_line_error(capsys, "fit-cities")
     assert not (tmp_path / "e.csv").exists()  # nothing written, nothing overwritten
+
+
+def test_pool_with_a_moderator_equals_python_meta_regression(tmp_path, capsys):
+    rng = np.random.default_rng(4)
+    table = pd.DataFrame(
+        {
+            "town": [f"T{i}" for i in range(12)],
+            "coef": rng.normal(0.0008, 0.0004, 12),
+            "se": rng.uniform(2e-4, 6e-4, 12),
+            "mean_temp": rng.uniform(5, 20, 12),
+        }
+    )
+    path = tmp_path / "est.csv"
+    table.to_csv(path, index=False)
+    assert main(["pool", str(path), "--city", "town", "--moderator", "mean_temp", "--json"]) == 0
+    record = json.loads(capsys.readouterr().out)
+    python = airhealth.pool(table.rename(columns={"town": "city"}), moderators=["mean_temp"]).to_dict()
+    for key in ("qm", "qm_p", "tau2", "q"):
+        assert record[key] == pytest.approx(python[key], rel=1e-15), key  # same numbers through JSON
+    assert record["moderators"] == ["mean_temp"]

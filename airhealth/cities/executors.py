@@ -65,7 +65,15 @@ def _exception(future: Future) -> BaseException | None:
 class _Runner:
     """The loop over cities: a window of futures, retries, pool replacement and one-at-a-time reruns."""
 
-    def __init__(self, work, executor, make_pool, retries, window, on_done) -> None:
+    def __init__(
+        self,
+        work: Callable[[CityTask], dict[str, Any]],
+        executor: Executor,
+        make_pool: Callable[[], Executor] | None,
+        retries: int,
+        window: int,
+        on_done: Callable[[CityTask, dict[str, Any] | None, str | None], None],
+    ) -> None:
         self.work, self.executor, self.make_pool = work, executor, make_pool
         self.retries, self.window, self.on_done = retries, window, on_done
         self.attempts: dict[int, int] = {}
