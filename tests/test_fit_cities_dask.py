@@ -5,6 +5,9 @@ Skipped (with the reason) when dask.distributed is not installed: it is the opti
 
 from __future__ import annotations
 
+import os
+from dataclasses import dataclass, field
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -12,6 +15,7 @@ import pytest
 import airhealth
 from airhealth import SpecificationError
 from airhealth.cities.executors import connect_dask
+from airhealth.cities.inputs import CitySource
 from airhealth.cities.simulate_cities import simulate_cities
 
 distributed = pytest.importorskip(
@@ -66,3 +70,48 @@ def test_dask_workers_read_their_own_parquet_rows(client, tmp_path):
 def test_an_unreachable_scheduler_is_a_clear_error_naming_the_address():
     with pytest.raises(SpecificationError, match=r"the dask scheduler at 'tcp://127.0.0.1:9' could not be reached"):
         connect_dask("tcp://127.0.0.1:9", timeout=1)
+
+
+@dataclass(frozen=True)
+class DyingSource(CitySource):
+    """Kills the dask worker process that loads it (pickled by value, so workers need not import this file)."""
+
+    frame: pd.DataFrame = field(repr=False)
+    parent: int
+
+    def load(self, columns):
+        if os.getpid() != self.parent:
+            os._exit(3)
+        return self.frame
+
+
+@pytest.mark.slow
+def test_a_city_that_kills_its_dask_worker_is_retried_then_reported():
+    import sys
+
+    import cloudpickle
+    import dask
+
+    scenario = simulate_cities(n_cities=3, years=1.5, seed=23)
+    cities = dict(scenario.frames)
+    cities["Brackenmoor"] = DyingSource(scenario.frames["Brackenmoor"], os.getpid())
+    cloudpickle.register_pickle_by_value(sys.modules[__name__])
+    try:
+        with dask.config.set({"distributed.scheduler.allowed-failures": 0}):
+            cluster = distributed.LocalCluster(
+                n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None, silence_logs=50
+            )
+            client = distributed.Client(cluster, set_as_default=False)
+            try:
+                with pytest.warns(airhealth.DataWarning, match=r"could not be fitted \(Brackenmoor\)"):
+                    table = airhealth.fit_cities(cities, client.get_executor(), show_progress=False, **MODEL)
+            finally:
+                client.close()
+                cluster.close()
+    finally:
+        cloudpickle.unregister_pickle_by_value(sys.modules[__name__])
+    error = table.set_index("city").loc["Brackenmoor", "error"]
+    assert error.startswith("the worker fitting this city stopped (KilledWorker: ") and "on 2 attempts" in error
+    serial = airhealth.fit_cities(scenario.frames, "serial", show_progress=False, **MODEL).set_index("city")
+    others = table.set_index("city").drop(index="Brackenmoor")
+    pd.testing.assert_frame_equal(others, serial.drop(index="Brackenmoor"))
