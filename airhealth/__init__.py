@@ -6,7 +6,7 @@ review, local regulation or licensed public-health practice.
 
 from .burden import BurdenResult, burden_from_estimate, burden_pooled, preset_table
 from .burden import burden as attributable_burden
-from .cities import pool, pool_multivariate
+from .cities import fit_cities, pool, pool_multivariate
 from .errors import (
     AirhealthError,
     AirhealthWarning,
@@ -80,6 +80,7 @@ __all__ = [
     "export_table",
     "exposure_response",
     "fit",
+    "fit_cities",
     "fit_outcomes",
     "lag_response",
     "load_sample",

@@ -152,7 +152,7 @@ def test_every_command_has_working_help(capsys):
             main([command, "--help"])
         assert info.value.code == 0
         assert f"usage: airhealth {command}" in capsys.readouterr().out
-    assert set(COMMANDS) == {"report", "fit", "align", "daily", "demo", "burden", "compare"}
+    assert set(COMMANDS) == {"report", "fit", "compare", "align", "daily", "demo", "burden", "fit-cities", "pool"}
     assert "report" in build_parser().format_help()
 
 

@@ -15,7 +15,7 @@ from .. import __version__
 from ..errors import AirhealthError
 from .remedies import with_command_line_remedy
 
-COMMANDS = ("report", "fit", "align", "daily", "demo", "burden", "compare")
+COMMANDS = ("report", "fit", "compare", "align", "daily", "demo", "burden", "fit-cities", "pool")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -27,10 +27,11 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"airhealth {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name in COMMANDS:
+        module_name = f"airhealth.cli.{name.replace('-', '_')}"  # fit-cities -> fit_cities
         try:
-            module = importlib.import_module(f"airhealth.cli.{name}")
+            module = importlib.import_module(module_name)
         except ModuleNotFoundError as exc:  # a command still being built
-            if exc.name != f"airhealth.cli.{name}":
+            if exc.name != module_name:
                 raise
             continue
         module.register(sub)
