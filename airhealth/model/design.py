@@ -24,6 +24,7 @@ from ..prep.guards import ColumnRoles, check_values, clean_values
 from ..prep.validate import check_counts, check_finite, check_not_all_missing, require_columns
 from .bases.exposure_lag import ExposureLagBasis
 from .bases.lag_structures import LagStructure, MovingAverage, SingleDay
+from .bases.strata import StrataUsed, used_strata
 from .bases.terms import Categorical, TermBlock
 from .engine.aliasing import aliased_columns, describe_aliased
 from .spec import ModelSpec
@@ -87,6 +88,7 @@ class Design:
     lag: Any = None  # the lag structure as fitted (an exposure-lag basis bound to the exposure), if it differs
     aliased: tuple[str, ...] = ()  # confounder columns left out: no support on the days used (aliasing)
     notes: tuple[str, ...] = ()  # plain-language notes for the result (why columns were aliased)
+    strata: StrataUsed | None = None  # case-crossover: the stratum of each day used (no intercept column)
 
     @property
     def n_confounder_columns(self) -> int:
@@ -339,7 +341,12 @@ def _longest_unused_run(used: np.ndarray) -> int:
 
 
 def _alias_confounders(
-    block: np.ndarray, conf: ConfounderBlock, calendar: pd.DatetimeIndex, used: np.ndarray, reasons: np.ndarray
+    block: np.ndarray,
+    conf: ConfounderBlock,
+    calendar: pd.DatetimeIndex,
+    used: np.ndarray,
+    reasons: np.ndarray,
+    first: int = 0,
 ) -> tuple[np.ndarray, str | None]:
     """Indices of confounder columns the days used cannot estimate, and the warning text (None if none).
 
@@ -347,13 +354,15 @@ def _alias_confounders(
     unusable days leaves some column zero on every day used, the R ``glm.fit`` rule of
     :func:`~airhealth.model.engine.aliasing.aliased_columns` finds those columns and any other column the days
     used make an exact combination of earlier ones. Other rank problems are named by the engine.
+    ``block`` holds the confounder columns from ``first`` on (1 for a case-crossover, which has no intercept
+    column); the indices returned are into ``block``.
     """
     none = np.array([], dtype=int)
     if used.all() or _longest_unused_run(used) < MIN_GAP_CHECKED or np.all(np.any(block != 0, axis=0)):
         return none, None
     aliased = aliased_columns(block)
-    names = [conf.column_names[j] for j in aliased]
-    return aliased, describe_aliased(names, conf.matrix[:, aliased], calendar, used, reasons)
+    names = [conf.column_names[first + j] for j in aliased]
+    return aliased, describe_aliased(names, conf.matrix[:, first + aliased], calendar, used, reasons)
 
 
 def lag_window_remedy(lag: LagStructure) -> str:
@@ -415,8 +424,12 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     reasons = np.full(len(frame), "", dtype=object)
     reasons[unused] = _drop_reasons(frame, spec, y, exposure, conf, offset, unused, raw)
     calendar = pd.DatetimeIndex(frame[spec.date])
+    strata, first = None, 0  # a case-crossover: strata instead of the intercept column
+    if spec.design == "case-crossover":
+        used, more, strata = used_strata(calendar, y, used, spec.outcome)
+        reasons[more != ""], unused, first = more[more != ""], np.flatnonzero(~used), 1
     dropped = pd.DataFrame({"date": calendar[unused], "reason": reasons[unused].astype(str)})
-    names = conf.column_names + tuple(lag.column_names(spec.exposure))
+    names = conf.column_names[first:] + tuple(lag.column_names(spec.exposure))
     p = len(names)
     n_used = int(used.sum())
     check_usable_days(
@@ -431,10 +444,10 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         window_remedy=lag_window_remedy(spec.lag) if (reasons == EXPOSURE_IN_WINDOW).any() else "",
     )
     matrix = np.empty((n_used, p), order="F")  # column-major: the engine's syrk is fastest on it
-    k = conf.matrix.shape[1]
-    _gather_rows(conf.matrix, used, matrix[:, :k])
+    k = conf.matrix.shape[1] - first
+    _gather_rows(conf.matrix[:, first:], used, matrix[:, :k])
     matrix[:, k:] = exposure[used]
-    aliased, why = _alias_confounders(matrix[:, :k], conf, calendar, used, reasons)
+    aliased, why = _alias_confounders(matrix[:, :k], conf, calendar, used, reasons, first)
     if aliased.size:
         warn_user(why, DataWarning)
         keep = np.setdiff1d(np.arange(p), aliased)
@@ -453,6 +466,7 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         exposure_values=exposure,
         exposure_raw=raw,
         lag=None if lag is spec.lag else lag,
-        aliased=tuple(conf.column_names[j] for j in aliased),
+        aliased=tuple(conf.column_names[first + j] for j in aliased),
         notes=() if why is None else (why,),
+        strata=strata,
     )

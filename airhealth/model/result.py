@@ -113,12 +113,15 @@ class FitResult:
     hac_lags : int or None
         Truncation lag of the Newey–West covariance when ``spec.interval == "hac"`` (``cov`` is then that
         sandwich); ``None`` for the model-based covariance.
+    strata : mapping or None
+        For ``spec.design == "case-crossover"``: ``n_strata`` (strata in the fit),
+        ``n_strata_without_events`` and ``n_strata_single_day`` (strata left out); ``None`` otherwise.
     """
 
     __slots__ = (
         "_bases", "_coef", "_cov", "_dropped", "_fitted", "_matrix", "_observed", "aliased", "converged",
         "deviance", "df_resid", "dispersion", "exposure_columns", "exposure_iqr", "hac_lags", "loglik", "n_days",
-        "n_iter", "notes", "qaic", "spec", "theta",
+        "n_iter", "notes", "qaic", "spec", "strata", "theta",
     )  # fmt: skip
 
     spec: ModelSpec
@@ -136,6 +139,7 @@ class FitResult:
     aliased: tuple[str, ...]
     notes: tuple[str, ...]
     hac_lags: int | None
+    strata: Mapping[str, int] | None
 
     def __init__(
         self,
@@ -161,6 +165,7 @@ class FitResult:
         notes: Sequence[str] = (),
         design_matrix: np.ndarray | None = None,
         hac_lags: int | None = None,
+        strata: Mapping[str, int] | None = None,
         *,
         _copy: bool = True,
     ) -> None:
@@ -175,6 +180,7 @@ class FitResult:
             ("exposure_iqr", exposure_iqr), ("converged", converged), ("n_iter", n_iter), ("theta", theta),
             ("_bases", MappingProxyType(dict(bases or {}))), ("aliased", tuple(aliased)), ("notes", tuple(notes)),
             ("_matrix", freeze(design_matrix)), ("hac_lags", hac_lags),
+            ("strata", None if strata is None else MappingProxyType(dict(strata))),
         ):  # fmt: skip
             put(self, name, value)
 
@@ -202,7 +208,8 @@ class FitResult:
             self.exposure_iqr, self.converged, self.n_iter, self.theta, dict(self._bases), self.aliased, self.notes,
         )  # fmt: skip
         # the design matrix and HAC lag go by keyword, so the positional arguments end with aliased, notes
-        return (partial(type(self), design_matrix=self._matrix, hac_lags=self.hac_lags), args)
+        strata = None if self.strata is None else dict(self.strata)
+        return (partial(type(self), design_matrix=self._matrix, hac_lags=self.hac_lags, strata=strata), args)
 
     # -- what the result gives out: copies, or read-only ------------------------------------------
     @property
@@ -390,7 +397,9 @@ class FitResult:
             "aliased": list(self.aliased),
             "notes": list(self.notes),
             "interval": self.spec.interval,
+            "design": self.spec.design,
         }
+        out.update(self.strata or {})  # a case-crossover: n_strata, n_strata_without_events, n_strata_single_day
         if self.hac_lags is not None:
             out["hac_lags"] = self.hac_lags
         if self.theta is not None:

@@ -73,11 +73,17 @@ def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any
         frame = model_frame(data, deepest)
         confounders = cached_confounders(frame, specs[0])
         designs = [build_design(frame, spec, confounders) for spec in specs]
+    if common_days and specs[0].design == "case-crossover":
+        raise SpecificationError(
+            "common_days=True is not available with design='case-crossover' (the days used decide the strata); "
+            "compare the structures on their own days (common_days=False)."
+        )
     if common_days:
         keep = _common([d.used for d in designs], designs)
         designs = [_restrict(d, keep) for d in designs]
     shared = specs[0].family != "negbin" and not any(hasattr(s.lag, "bind") for s in specs)
     shared = shared and specs[0].interval == "quasi-poisson"  # HAC intervals: each structure's single fit
+    shared = shared and specs[0].design == "time-series"  # a case-crossover: each structure's single fit
     return _Grid(specs, frame, confounders, designs, shared)
 
 
