@@ -41,7 +41,7 @@ def stratum_codes(calendar: pd.DatetimeIndex) -> np.ndarray:
     [169659, 169659, 169660, 169666]
     """
     months = calendar.year.to_numpy(dtype=np.int64) * 12 + calendar.month.to_numpy(dtype=np.int64) - 1
-    return months * 7 + calendar.dayofweek.to_numpy(dtype=np.int64)
+    return months * 7 + calendar.day_of_week.to_numpy(dtype=np.int64)
 
 
 @dataclass(frozen=True)

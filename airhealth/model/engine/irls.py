@@ -188,7 +188,7 @@ def _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf, strata=None) -
         mu0 = y + 0.1
         eta0 = np.log(mu0)
         ww = fam.working_weights(mu0, w)
-        Xw = _within(X, ww, strata)
+        Xw = _within(X, ww, strata, names)
         chol = _cholesky(_weighted_gram(Xw, ww, buf), names, lambda: buf)
         rhs = Xw.T @ (ww * (eta0 - offset) + fam.score_residuals(y, mu0, w))
         coef = lapack.dpotrs(chol, rhs, lower=0)[0]
@@ -213,16 +213,31 @@ def _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf, strata=None) -
     return s
 
 
-def _within(X, ww, strata):
-    """``X`` itself, or with strata ``X`` minus its ``ww``-weighted stratum means (Frisch–Waugh–Lovell)."""
+def _within(X, ww, strata, names):
+    """``X`` itself, or with strata ``X`` minus its ``ww``-weighted stratum means (Frisch–Waugh–Lovell).
+
+    A column the strata explain (constant within every stratum, to 1 - R² < ``RANK_TOL``) raises
+    :class:`FitError` naming it: its coefficient is not identified beside the stratum intercepts.
+    """
     if strata is None:
         return X
-    return strata.demean(X, ww, workspace("strata", X.shape, layout(X)))
+    out = strata.demean(X, ww, workspace("strata", X.shape, layout(X)))
+    before = np.einsum("i,ij,ij->j", ww, X, X)
+    bad = np.flatnonzero(np.einsum("i,ij,ij->j", ww, out, out) <= RANK_TOL * before)
+    if bad.size:
+        shown = ", ".join(repr(names[j]) if names else f"column {j}" for j in bad)
+        one = bad.size == 1
+        raise FitError(
+            f"{shown} {'is' if one else 'are'} constant within every stratum, so the stratum intercepts already "
+            f"hold {'it' if one else 'them'} and {'its coefficient' if one else 'their coefficients'} cannot be "
+            f"estimated; remove {'it' if one else 'them'} from the model."
+        )
+    return out
 
 
 def _refresh(s: _State, X, w, fam, names, buf, strata=None) -> None:
     ww = fam.working_weights(s.mu, w)
-    s.chol = _cholesky(_weighted_gram(_within(X, ww, strata), ww, buf), names, lambda: buf)
+    s.chol = _cholesky(_weighted_gram(_within(X, ww, strata, names), ww, buf), names, lambda: buf)
     s.fresh = True
     s.n_factorisations += 1
 
