@@ -11,10 +11,12 @@ from pathlib import Path
 from typing import Any
 
 from .options import (
+    add_design_options,
     add_model_options,
     add_reading_options,
     check_min_count,
     confidence_level,
+    design_options,
     model_options,
     parse_units,
     read_daily,
@@ -36,6 +38,7 @@ def register(sub: Any) -> None:
     p.add_argument("--lag", default="0-1", help='lag: "0", "2", "0-1", "dl0-5", "dl0-7:poly3", ... (default "0-1")')
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     add_model_options(p)
+    add_design_options(p)
     add_reading_options(p)
     p.set_defaults(func=run)
 
@@ -60,7 +63,8 @@ def _fit(args: argparse.Namespace) -> Any:
     check_min_count([lag], args.min_count)
     units = parse_units(args.unit, [args.exposure])
     data = read_daily(args, [args.outcome, args.exposure, args.temperature, args.humidity])
-    return fit(data, outcome=args.outcome, exposure=args.exposure, lag=lag, units=units, **model_options(args))
+    options = model_options(args) | design_options(args)
+    return fit(data, outcome=args.outcome, exposure=args.exposure, lag=lag, units=units, **options)
 
 
 def run(args: argparse.Namespace) -> int:
@@ -88,6 +92,12 @@ def run(args: argparse.Namespace) -> int:
         )
         if result.hac_lags is not None:
             print(f"intervals: Newey-West (HAC), truncation lag {result.hac_lags} days")
+        if result.strata is not None:
+            s = result.strata
+            print(
+                f"time-stratified case-crossover: {s['n_strata']} strata (year x month x day of week); left out: "
+                f"{s['n_strata_without_events']} without events, {s['n_strata_single_day']} with one usable day"
+            )
         warned = {str(w.message) for w in caught}
         for note in result.notes:  # how the fit was obtained (e.g. a negative binomial fitted as Poisson)
             if note not in warned:
