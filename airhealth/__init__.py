@@ -33,6 +33,7 @@ from .prep.align import align_daily
 from .report.city_report import write_report
 from .sample import load_sample, load_sample_tables
 from .studies.compare import compare
+from .studies.design_comparison import compare_designs
 from .studies.diagnostics import Diagnostics, diagnose
 
 __version__ = "0.1.0"
@@ -65,6 +66,7 @@ __all__ = [
     "__version__",
     "align_daily",
     "compare",
+    "compare_designs",
     "diagnose",
     "exposure_response",
     "fit",
