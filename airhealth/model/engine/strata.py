@@ -26,7 +26,7 @@ Armstrong BG, Gasparrini A, Tobias A (2014). Conditional Poisson models: a flexi
 conditional logistic case cross-over analysis. BMC Med Res Methodol 14:122.
 Frisch R, Waugh FV (1933). Partial time regressions as compared with individual trends. Econometrica
 1:387–401; Lovell MC (1963). Seasonal adjustment of economic time series and multiple regression analysis.
-J Am Stat Assoc 58:993–1010.
+J Am Stat Assoc 58:993–1010. (Both from memory.)
 """
 
 from __future__ import annotations
