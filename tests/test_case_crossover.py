@@ -223,3 +223,19 @@ def test_fit_does_not_change_the_callers_data(three_years):
     before = data.copy(deep=True)
     airhealth.fit(data, "deaths_all", "pm25", design="case-crossover")
     pd.testing.assert_frame_equal(data, before)
+
+
+def test_diagnose_refuses_a_case_crossover_fit(three_years):
+    result = airhealth.fit(three_years, "deaths_all", "pm25", design="case-crossover")
+    with pytest.raises(SpecificationError, match="diagnose checks time-series fits; this is a case-crossover fit"):
+        airhealth.diagnose(result)
+
+
+def test_case_crossover_result_pickles_with_its_strata_and_they_are_read_only(three_years):
+    import pickle
+
+    result = airhealth.fit(three_years, "deaths_all", "pm25", design="case-crossover")
+    again = pickle.loads(pickle.dumps(result))
+    assert again.to_dict() == result.to_dict()
+    with pytest.raises(TypeError):
+        result.strata["n_strata"] = 0
