@@ -12,6 +12,8 @@ information left in or out) compare airhealth with itself: 1e-10 relative (round
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -239,3 +241,20 @@ def test_case_crossover_result_pickles_with_its_strata_and_they_are_read_only(th
     assert again.to_dict() == result.to_dict()
     with pytest.raises(TypeError):
         result.strata["n_strata"] = 0
+
+
+def test_engine_refuses_strata_without_events_and_negbin_with_strata():
+    X = np.column_stack([np.arange(8.0), np.arange(8.0) ** 0.5])
+    y = np.array([0.0, 0, 0, 0, 3, 5, 2, 4])
+    codes = np.array([0, 0, 0, 0, 1, 1, 1, 1])
+    with pytest.raises(FitError, match=re.escape("1 strata have no events (e.g. the stratum of rows [0, 1, 2])")):
+        fit_glm(X, y, family="poisson", strata=codes)
+    with pytest.raises(FitError, match="apply to Poisson and quasi-Poisson fits only"):
+        fit_glm(X, y + 1, family="negbin", strata=codes)
+    with pytest.raises(FitError, match=re.escape("strata has shape (7,) but the design matrix has 8 rows")):
+        fit_glm(X, y + 1, family="poisson", strata=codes[:7])
+
+
+def test_notebook_display_names_the_design(three_years):
+    result = airhealth.fit(three_years, "deaths_all", "pm25", design="case-crossover")
+    assert "time-stratified case-crossover, 252 strata" in result._repr_html_()
