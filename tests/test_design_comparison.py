@@ -78,3 +78,16 @@ def test_design_section_blocks_and_written_page_say_association(table, tmp_path)
     page = index.read_text(encoding="utf-8")
     assert "Time series and case-crossover" in page and "case-crossover: RR (CI)" in page
     assert (index.parent / "tables" / "design_comparison_tidy.csv").exists()
+
+
+def test_report_methods_text_describes_the_case_crossover():
+    from airhealth.model.spec import ModelSpec
+    from airhealth.report.city_report import describe_model
+
+    spec = ModelSpec("deaths_all", "pm25", temperature="temperature", design="case-crossover")
+    text = describe_model(spec, 5113)
+    assert text.startswith(
+        "Time-stratified case-crossover over 5113 days (14.0 years), fitted as a conditional quasi-Poisson model"
+    )
+    assert "spline of time" not in text and "day-of-week indicators" not in text
+    assert "natural splines of same-day temperature (6 df)" in text
