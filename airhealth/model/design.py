@@ -425,9 +425,10 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     reasons[unused] = _drop_reasons(frame, spec, y, exposure, conf, offset, unused, raw)
     calendar = pd.DatetimeIndex(frame[spec.date])
     strata, first = None, 0  # a case-crossover: strata instead of the intercept column
-    if spec.design == "case-crossover":
+    if spec.design == "case-crossover":  # strata without events or with one usable day are left out
         used, more, strata = used_strata(calendar, y, used, spec.outcome)
-        reasons[more != ""], unused, first = more[more != ""], np.flatnonzero(~used), 1
+        reasons = np.where(more != "", more, reasons)
+        unused, first = np.flatnonzero(~used), 1
     dropped = pd.DataFrame({"date": calendar[unused], "reason": reasons[unused].astype(str)})
     names = conf.column_names[first:] + tuple(lag.column_names(spec.exposure))
     p = len(names)
