@@ -42,7 +42,7 @@ from .core import layout, workspace
 from .core import weighted_gram as _weighted_gram
 from .degenerate import check_dispersion, check_response, collapsed_weights_error, not_converged_message
 from .families import NegativeBinomial, Poisson
-from .strata import StratumIndex
+from .strata import checked_strata, within_strata
 from .theta_fit import fit_theta
 
 __all__ = ["FamilyName", "GLMFit", "ThetaMethod", "fit_glm", "information_criterion"]
@@ -188,7 +188,7 @@ def _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf, strata=None) -
         mu0 = y + 0.1
         eta0 = np.log(mu0)
         ww = fam.working_weights(mu0, w)
-        Xw = _within(X, ww, strata, names)
+        Xw = within_strata(X, ww, strata, names)
         chol = _cholesky(_weighted_gram(Xw, ww, buf), names, lambda: buf)
         rhs = Xw.T @ (ww * (eta0 - offset) + fam.score_residuals(y, mu0, w))
         coef = lapack.dpotrs(chol, rhs, lower=0)[0]
@@ -213,31 +213,9 @@ def _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf, strata=None) -
     return s
 
 
-def _within(X, ww, strata, names):
-    """``X`` itself, or with strata ``X`` minus its ``ww``-weighted stratum means (Frisch–Waugh–Lovell).
-
-    A column the strata explain (constant within every stratum, to 1 - R² < ``RANK_TOL``) raises
-    :class:`FitError` naming it: its coefficient is not identified beside the stratum intercepts.
-    """
-    if strata is None:
-        return X
-    out = strata.demean(X, ww, workspace("strata", X.shape, layout(X)))
-    before = np.einsum("i,ij,ij->j", ww, X, X)
-    bad = np.flatnonzero(np.einsum("i,ij,ij->j", ww, out, out) <= RANK_TOL * before)
-    if bad.size:
-        shown = ", ".join(repr(names[j]) if names else f"column {j}" for j in bad)
-        one = bad.size == 1
-        raise FitError(
-            f"{shown} {'is' if one else 'are'} constant within every stratum, so the stratum intercepts already "
-            f"hold {'it' if one else 'them'} and {'its coefficient' if one else 'their coefficients'} cannot be "
-            f"estimated; remove {'it' if one else 'them'} from the model."
-        )
-    return out
-
-
 def _refresh(s: _State, X, w, fam, names, buf, strata=None) -> None:
     ww = fam.working_weights(s.mu, w)
-    s.chol = _cholesky(_weighted_gram(_within(X, ww, strata, names), ww, buf), names, lambda: buf)
+    s.chol = _cholesky(_weighted_gram(within_strata(X, ww, strata, names), ww, buf), names, lambda: buf)
     s.fresh = True
     s.n_factorisations += 1
 
@@ -458,7 +436,7 @@ def fit_glm(
     check_response(y, w, response_name)
     if start is not None:
         start = as_vector("start", start, X.shape[1], 0.0)
-    strata = _checked_strata(strata, X.shape, y, w, family)
+    strata = checked_strata(strata, X.shape, y, w, family)
     buf = workspace("design", X.shape, layout(X))
     try:
         fam, state, notes = _fit_family(
@@ -479,31 +457,6 @@ def fit_glm(
         has_intercept=intercept_column(X), theta_estimated=theta_estimated, notes=notes,
         response_name=response_name, strata=strata,
     )  # fmt: skip
-
-
-def _checked_strata(strata, shape, y, w, family) -> StratumIndex | None:
-    """The strata as a :class:`StratumIndex` (None without strata), checked against the design."""
-    if strata is None:
-        return None
-    if family == "negbin":
-        raise FitError("strata (eliminated stratum intercepts) apply to Poisson and quasi-Poisson fits only.")
-    codes = strata.codes if isinstance(strata, StratumIndex) else np.asarray(strata)
-    if codes.shape != (shape[0],):
-        raise FitError(f"strata has shape {codes.shape} but the design matrix has {shape[0]} rows.")
-    index = strata if isinstance(strata, StratumIndex) else StratumIndex(codes)
-    empty = np.flatnonzero(index.totals(w * y) <= 0)
-    if empty.size:  # the stratum's intercept would be minus infinity; it carries no information on beta
-        rows = np.flatnonzero(np.isin(index.codes, empty))[:3].tolist()
-        raise FitError(
-            f"{empty.size} strata have no events (e.g. the stratum of rows {rows}); they carry no information "
-            "on the coefficients: leave their rows out."
-        )
-    if float(w.sum()) <= shape[1] + index.n_strata:
-        raise FitError(
-            f"The model has {shape[1]} coefficients and {index.n_strata} strata but only {w.sum():g} rows; "
-            "it needs more rows than coefficients plus strata."
-        )
-    return index
 
 
 def _fit_family(X, y, w, offset, family, theta, start, theta_method, tol, max_iter, names, buf, strata=None):

@@ -31,13 +31,17 @@ J Am Stat Assoc 58:993–1010. (Both from memory.)
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
 from ...errors import FitError
+from .checks import RANK_TOL
+from .core import layout, workspace
 
-__all__ = ["StratumIndex"]
+__all__ = ["StratumIndex", "checked_strata", "within_strata"]
 
 
 @dataclass(frozen=True)
@@ -94,3 +98,54 @@ class StratumIndex:
     def null_means(self, offset: np.ndarray, y: np.ndarray, w: np.ndarray) -> np.ndarray:
         """Fitted means of the model with the stratum intercepts (and the offset) only."""
         return np.exp(self.profile(offset, y, w))
+
+
+def checked_strata(
+    strata: Any, shape: tuple[int, int], y: np.ndarray, w: np.ndarray, family: str
+) -> StratumIndex | None:
+    """The strata as a :class:`StratumIndex` (None without strata), checked against the design."""
+    if strata is None:
+        return None
+    if family == "negbin":
+        raise FitError("strata (eliminated stratum intercepts) apply to Poisson and quasi-Poisson fits only.")
+    codes = strata.codes if isinstance(strata, StratumIndex) else np.asarray(strata)
+    if codes.shape != (shape[0],):
+        raise FitError(f"strata has shape {codes.shape} but the design matrix has {shape[0]} rows.")
+    index = strata if isinstance(strata, StratumIndex) else StratumIndex(codes)
+    empty = np.flatnonzero(index.totals(w * y) <= 0)
+    if empty.size:  # the stratum's intercept would be minus infinity; it carries no information on beta
+        rows = np.flatnonzero(np.isin(index.codes, empty))[:3].tolist()
+        raise FitError(
+            f"{empty.size} strata have no events (e.g. the stratum of rows {rows}); they carry no information "
+            "on the coefficients: leave their rows out."
+        )
+    if float(w.sum()) <= shape[1] + index.n_strata:
+        raise FitError(
+            f"The model has {shape[1]} coefficients and {index.n_strata} strata but only {w.sum():g} rows; "
+            "it needs more rows than coefficients plus strata."
+        )
+    return index
+
+
+def within_strata(
+    X: np.ndarray, ww: np.ndarray, strata: StratumIndex | None, names: Sequence[str] | None
+) -> np.ndarray:
+    """``X`` itself, or with strata ``X`` minus its ``ww``-weighted stratum means (Frisch–Waugh–Lovell).
+
+    A column the strata explain (constant within every stratum, to 1 - R² < ``RANK_TOL``) raises
+    :class:`FitError` naming it: its coefficient is not identified beside the stratum intercepts.
+    """
+    if strata is None:
+        return X
+    out = strata.demean(X, ww, workspace("strata", X.shape, layout(X)))
+    before = np.einsum("i,ij,ij->j", ww, X, X)
+    bad = np.flatnonzero(np.einsum("i,ij,ij->j", ww, out, out) <= RANK_TOL * before)
+    if bad.size:
+        shown = ", ".join(repr(names[j]) if names else f"column {j}" for j in bad)
+        one = bad.size == 1
+        raise FitError(
+            f"{shown} {'is' if one else 'are'} constant within every stratum, so the stratum intercepts already "
+            f"hold {'it' if one else 'them'} and {'its coefficient' if one else 'their coefficients'} cannot be "
+            f"estimated; remove {'it' if one else 'them'} from the model."
+        )
+    return out
