@@ -38,6 +38,7 @@ from .report.export import export_table
 from .sample import load_sample, load_sample_tables
 from .studies.compare import compare
 from .studies.copollutants import copollutant_table
+from .studies.design_comparison import compare_designs
 from .studies.diagnostics import Diagnostics, diagnose
 from .studies.outcomes import fit_outcomes
 
@@ -75,6 +76,7 @@ __all__ = [
     "burden_from_estimate",
     "burden_pooled",
     "compare",
+    "compare_designs",
     "copollutant_table",
     "diagnose",
     "export_table",

@@ -12,12 +12,14 @@ from typing import Any
 
 from .options import (
     add_copollutant_options,
+    add_design_options,
     add_label_option,
     add_model_options,
     add_reading_options,
     check_min_count,
     confidence_level,
     copollutant_options,
+    design_options,
     model_options,
     parse_labels,
     parse_units,
@@ -42,6 +44,7 @@ def register(sub: Any) -> None:
     add_label_option(p)
     add_model_options(p)
     add_copollutant_options(p)
+    add_design_options(p)
     add_reading_options(p)
     p.set_defaults(func=run)
 
@@ -67,7 +70,7 @@ def _fit(args: argparse.Namespace) -> Any:
     units = parse_units(args.unit, [args.exposure, *args.copollutant])
     columns = [args.outcome, args.exposure, args.temperature, args.humidity, *args.copollutant, args.modifier]
     data = read_daily(args, columns, per_analysis=[args.modifier] if args.modifier else ())
-    options = {**model_options(args), **copollutant_options(args)}
+    options = {**model_options(args), **copollutant_options(args), **design_options(args)}
     return fit(data, outcome=args.outcome, exposure=args.exposure, lag=lag, units=units, **options)
 
 
@@ -118,6 +121,12 @@ def run(args: argparse.Namespace) -> int:
         )
         if result.hac_lags is not None:
             print(f"intervals: Newey-West (HAC), truncation lag {result.hac_lags} days")
+        if result.strata is not None:
+            s = result.strata
+            print(
+                f"time-stratified case-crossover: {s['n_strata']} strata (year x month x day of week); left out: "
+                f"{s['n_strata_without_events']} without events, {s['n_strata_single_day']} with one usable day"
+            )
         warned = {str(w.message) for w in caught}
         for note in result.notes:  # how the fit was obtained (e.g. a negative binomial fitted as Poisson)
             if note not in warned:

@@ -154,6 +154,28 @@ def copollutant_options(args: argparse.Namespace) -> dict[str, Any]:
     return {"copollutants": tuple(args.copollutant), "modifier": args.modifier}
 
 
+def add_design_options(p: argparse.ArgumentParser) -> None:
+    """The study design of ``fit``: time series (default) or time-stratified case-crossover."""
+    g = p.add_argument_group("design")
+    g.add_argument(
+        "--design",
+        default="time-series",
+        help="time-series (default) or case-crossover (time-stratified: strata of year x month x day of week "
+        "replace the time spline and day of week)",
+    )
+    g.add_argument(
+        "--overdispersion",
+        default="on",
+        choices=("on", "off"),
+        help="correct the standard errors for over-dispersion: on (default, quasi-Poisson) or off (Poisson)",
+    )
+
+
+def design_options(args: argparse.Namespace) -> dict[str, Any]:
+    """The :class:`~airhealth.model.spec.ModelSpec` options of :func:`add_design_options`."""
+    return {"design": args.design, "overdispersion": args.overdispersion == "on"}
+
+
 def parse_na_values(given: str | Sequence[str] | None) -> tuple[list[str], tuple[Any, ...]]:
     """``--na-values`` (codes separated by spaces or commas) → (texts for the CSV reader, values: numbers as
     floats, other codes as text)."""

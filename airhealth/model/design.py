@@ -26,6 +26,7 @@ from .bases.copollutant import copollutant_correlations
 from .bases.exposure_lag import ExposureLagBasis
 from .bases.lag_structures import LagStructure, MovingAverage, SingleDay
 from .bases.modifier import check_group_sizes, group_column_names, interact, modifier_codes
+from .bases.strata import StrataUsed, used_strata
 from .bases.terms import Categorical, TermBlock
 from .engine.aliasing import aliased_columns, describe_aliased
 from .spec import ModelSpec
@@ -92,6 +93,7 @@ class Design:
     copollutant_correlations: tuple[float, ...] = ()  # exposure vs each co-pollutant on the days used
     groups: tuple[Any, ...] = ()  # levels of the modifier, in the order of the per-level exposure columns
     group_codes: np.ndarray | None = None  # level of each calendar day (index into groups) with a modifier
+    strata: StrataUsed | None = None  # case-crossover: the stratum of each day used (no intercept column)
 
     @property
     def n_confounder_columns(self) -> int:
@@ -345,7 +347,12 @@ def _longest_unused_run(used: np.ndarray) -> int:
 
 
 def _alias_confounders(
-    block: np.ndarray, conf: ConfounderBlock, calendar: pd.DatetimeIndex, used: np.ndarray, reasons: np.ndarray
+    block: np.ndarray,
+    conf: ConfounderBlock,
+    calendar: pd.DatetimeIndex,
+    used: np.ndarray,
+    reasons: np.ndarray,
+    first: int = 0,
 ) -> tuple[np.ndarray, str | None]:
     """Indices of confounder columns the days used cannot estimate, and the warning text (None if none).
 
@@ -353,13 +360,15 @@ def _alias_confounders(
     unusable days leaves some column zero on every day used, the R ``glm.fit`` rule of
     :func:`~airhealth.model.engine.aliasing.aliased_columns` finds those columns and any other column the days
     used make an exact combination of earlier ones. Other rank problems are named by the engine.
+    ``block`` holds the confounder columns from ``first`` on (1 for a case-crossover, which has no intercept
+    column); the indices returned are into ``block``.
     """
     none = np.array([], dtype=int)
     if used.all() or _longest_unused_run(used) < MIN_GAP_CHECKED or np.all(np.any(block != 0, axis=0)):
         return none, None
     aliased = aliased_columns(block)
-    names = [conf.column_names[j] for j in aliased]
-    return aliased, describe_aliased(names, conf.matrix[:, aliased], calendar, used, reasons)
+    names = [conf.column_names[first + j] for j in aliased]
+    return aliased, describe_aliased(names, conf.matrix[:, first + aliased], calendar, used, reasons)
 
 
 def lag_window_remedy(lag: LagStructure) -> str:
@@ -428,8 +437,13 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     unused = np.flatnonzero(~used)
     reasons = np.full(len(frame), "", dtype=object)
     reasons[unused] = _drop_reasons(frame, spec, y, exposure, conf, offset, unused, raw)
+    strata, first = None, 0  # a case-crossover: strata instead of the intercept column
+    if spec.design == "case-crossover":  # strata without events or with one usable day are left out
+        used, more, strata = used_strata(calendar, y, used, spec.outcome)
+        reasons = np.where(more != "", more, reasons)
+        unused, first = np.flatnonzero(~used), 1
     dropped = pd.DataFrame({"date": calendar[unused], "reason": reasons[unused].astype(str)})
-    names = conf.column_names + tuple(exposure_names)
+    names = conf.column_names[first:] + tuple(exposure_names)
     p = len(names)
     n_used = int(used.sum())
     check_usable_days(
@@ -445,10 +459,10 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     )
     correlations = _copollutant_checks(frame, spec, raw, used, calendar, y, codes, groups)
     matrix = np.empty((n_used, p), order="F")  # column-major: the engine's syrk is fastest on it
-    k = conf.matrix.shape[1]
-    _gather_rows(conf.matrix, used, matrix[:, :k])
+    k = conf.matrix.shape[1] - first
+    _gather_rows(conf.matrix[:, first:], used, matrix[:, :k])
     matrix[:, k:] = exposure[used]
-    aliased, why = _alias_confounders(matrix[:, :k], conf, calendar, used, reasons)
+    aliased, why = _alias_confounders(matrix[:, :k], conf, calendar, used, reasons, first)
     if aliased.size:
         warn_user(why, DataWarning)
         keep = np.setdiff1d(np.arange(p), aliased)
@@ -467,11 +481,12 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         exposure_values=exposure,
         exposure_raw=raw,
         lag=None if lag is spec.lag else lag,
-        aliased=tuple(conf.column_names[j] for j in aliased),
+        aliased=tuple(conf.column_names[first + j] for j in aliased),
         notes=() if why is None else (why,),
         copollutant_correlations=correlations,
         groups=groups,
         group_codes=codes,
+        strata=strata,
     )
 
 

@@ -43,6 +43,7 @@ def fit_design(design: Design, spec: ModelSpec, start: np.ndarray | None = None)
         max_iter=spec.max_iter,
         column_names=list(design.column_names),
         response_name=spec.outcome,
+        strata=None if design.strata is None else design.strata.codes,
     )
 
 
@@ -143,7 +144,17 @@ def result_from_fit(design: Design, spec: ModelSpec, glm: GLMFit) -> FitResult:
         copollutant_correlations=design.copollutant_correlations,
         groups=design.groups,
         group_codes=design.group_codes[design.used] if design.groups else None,
+        strata=None if design.strata is None else _strata_counts(design.strata),
     )
+
+
+def _strata_counts(strata: Any) -> dict[str, int]:
+    """The counts of a case-crossover's strata, as :meth:`FitResult.to_dict` reports them."""
+    return {
+        "n_strata": strata.n_strata,
+        "n_strata_without_events": strata.n_strata_without_events,
+        "n_strata_single_day": strata.n_strata_single_day,
+    }
 
 
 def fit_spec(data: pd.DataFrame, spec: ModelSpec) -> FitResult:

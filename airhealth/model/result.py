@@ -120,12 +120,15 @@ class FitResult:
     groups : tuple
         Levels of ``spec.modifier`` (empty without a modifier); the exposure then has one term per level
         (:meth:`effects_by_group`, :meth:`modification_test`).
+    strata : mapping or None
+        For ``spec.design == "case-crossover"``: ``n_strata`` (strata in the fit),
+        ``n_strata_without_events`` and ``n_strata_single_day`` (strata left out); ``None`` otherwise.
     """
 
     __slots__ = (
         "_bases", "_codes", "_coef", "_cov", "_dropped", "_fitted", "_matrix", "_observed", "aliased", "converged",
         "copollutant_correlations", "deviance", "df_resid", "dispersion", "exposure_columns", "exposure_iqr",
-        "groups", "hac_lags", "loglik", "n_days", "n_iter", "notes", "qaic", "spec", "theta",
+        "groups", "hac_lags", "loglik", "n_days", "n_iter", "notes", "qaic", "spec", "strata", "theta",
     )  # fmt: skip
 
     spec: ModelSpec
@@ -145,6 +148,7 @@ class FitResult:
     hac_lags: int | None
     copollutant_correlations: tuple[float, ...]
     groups: tuple[Any, ...]
+    strata: Mapping[str, int] | None
 
     def __init__(
         self,
@@ -173,6 +177,7 @@ class FitResult:
         copollutant_correlations: Sequence[float] = (),
         groups: Sequence[Any] = (),
         group_codes: np.ndarray | None = None,
+        strata: Mapping[str, int] | None = None,
         *,
         _copy: bool = True,
     ) -> None:
@@ -189,6 +194,7 @@ class FitResult:
             ("_matrix", freeze(design_matrix)), ("hac_lags", hac_lags),
             ("copollutant_correlations", tuple(float(r) for r in copollutant_correlations)),
             ("groups", tuple(groups)), ("_codes", None if group_codes is None else np.array(group_codes, dtype=int)),
+            ("strata", None if strata is None else MappingProxyType(dict(strata))),
         ):  # fmt: skip
             put(self, name, value)
 
@@ -218,6 +224,7 @@ class FitResult:
         # the design matrix and HAC lag go by keyword, so the positional arguments end with aliased, notes
         extra = {"copollutant_correlations": self.copollutant_correlations, "groups": self.groups}
         extra["group_codes"] = self._codes
+        extra["strata"] = None if self.strata is None else dict(self.strata)
         return (partial(type(self), design_matrix=self._matrix, hac_lags=self.hac_lags, **extra), args)
 
     # -- what the result gives out: copies, or read-only ------------------------------------------
@@ -435,7 +442,9 @@ class FitResult:
             "aliased": list(self.aliased),
             "notes": list(self.notes),
             "interval": self.spec.interval,
+            "design": self.spec.design,
         }
+        out.update(self.strata or {})  # a case-crossover: n_strata, n_strata_without_events, n_strata_single_day
         if self.hac_lags is not None:
             out["hac_lags"] = self.hac_lags
         if self.theta is not None:

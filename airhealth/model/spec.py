@@ -21,7 +21,7 @@ from .bases.copollutant import CopollutantTerm, checked_copollutants
 from .bases.lag_structures import LagStructure, parse_lag
 from .bases.terms import Categorical, DayOfWeek, FourierSeason, Linear, PublicHolidays, Spline, Term, TimeSpline
 
-__all__ = ["DEFAULT_UNIT", "Family", "Interval", "ModelSpec", "Seasonality", "display_unit"]
+__all__ = ["DEFAULT_UNIT", "Family", "Interval", "ModelSpec", "Seasonality", "StudyDesign", "display_unit"]
 
 #: Unit of an exposure unless the user names another.
 DEFAULT_UNIT = "µg/m³"
@@ -30,6 +30,7 @@ Family = Literal["quasipoisson", "poisson", "negbin"]
 Seasonality = Literal["spline", "fourier"]
 ThetaMethod = Literal["ml", "moments"]
 Interval = Literal["quasi-poisson", "hac"]
+StudyDesign = Literal["time-series", "case-crossover"]
 
 
 #: How each concentration unit is shown, by its code in :func:`airhealth.prep.units.parse_unit` (which knows
@@ -174,6 +175,19 @@ class ModelSpec:
     hac_lags : int or None
         Truncation lag of the ``"hac"`` interval; ``None`` (default) uses ``floor(4 (n/100)^(2/9))`` for
         ``n`` days used (Newey & West 1994), about 9 for 14 years. Must be shorter than the series.
+    design : {"time-series", "case-crossover"}
+        ``"time-series"`` (default): the model above. ``"case-crossover"``: the time-stratified
+        case-crossover fitted as the equivalent conditional Poisson model, one free intercept per stratum of
+        year × month × day of week (eliminated, not estimated; :mod:`airhealth.model.bases.strata`). The
+        strata absorb trend, season and day of week, so the time spline (or Fourier terms) and the
+        day-of-week indicators are not used; giving ``seasonality``, ``trend_df_per_year``,
+        ``fourier_pairs`` or ``day_of_week=False`` with it is an error. Temperature, humidity, holidays,
+        confounders, offset and every lag structure apply as in the time-series model. Poisson and
+        quasi-Poisson only; model-based intervals only. See ``docs/case-crossover.md``.
+    overdispersion : bool
+        Correct the standard errors for over-dispersion (default ``True``: quasi-Poisson, dispersion =
+        Pearson χ² / (days used − coefficients − strata used)). ``False`` is the same as
+        ``family="poisson"`` (dispersion 1); not with ``family="negbin"``, which models over-dispersion itself.
     tol : float
         Convergence tolerance on the relative change in deviance (default 1e-10; strict, see Dominici
         et al. 2002).
@@ -192,6 +206,10 @@ class ModelSpec:
     consistent covariance matrix. Econometrica 55:703–708.
     Newey WK, West KD (1994). Automatic lag selection in covariance matrix estimation. Rev Econ Stud
     61:631–653.
+    Armstrong BG, Gasparrini A, Tobias A (2014). Conditional Poisson models: a flexible alternative to
+    conditional logistic case cross-over analysis. BMC Med Res Methodol 14:122.
+    Janes H, Sheppard L, Lumley T (2005). Case-crossover analyses of air pollution exposure data: referent
+    selection strategies and their implications for bias. Epidemiology 16:717–726.
     """
 
     outcome: str
@@ -224,6 +242,8 @@ class ModelSpec:
     copollutants: tuple[str, ...] = ()
     copollutant_units: tuple[str, ...] = ()
     modifier: str | None = None
+    design: StudyDesign = "time-series"
+    overdispersion: bool = True
 
     def __post_init__(self) -> None:
         for name in ("outcome", "exposure", "date"):
@@ -277,6 +297,7 @@ class ModelSpec:
             raise SpecificationError(f"outcome and exposure are the same column, {self.outcome!r}.")
         self._check_roles()
         self._check_copollutants_and_modifier()
+        self._check_design()
 
     def _check_copollutants_and_modifier(self) -> None:
         """Co-pollutants: distinct columns other than the outcome and exposure; a linear lag structure."""
@@ -303,6 +324,39 @@ class ModelSpec:
                 raise SpecificationError(
                     f"a modifier needs a linear lag structure such as '0-1' or 'dl0-5', not {self.lag.label!r}."
                 )
+
+    def _check_design(self) -> None:
+        """``design`` and ``overdispersion`` and the options they exclude (see the class docstring)."""
+        check_choice("design", self.design, StudyDesign)
+        if not isinstance(self.overdispersion, bool | np.bool_):
+            raise SpecificationError(f"overdispersion must be True or False, got {self.overdispersion!r}.")
+        if not self.overdispersion:
+            if self.family == "negbin":
+                raise SpecificationError(
+                    "overdispersion=False asks for plain Poisson but family='negbin' models over-dispersion; "
+                    "choose one."
+                )
+            object.__setattr__(self, "family", "poisson")
+        if self.design != "case-crossover":
+            return
+        defaults = {"seasonality": "spline", "trend_df_per_year": 7.0, "fourier_pairs": 4, "day_of_week": True}
+        given = [f"{k}={getattr(self, k)!r}" for k, v in defaults.items() if getattr(self, k) != v]
+        if given:
+            raise SpecificationError(
+                f"{', '.join(given)} does not apply to design='case-crossover': its strata (year × month × day "
+                "of week) already control trend, season and day of week. Remove the option, or use "
+                "design='time-series'."
+            )
+        if self.family == "negbin":
+            raise SpecificationError(
+                "design='case-crossover' is fitted as a conditional Poisson model: use the default "
+                "(quasi-Poisson) or overdispersion=False (Poisson), not family='negbin'."
+            )
+        if self.interval != "quasi-poisson":
+            raise SpecificationError(
+                f"interval={self.interval!r} is not available with design='case-crossover'; use the default "
+                "interval='quasi-poisson'."
+            )
 
     def _check_roles(self) -> None:
         """The exposure and outcome must not also enter the model as confounders."""
@@ -357,9 +411,10 @@ class ModelSpec:
     def confounder_terms(self) -> tuple[Term, ...]:
         """The confounder terms in design order (the intercept is added by the design builder)."""
         terms: list[Term] = []
-        if self.seasonality == "spline":
+        time_series = self.design != "case-crossover"  # a case-crossover's strata hold time and day of week
+        if time_series and self.seasonality == "spline":
             terms.append(TimeSpline(self.trend_df_per_year))
-        else:
+        elif time_series:
             terms.append(FourierSeason(self.fourier_pairs))
         if self.temperature is not None:
             terms.append(Spline(self.temperature, self.temperature_df))
@@ -367,7 +422,7 @@ class ModelSpec:
                 terms.append(Spline(self.temperature, self.temperature_lag_df, lags=self.temperature_lags))
         if self.humidity is not None:
             terms.append(Spline(self.humidity, self.humidity_df))
-        if self.day_of_week:
+        if self.day_of_week and time_series:
             terms.append(DayOfWeek())
         if self.holidays is not None:
             terms.append(PublicHolidays(self.holidays, self.holiday_subdivision))

@@ -106,6 +106,13 @@ def describe_model(
         f"{_FAMILY[spec.family]} time-series regression of daily counts over {n_calendar} days "
         f"({years:.1f} years), controlling for season and trend with {season}"
     ]
+    crossover = getattr(spec, "design", "time-series") == "case-crossover"
+    if crossover:  # strata replace the time spline and the day-of-week indicators (docs/case-crossover.md)
+        parts = [
+            f"Time-stratified case-crossover over {n_calendar} days ({years:.1f} years), fitted as a conditional "
+            f"{'quasi-Poisson' if spec.family == 'quasipoisson' else 'Poisson'} model: each day is compared with "
+            "the days of the same year, month and day of week, which controls season, trend and day of week"
+        ]
     if spec.temperature:
         parts.append(f"natural splines of same-day {spec.temperature} ({spec.temperature_df} df)")
         if spec.temperature_lags:
@@ -113,7 +120,7 @@ def describe_model(
             parts.append(f"of its mean over lags {first}–{last} ({spec.temperature_lag_df} df)")
     if spec.humidity:
         parts.append(f"a natural spline of {spec.humidity} ({spec.humidity_df} df)")
-    if spec.day_of_week:
+    if spec.day_of_week and not crossover:
         parts.append("day-of-week indicators")
     if spec.holidays:
         parts.append(f"a public-holiday indicator ({spec.holidays})")

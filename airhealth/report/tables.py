@@ -223,6 +223,8 @@ def result_html(result: Any) -> str:
         ("days used / dropped", f"{format_count(result.n_days)} / {format_count(len(result.dropped))}"),
         ("converged", f"{result.converged} ({result.n_iter} iterations)"),
     ]
+    if getattr(result, "strata", None) is not None:
+        rows.insert(5, ("design", f"time-stratified case-crossover, {result.strata['n_strata']} strata"))
     body = "".join(
         f"<tr><th style='text-align:left'>{html.escape(k)}</th><td>{html.escape(str(v))}</td></tr>" for k, v in rows
     )

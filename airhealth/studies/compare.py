@@ -108,8 +108,22 @@ def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any
     frame = _frame(data, specs)
     grid = _grid(frame, specs)
     if common_days:
-        grid = _restricted(grid, _common([d.used for d in grid.designs], grid.designs))
+        grid = _on_days(grid, _common([d.used for d in grid.designs], grid.designs))
     return grid
+
+
+def _on_days(grid: _Grid, keep: np.ndarray) -> _Grid:
+    """The grid on the days ``keep`` only (a case-crossover is rebuilt: the days used decide its strata)."""
+    if grid.specs[0].design == "case-crossover":
+        return _grid(_outcome_on(grid.frame, grid.specs[0].outcome, keep), grid.specs)
+    return _restricted(grid, keep)
+
+
+def _outcome_on(frame: pd.DataFrame, outcome: str, keep: np.ndarray) -> pd.DataFrame:
+    """A copy of ``frame`` whose outcome is missing outside the days ``keep`` (the lags still see every day)."""
+    out = frame.copy()
+    out[outcome] = out[outcome].where(keep)
+    return out
 
 
 def _frame(data: pd.DataFrame, specs: Sequence[ModelSpec]) -> pd.DataFrame:
@@ -126,6 +140,7 @@ def _grid(frame: pd.DataFrame, specs: list[ModelSpec]) -> _Grid:
         designs = [build_design(frame, spec, confounders) for spec in specs]
     shared = specs[0].family != "negbin" and not any(hasattr(s.lag, "bind") for s in specs)
     shared = shared and specs[0].interval == "quasi-poisson"  # HAC intervals: each structure's single fit
+    shared = shared and specs[0].design == "time-series"  # a case-crossover: each structure's single fit
     return _Grid(specs, frame, confounders, designs, shared)
 
 
@@ -381,7 +396,7 @@ def compare(
             grid = _grid(frame, groups[g])
             if common_days:
                 keep = _common([d.used for d in grid.designs], grid.designs) if keep is None else keep
-                grid = _restricted(grid, keep)
+                grid = _on_days(grid, keep)
             with grid.threads():
                 shared = _confounder_fit(grid) if grid.shared else None
         rows[(i, g)] = _fit_row(grid, shared, i, per, level)

@@ -350,6 +350,11 @@ def diagnose(result: FitResult, max_lag: int = 30) -> Diagnostics:
     """
     if not isinstance(result, FitResult):
         raise SpecificationError(f"diagnose needs a FitResult from airhealth.fit, got {type(result).__name__}.")
+    if result.strata is not None:  # leverage and variance inflation here assume the design holds every column
+        raise SpecificationError(
+            "diagnose checks time-series fits; this is a case-crossover fit (its stratum intercepts are not "
+            "in the design matrix). Diagnose the time-series fit of the same model (design='time-series')."
+        )
     limit = result.n_days // 4
     if isinstance(max_lag, bool) or not isinstance(max_lag, int | np.integer) or not 1 <= max_lag <= limit:
         raise SpecificationError(

@@ -42,6 +42,7 @@ from .core import layout, workspace
 from .core import weighted_gram as _weighted_gram
 from .degenerate import check_dispersion, check_response, collapsed_weights_error, not_converged_message
 from .families import NegativeBinomial, Poisson
+from .strata import checked_strata, within_strata
 from .theta_fit import fit_theta
 
 __all__ = ["FamilyName", "GLMFit", "ThetaMethod", "fit_glm", "information_criterion"]
@@ -101,6 +102,7 @@ class GLMFit:
     n_step_halvings: int = 0
     column_names: tuple[str, ...] | None = None
     notes: tuple[str, ...] = ()
+    n_strata: int = 0  # stratum intercepts eliminated (conditional Poisson); counted in df_resid and QAIC
 
     @property
     def qaic(self) -> float:
@@ -110,7 +112,8 @@ class GLMFit:
         Poisson: ``-2 loglik + 2 n_params``. Negative binomial: ``-2 loglik + 2 (n_params + 1)`` when
         ``theta`` was estimated (theta counts as a parameter), ``+ 2 n_params`` when it was supplied.
         """
-        return information_criterion(self.family, self.loglik, self.dispersion, self.n_params, self.theta_estimated)
+        k = self.n_params + self.n_strata
+        return information_criterion(self.family, self.loglik, self.dispersion, k, self.theta_estimated)
 
 
 def information_criterion(family: str, loglik: float, dispersion: float, n_params: int, theta_estimated: bool) -> float:
@@ -163,28 +166,33 @@ def _inverse_from_cholesky(c: np.ndarray) -> np.ndarray:
 
 
 # ---------------------------------------------------------------------------------------------- IRLS
-def _eval(fam, X, coef, offset, y, w):
+def _eval(fam, X, coef, offset, y, w, strata=None):
     with np.errstate(over="ignore", invalid="ignore"):
         eta = X @ coef + offset
+        if strata is not None:  # the stratum intercepts at their maximum for these coefficients
+            eta = strata.profile(eta, y, w)
         mu = np.exp(eta)
         dev = fam.deviance(y, mu, w)
     return eta, mu, dev
 
 
-def _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf) -> _State:
+def _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf, strata=None) -> _State:
     """IRLS in Newton form with lazily refreshed information; see :func:`fit_glm` for the scheme.
 
-    On return ``s.chol`` is the exact information factor at the returned coefficients' predecessor and
+    With ``strata`` the stratum intercepts are profiled out at every evaluation and the information is
+    formed on the weighted-demeaned design (:mod:`airhealth.model.engine.strata`). On return ``s.chol`` is
+    the exact information factor at the returned coefficients' predecessor and
     the coefficients have had one polishing Newton step (when converged). No warning is issued here.
     """
     if start is None:
         mu0 = y + 0.1
         eta0 = np.log(mu0)
         ww = fam.working_weights(mu0, w)
-        chol = _cholesky(_weighted_gram(X, ww, buf), names, lambda: buf)
-        rhs = X.T @ (ww * (eta0 - offset) + fam.score_residuals(y, mu0, w))
+        Xw = within_strata(X, ww, strata, names)
+        chol = _cholesky(_weighted_gram(Xw, ww, buf), names, lambda: buf)
+        rhs = Xw.T @ (ww * (eta0 - offset) + fam.score_residuals(y, mu0, w))
         coef = lapack.dpotrs(chol, rhs, lower=0)[0]
-        eta, mu, dev = _eval(fam, X, coef, offset, y, w)
+        eta, mu, dev = _eval(fam, X, coef, offset, y, w, strata)
         if not np.isfinite(dev):
             raise FitError("The first IRLS step gave non-finite fitted values; supply starting coefficients.")
         dev_old = fam.deviance(y, mu0, w)
@@ -192,31 +200,32 @@ def _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf) -> _State:
         s.last_change = abs(dev - dev_old) / (abs(dev) + 0.1)
     else:
         coef = np.array(start, dtype=float)
-        eta, mu, dev = _eval(fam, X, coef, offset, y, w)
+        eta, mu, dev = _eval(fam, X, coef, offset, y, w, strata)
         if not np.isfinite(dev):
             raise FitError("The starting coefficients give non-finite fitted values; use other starting values.")
         s = _State(coef, eta, mu, dev)
-    g = _iterate(s, X, y, w, fam, tol, max_iter, names, buf)
+    g = _iterate(s, X, y, w, fam, tol, max_iter, names, buf, strata)
     if not s.fresh:
-        _refresh(s, X, w, fam, names, buf)
+        _refresh(s, X, w, fam, names, buf, strata)
     if s.converged:  # polish: one exact Newton step with the exact information
         s.coef = s.coef + lapack.dpotrs(s.chol, g, lower=0)[0]
-        s.eta, s.mu, s.deviance = _eval(fam, X, s.coef, offset, y, w)
+        s.eta, s.mu, s.deviance = _eval(fam, X, s.coef, offset, y, w, strata)
     return s
 
 
-def _refresh(s: _State, X, w, fam, names, buf) -> None:
-    s.chol = _cholesky(_weighted_gram(X, fam.working_weights(s.mu, w), buf), names, lambda: buf)
+def _refresh(s: _State, X, w, fam, names, buf, strata=None) -> None:
+    ww = fam.working_weights(s.mu, w)
+    s.chol = _cholesky(_weighted_gram(within_strata(X, ww, strata, names), ww, buf), names, lambda: buf)
     s.fresh = True
     s.n_factorisations += 1
 
 
-def _iterate(s: _State, X, y, w, fam, tol, max_iter, names, buf) -> np.ndarray:
+def _iterate(s: _State, X, y, w, fam, tol, max_iter, names, buf, strata=None) -> np.ndarray:
     """Run steps until convergence or ``max_iter``; return the score at the final coefficients."""
     q_prev = np.inf
     while True:
         if s.chol is None:
-            _refresh(s, X, w, fam, names, buf)
+            _refresh(s, X, w, fam, names, buf, strata)
         g = X.T @ fam.score_residuals(y, s.mu, w)
         delta = lapack.dpotrs(s.chol, g, lower=0)[0]
         q = float(delta @ g)  # predicted deviance decrease (exact for a fresh factor)
@@ -226,11 +235,11 @@ def _iterate(s: _State, X, y, w, fam, tol, max_iter, names, buf) -> np.ndarray:
             return g
         if s.n_iter >= max_iter:
             return g
-        if not _line_search(s, X, y, w, fam, delta, tol):
+        if not _line_search(s, X, y, w, fam, delta, tol, strata):
             if s.fresh:
                 s.stalled = True
                 return g  # no descent even along the exact Newton direction: stop, not converged
-            _refresh(s, X, w, fam, names, buf)  # stale factor: refresh and retry
+            _refresh(s, X, w, fam, names, buf, strata)  # stale factor: refresh and retry
             continue
         s.fresh = False
         if q > REFRESH_RATIO * q_prev:  # slow progress with this factor: use the exact one next
@@ -238,7 +247,7 @@ def _iterate(s: _State, X, y, w, fam, tol, max_iter, names, buf) -> np.ndarray:
         q_prev = q
 
 
-def _line_search(s: _State, X, y, w, fam, delta, tol) -> bool:
+def _line_search(s: _State, X, y, w, fam, delta, tol, strata=None) -> bool:
     """Take ``delta`` (halved while the deviance rises or is not finite); False if that fails.
 
     With a stale factor a rise is reported at once (False) so the caller can refresh the factor.
@@ -248,6 +257,8 @@ def _line_search(s: _State, X, y, w, fam, delta, tol) -> bool:
     with np.errstate(over="ignore", invalid="ignore"):
         for _ in range(MAX_HALVINGS if s.fresh else 1):
             eta = s.eta + t * x_delta
+            if strata is not None:
+                eta = strata.profile(eta, y, w)
             mu = np.exp(eta)
             dev = fam.deviance(y, mu, w)
             if np.isfinite(dev) and dev - s.deviance <= tol * (abs(s.deviance) + 0.1):
@@ -312,11 +323,17 @@ def summarise(
     theta_estimated=False,
     notes=(),
     response_name=None,
+    strata=None,
 ) -> GLMFit:
-    """Assemble a :class:`GLMFit` from a converged state and the Cholesky factor of the information."""
+    """Assemble a :class:`GLMFit` from a converged state and the Cholesky factor of the information.
+
+    With ``strata`` the eliminated intercepts count as parameters: ``df_resid = n - p - n_strata`` (as R's
+    ``glm`` with stratum indicator columns) and the null model is the strata-only model.
+    """
     p = coef.size
     n_obs = float(w.sum())
-    df_resid = n_obs - p
+    n_strata = 0 if strata is None else strata.n_strata
+    df_resid = n_obs - p - n_strata
     cov_unscaled = _inverse_from_cholesky(info_chol)
     pearson = fam.pearson_chi2(y, mu, w)
     dispersion = pearson / df_resid if family == "quasipoisson" else 1.0
@@ -325,11 +342,12 @@ def summarise(
     return GLMFit(
         coef=coef, cov_unscaled=cov_unscaled, cov=cov, std_err=np.sqrt(np.diag(cov)), fitted=mu,
         linear_predictor=eta, deviance=fam.deviance(y, mu, w),
-        null_deviance=null_deviance(fam, y, w, offset, has_intercept), pearson_chi2=pearson,
+        null_deviance=null_deviance(fam, y, w, offset, has_intercept) if strata is None
+        else fam.deviance(y, strata.null_means(offset, y, w), w), pearson_chi2=pearson,
         loglik=fam.loglik(y, mu, w), df_resid=df_resid, n_obs=n_obs, n_params=p, dispersion=dispersion,
         n_iter=n_iter, converged=converged, family=family,
         theta=fam.theta if isinstance(fam, NegativeBinomial) else None, theta_estimated=theta_estimated,
-        n_step_halvings=n_halvings, column_names=names, notes=tuple(notes),
+        n_step_halvings=n_halvings, column_names=names, notes=tuple(notes), n_strata=n_strata,
     )  # fmt: skip
 
 
@@ -349,6 +367,7 @@ def fit_glm(
     max_iter: int = 100,
     column_names: Sequence[str] | None = None,
     response_name: str | None = None,
+    strata=None,
 ) -> GLMFit:
     """Fit a log-link GLM for counts by IRLS.
 
@@ -383,6 +402,11 @@ def fit_glm(
         Used in error messages and stored on the result.
     response_name : str, optional
         Name of the counts (the outcome column) for error messages.
+    strata : array (n,) of int, optional
+        Stratum of each row: one free intercept per stratum, eliminated rather than estimated (conditional
+        Poisson; Poisson and quasi-Poisson only). ``X`` must then have no constant column. The intercepts
+        are profiled out at every evaluation and the information is formed on ``X`` demeaned by weighted
+        stratum means (:mod:`airhealth.model.engine.strata`); ``df_resid`` is ``n - p - n_strata``.
 
     Returns
     -------
@@ -412,9 +436,12 @@ def fit_glm(
     check_response(y, w, response_name)
     if start is not None:
         start = as_vector("start", start, X.shape[1], 0.0)
+    strata = checked_strata(strata, X.shape, y, w, family)
     buf = workspace("design", X.shape, layout(X))
     try:
-        fam, state, notes = _fit_family(X, y, w, offset, family, theta, start, theta_method, tol, max_iter, names, buf)
+        fam, state, notes = _fit_family(
+            X, y, w, offset, family, theta, start, theta_method, tol, max_iter, names, buf, strata
+        )
     except FitError as err:
         better = collapsed_weights_error(err, X, y, w, response_name)
         if better is None:
@@ -428,15 +455,15 @@ def fit_glm(
         fam=fam, family=family,
         n_iter=state.n_iter, converged=state.converged, n_halvings=state.n_halvings, names=names,
         has_intercept=intercept_column(X), theta_estimated=theta_estimated, notes=notes,
-        response_name=response_name,
+        response_name=response_name, strata=strata,
     )  # fmt: skip
 
 
-def _fit_family(X, y, w, offset, family, theta, start, theta_method, tol, max_iter, names, buf):
+def _fit_family(X, y, w, offset, family, theta, start, theta_method, tol, max_iter, names, buf, strata=None):
     """Run the IRLS for the family (alternating with theta when it is estimated): ``(family, state, notes)``."""
     if family != "negbin" or theta is not None:
         fam = Poisson() if family != "negbin" else NegativeBinomial(float(theta))
-        state = _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf)
+        state = _irls(X, y, w, offset, fam, start, tol, max_iter, names, buf, strata)
         _warn_if_not_converged(state, tol)
         return fam, state, ()
     return fit_theta(
