@@ -15,13 +15,15 @@ from typing import Any
 
 import pandas as pd
 
+from ..burden.result import CAUTION as BURDEN_CAUTION
 from ..errors import DataError
 from ..model.spec import DEFAULT_UNIT, ModelSpec
 from ..prep.describe import table_one
 from ..prep.missing_codes import apply_na_values
 from ..prep.validate import parse_dates
+from .analysis_sections import MainModel, analysis_sections, check_analyses, methods_text, split_analyses
 from .data_quality_section import data_quality_section
-from .document import Figure, Section, Table, Text
+from .document import CAUTION, Figure, Section, Table, Text
 from .export import parse_formats
 from .forest_plot import plot_forest, rr_limits
 from .html import write_html_report
@@ -155,6 +157,7 @@ class ReportContent:
     failures: pd.DataFrame  # outcome, exposure, lag, error
     warnings: pd.DataFrame  # outcome, exposure, warning
     main: Any  # the FitResult of the main model
+    caution: str = CAUTION  # the page's caution text (with the burden's assumptions when a burden is shown)
 
 
 # -- sections ----------------------------------------------------------------------------------------------
@@ -395,6 +398,8 @@ def report_content(
     written); give the writer the same threshold. ``labels``: display names (see :func:`write_report`).
     """
     labels = check_labels(labels)
+    analyses, model_options = split_analyses(model_options)
+    check_analyses(analyses, data)
     columns = [model_options.get(k) for k in ("date", "temperature", "humidity", "offset")]
     columns[0] = columns[0] or "date"
     request = check_request(
@@ -407,7 +412,13 @@ def report_content(
     effects = _effects(fits, request.per, request.level)
     described = _with_codes_missing(data, fits, model_options)
     sections = _sections(described, request, fits, effects, model_options, small_count_threshold, labels)
-    return ReportContent(sections, effects, fits.failures, fits.warnings, fits.main)
+    if analyses:  # the further analyses of the main model, in the order asked (report/analysis_sections.py)
+        sections[0].blocks.append(Text(methods_text(analyses)))
+        main = MainModel(data, fits.main, {**model_options, "units": request.units}, tuple(request.lags), request.per,
+                         request.level, small_count_threshold)  # fmt: skip
+        sections[-1:-1] = analysis_sections(analyses, main)
+    caution = CAUTION + (f" {BURDEN_CAUTION}" if analyses.value("burden") is not None else "")
+    return ReportContent(sections, effects, fits.failures, fits.warnings, fits.main, caution)
 
 
 def check_output_folder(out: str | Path) -> None:
@@ -525,5 +536,5 @@ def write_content(
     heading = title or f"Short-term effects of air pollution on daily {outcomes}"
     return write_html_report(
         [*content.sections, *extra_sections], out, title=heading, small_count_threshold=small_count_threshold,
-        table_formats=table_formats, labels=labels,
+        table_formats=table_formats, labels=labels, caution=content.caution,
     )  # fmt: skip

@@ -177,6 +177,7 @@ def _page(
     subtitle: str,
     table_formats: Sequence[str] = (),
     labels: Labels | None = None,
+    caution: str = CAUTION,
 ) -> str:
     tables, figures = _FileNames(out / "tables"), _FileNames(out / "figures")
     rendered = [
@@ -190,7 +191,7 @@ def _page(
     return render_page(
         title=title,
         subtitle=subtitle,
-        caution=CAUTION,
+        caution=caution,
         suppression=f"Counts below {threshold} are suppressed. {suppression_note(threshold)}"
         if threshold is not None
         else "",
@@ -208,6 +209,7 @@ def write_html_report(
     subtitle: str = "",
     table_formats: str | Sequence[str] = ("csv",),
     labels: Labels | None = None,
+    caution: str = CAUTION,
 ) -> Path:
     """Write ``index.html`` with every section, plus ``tables/*.csv`` and ``figures/*.png`` / ``*.svg``.
 
@@ -236,6 +238,8 @@ def write_html_report(
     labels : mapping, optional
         Display names of columns, outcomes and exposures in the page and the display formats (the CSV
         files keep the names): :func:`~airhealth.report.labels.display_name`.
+    caution : str
+        The caution text at the top and bottom of the page (default: results are associations).
 
     Returns
     -------
@@ -245,6 +249,6 @@ def write_html_report(
     check_threshold(small_count_threshold)
     formats = parse_formats(table_formats)
     with _io.atomic_directory(out_dir, foreign_entries=_not_from_a_report) as tmp:
-        page = _page(sections, tmp, title, small_count_threshold, subtitle, formats, labels)
+        page = _page(sections, tmp, title, small_count_threshold, subtitle, formats, labels, caution)
         _io.write_text(tmp / "index.html", page)
     return Path(out_dir) / "index.html"
