@@ -30,7 +30,99 @@ from .options import (
 )
 from .remedies import with_command_line_remedy
 
-__all__ = ["add_report_options", "register", "run", "write_and_print"]
+__all__ = [
+    "CLI_NAMES",
+    "add_analysis_options",
+    "add_report_options",
+    "analysis_options",
+    "register",
+    "run",
+    "write_and_print",
+]
+
+#: The command-line option of each analysis keyword of ``write_report`` (for messages).
+CLI_NAMES = {
+    "diagnostics": "--diagnostics", "robustness": "--robustness", "copollutant_check": "--copollutant",
+    "effect_modifier": "--modifier", "burden": "--burden", "compare_designs": "--compare-designs",
+}  # fmt: skip
+
+
+class _InOrder(argparse.Action):
+    """Store an analysis option and remember the order in which the analyses were asked for."""
+
+    def __call__(self, parser: Any, namespace: argparse.Namespace, values: Any, option_string: Any = None) -> None:
+        order = list(getattr(namespace, "analysis_order", None) or [])
+        if self.dest not in order:
+            order.append(self.dest)
+        namespace.analysis_order = order
+        if self.nargs == 0:
+            setattr(namespace, self.dest, True)
+        elif self.dest == "copollutant_check":
+            setattr(namespace, self.dest, [*(getattr(namespace, self.dest, None) or []), values])
+        else:
+            setattr(namespace, self.dest, values)
+
+
+def add_analysis_options(p: argparse.ArgumentParser) -> None:
+    """Further analyses of the main model, each a report section in the order given on the command line."""
+    g = p.add_argument_group("further analyses of the main model (sections in the order given)")
+    g.add_argument("--diagnostics", action=_InOrder, nargs=0, help="residual autocorrelation, influential days")
+    g.add_argument(
+        "--robustness",
+        action=_InOrder,
+        nargs=0,
+        help="every --lags structure x df per year of the time trend (own -3, own, +3), common days, QAIC",
+    )
+    g.add_argument(
+        "--copollutant",
+        dest="copollutant_check",
+        action=_InOrder,
+        metavar="COL",
+        help="table of the main estimate alone and adjusted for this pollutant (repeat for several)",
+    )
+    g.add_argument(
+        "--modifier",
+        dest="effect_modifier",
+        action=_InOrder,
+        metavar="COL",
+        help="categorical column (e.g. season): the effect in each level and a test of equal effects",
+    )
+    g.add_argument(
+        "--burden",
+        action=_InOrder,
+        metavar="PRESET_OR_VALUE",
+        help="cases attributable above a counterfactual: a level in the exposure's unit or a preset such as "
+        "who-guideline:pm2.5:24h (list: airhealth burden --list-counterfactuals)",
+    )
+    g.add_argument(
+        "--compare-designs",
+        action=_InOrder,
+        nargs=0,
+        help="the main model as a time series and as a time-stratified case-crossover",
+    )
+    p.set_defaults(analysis_order=None)  # fmt: skip
+
+
+def _burden_value(text: str) -> float | str:
+    try:
+        return float(text)
+    except ValueError:
+        return text
+
+
+def analysis_options(args: argparse.Namespace) -> dict[str, Any]:
+    """The analysis keywords of ``write_report`` from the command line, in the order given."""
+    options = {name: getattr(args, name, None) for name in (getattr(args, "analysis_order", None) or [])}
+    if "burden" in options:
+        options["burden"] = _burden_value(options["burden"])
+    return options
+
+
+def check_analysis_options(data: pd.DataFrame, options: dict[str, Any]) -> None:
+    """Refuse a bad analysis option before any fitting, naming the command-line option and its value."""
+    from ..report.analysis_sections import check_analyses, split_analyses
+
+    check_analyses(split_analyses(options)[0], data, names=CLI_NAMES)
 
 
 def add_report_options(p: argparse.ArgumentParser) -> None:
@@ -72,6 +164,7 @@ def register(sub: Any) -> None:
         "--main-lag", default=None, metavar="LAG", help="lag of the main model (default: the first of --lags)"
     )
     add_report_options(p)
+    add_analysis_options(p)
     add_model_options(p)
     add_reading_options(p)
     p.set_defaults(func=run)
@@ -127,9 +220,11 @@ def run(args: argparse.Namespace) -> int:
     units = parse_units(args.unit, args.exposure)
     level = confidence_level(args.confidence)
     main_lag = None if args.main_lag is None else with_min_count(args.main_lag, args.min_count)
-    columns = [*args.outcome, *args.exposure, args.temperature, args.humidity]
+    analyses = analysis_options(args)
+    columns = [*args.outcome, *args.exposure, args.temperature, args.humidity, *(args.copollutant_check or [])]
     data = read_daily(args, columns, per_analysis=args.exposure)
+    check_analysis_options(data, analyses)
     return write_and_print(
         data, args, outcomes=args.outcome, exposures=args.exposure, lags=lags, main_lag=main_lag, units=units,
-        per=args.per, level=level, **model_options(args),
+        per=args.per, level=level, **model_options(args), **analyses,
     )  # fmt: skip

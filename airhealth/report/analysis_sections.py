@@ -78,33 +78,43 @@ def _columns(value: Any, name: str) -> tuple[str, ...]:
 def _check_column(data: pd.DataFrame, column: str, name: str) -> None:
     if column not in data.columns:
         raise SpecificationError(
-            f"{name}={column!r}: the data have no column {column!r}; its columns are {[str(c) for c in data.columns]}."
+            f"{name} {column!r}: the data have no column {column!r}; its columns are {[str(c) for c in data.columns]}."
         )
 
 
-def check_analyses(analyses: Analyses, data: pd.DataFrame) -> None:
-    """Refuse a bad analysis value before any fitting; the message names the keyword and the value."""
+def _check_burden(value: Any, name: str) -> None:
     from ..burden.presets import find_preset
 
-    for name, value in analyses.asked:
-        if name in _SWITCHES and value is not True:
-            if name == "robustness" and _df_values(value) is not None:
-                continue
+    if isinstance(value, str) and value != "minimum-risk":
+        try:
+            find_preset(value)
+        except SpecificationError as exc:
+            raise SpecificationError(f"{name} {value!r}: {exc}") from None
+    elif isinstance(value, bool) or not isinstance(value, int | float | str):
+        raise SpecificationError(
+            f"{name} takes a counterfactual level in the exposure's unit or a preset name such as "
+            f"'who-guideline:pm2.5:24h' (see airhealth.preset_table()), got {value!r}."
+        )
+
+
+def check_analyses(analyses: Analyses, data: pd.DataFrame, names: Mapping[str, str] | None = None) -> None:
+    """Refuse a bad analysis value before any fitting; the message names the keyword and the value.
+
+    ``names``: how each keyword is spelled to the user (the command line's ``--burden``), default the keyword.
+    """
+    for key, value in analyses.asked:
+        name = (names or {}).get(key, key)
+        if key in _SWITCHES and value is not True and not (key == "robustness" and _df_values(value)):
             raise SpecificationError(f"{name} takes True (or False), got {value!r}.")
-        if name == "copollutant_check":
+        if key == "copollutant_check":
             for column in _columns(value, name):
                 _check_column(data, column, name)
-        if name == "effect_modifier":
+        if key == "effect_modifier":
             if not isinstance(value, str):
-                raise SpecificationError(f"effect_modifier takes one column name, got {value!r}.")
+                raise SpecificationError(f"{name} takes one column name, got {value!r}.")
             _check_column(data, value, name)
-        if name == "burden" and not isinstance(value, bool) and isinstance(value, str) and value != "minimum-risk":
-            find_preset(value)
-        elif name == "burden" and (isinstance(value, bool) or not isinstance(value, int | float | str)):
-            raise SpecificationError(
-                f"burden takes a counterfactual level in the exposure's unit or a preset name such as "
-                f"'who-guideline:pm2.5:24h' (see airhealth.preset_table()), got {value!r}."
-            )
+        if key == "burden":
+            _check_burden(value, name)
 
 
 def _df_values(value: Any) -> list[float] | None:
