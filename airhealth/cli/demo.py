@@ -1,7 +1,9 @@
 """``airhealth demo [--out DIR]``: ``airhealth report`` on the bundled Norhaven sample, plus its hourly NO2.
 
 The demo is the report command with fixed arguments: the sample's three outcomes, four pollutants and
-:data:`LAGS`, temperature as the weather control, and an extra section on the invented hourly NO2 readings.
+:data:`LAGS`, temperature as the weather control, the further analyses of :data:`ANALYSES` on the main model
+(deaths and PM2.5 at lag 0-1: its diagnostics, the co-pollutant table, the design comparison and the burden
+above the WHO 2021 24-hour PM2.5 guideline level), and an extra section on the invented hourly NO2 readings.
 """
 
 from __future__ import annotations
@@ -14,6 +16,14 @@ from .report import add_report_options, write_and_print
 OUTCOMES = ("deaths_all", "admissions_respiratory", "admissions_cardiovascular")
 POLLUTANTS = ("pm25", "pm10", "no2", "o3")
 LAGS = ("0", "1", "2", "0-1", "dl0-5")
+MAIN_LAG = "0-1"
+#: The further analyses of the demo's main model (``write_report`` keywords, in the order shown).
+ANALYSES = {
+    "diagnostics": True,
+    "copollutant_check": ["no2"],
+    "compare_designs": True,
+    "burden": "who-guideline:pm2.5:24h",  # WHO global air quality guidelines 2021: 15 µg/m³, 24-hour
+}
 TITLE = "Norhaven (invented city): short-term effects of air pollution, 2010–2023"
 
 
@@ -23,7 +33,9 @@ def register(sub: Any) -> None:
         "demo",
         help="run the report on the bundled sample data",
         description="Write the report (as 'airhealth report') for every outcome x pollutant x lag of the invented "
-        f"Norhaven data (lags {', '.join(LAGS)}), with a section on its hourly NO2 monitoring data.",
+        f"Norhaven data (lags {', '.join(LAGS)}), with the diagnostics of the main model (deaths and PM2.5, "
+        f"lag {MAIN_LAG}), a co-pollutant table, the time-series vs case-crossover comparison, the burden above the "
+        "WHO 2021 24-hour PM2.5 guideline, and a section on its hourly NO2 monitoring data.",
     )
     add_report_options(p)
     p.set_defaults(func=run, title=TITLE)
@@ -51,5 +63,5 @@ def run(args: argparse.Namespace) -> int:
 
     return write_and_print(
         load_sample(), args, [hourly_section()], outcomes=list(OUTCOMES), exposures=list(POLLUTANTS),
-        lags=list(LAGS), temperature="temperature",
+        lags=list(LAGS), main_lag=MAIN_LAG, temperature="temperature", **ANALYSES,
     )  # fmt: skip
