@@ -25,6 +25,7 @@ _PAGE_FACTS = """(() => {
     images: images.length,
     drawn: images.filter(i => i.complete && i.naturalWidth > 0 && i.getBoundingClientRect().width > 200).length,
     cautions: document.querySelectorAll('.caution').length,
+    caution_text: [...document.querySelectorAll('.caution')].map(c => c.textContent).join(' '),
     wider_than_window: document.documentElement.scrollWidth > window.innerWidth,
   };
 })()"""
@@ -74,11 +75,19 @@ def test_the_demo_report_renders_offline_in_chromium(chromium: str, demo_report:
     assert {"Analyses", "Effect estimates", "Main model", "Hourly monitoring data: coverage and completeness"} <= set(
         facts["sections"]
     )
+    further = [
+        "Diagnostics of the main model",
+        "Adjustment for co-pollutants",
+        "Time series and case-crossover",
+        "Attributable burden",
+    ]  # the demo's further analyses of its main model, in the demo's order
+    assert [s for s in facts["sections"] if s in further] == further
     assert facts["toc"] == facts["anchors"], "the table of contents links every section"
     figures = len(list((demo_report / "figures").glob("*.png")))
     assert facts["images"] == figures >= 10
     assert facts["drawn"] == facts["images"], "every embedded figure decoded and laid out"
     assert facts["cautions"] == 2, "the caution at the top and the bottom"
+    assert facts["caution_text"].count("assumes that the estimated association is causal") == 2, "burden caution"
     assert not facts["wider_than_window"], "nothing sticks out of a 1200-pixel window"
     assert visit.network_requests == []
     assert visit.console_errors == []

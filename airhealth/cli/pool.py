@@ -38,7 +38,34 @@ def register(sub: Any) -> None:
     p.add_argument("--confidence", default="0.95", metavar="LEVEL", help="confidence level (default 0.95)")
     p.add_argument("--sep", default=",", help='field separator (default ",")')
     p.add_argument("--json", action="store_true", help="print the result as JSON")
+    p.add_argument(
+        "--report",
+        type=Path,
+        default=None,
+        metavar="DIR",
+        help="also write an HTML report to DIR: pooled table, forest plot and, when the estimates hold lag vectors "
+        "(fit-cities with a distributed lag), the pooled lag curve",
+    )
     p.set_defaults(func=run)
+
+
+def _write_report(args: argparse.Namespace, frame: Any, result: Any, left_out: list[str]) -> Path:
+    """``--report DIR``: the many-cities report, with the model file beside the estimates when there is one."""
+    from ..report.cities_report import lag_curve_pool, write_cities_report
+
+    meta: dict[str, Any] = {}
+    sidecar = Path(args.estimates).with_suffix(".json")
+    if str(args.estimates) != "-" and sidecar.is_file():
+        meta = json.loads(sidecar.read_text(encoding="utf-8"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the cities left out were already noted, and are named in the report
+        lag_pool = lag_curve_pool(frame, args.method)
+    what = " and ".join(str(meta[k]) for k in ("outcome", "exposure") if k in meta)
+    notes = (f"Cities left out because their fit failed: {', '.join(left_out)}.",) if left_out else ()
+    return write_cities_report(
+        result, args.report, unit=str(meta.get("unit", "units")), lag_pool=lag_pool, basis=meta.get("lag_basis"),
+        lags=meta.get("lags"), title=f"Many cities: {what}" if what else "Many cities: pooled estimates", notes=notes,
+    )  # fmt: skip
 
 
 def _record(result: Any, left_out: list[str]) -> dict[str, Any]:
@@ -55,6 +82,10 @@ def run(args: argparse.Namespace) -> int:
     from ..errors import DataError
 
     level = confidence_level(args.confidence)
+    if args.report is not None:  # refused before any work
+        from ..report.city_report import check_output_folder
+
+        check_output_folder(args.report)
     frame = read_table(args.estimates, sep="\t" if args.sep in ("tab", "\\t") else args.sep)
     if args.city != "city":
         if args.city not in frame.columns:
@@ -72,8 +103,11 @@ def run(args: argparse.Namespace) -> int:
     for w in caught:
         print(f"note: {with_command_line_remedy(str(w.message))}", file=sys.stderr)
     record = _record(result, left_out)
+    path = None if args.report is None else _write_report(args, frame, result, left_out)
     if args.json:
         print(json.dumps(_clean(record), indent=2))
+        if path is not None:
+            print(f"report written to {path}", file=sys.stderr)
         return 0
     pct = round(level * 100)
     print(
@@ -87,4 +121,6 @@ def run(args: argparse.Namespace) -> int:
         print(f"moderators {', '.join(record['moderators'])}: QM = {record['qm']:.2f} (df {record['qm_df']}, "
               f"p = {record['qm_p']:.3g})")  # fmt: skip
     print("Pooled associations, not proof of causation.")
+    if path is not None:
+        print(f"report written to {path}")
     return 0

@@ -38,7 +38,14 @@ EFFECT_COLUMNS = [c for c in SUMMARY_COLUMNS if c not in ("coef", "se")]
 COUNT_COLUMNS = frozenset({"n_days", "days", "n_dropped", "total", "min", "max", "n", "events"})
 COEF_COLUMNS = frozenset({"coef", "se"})
 P_COLUMNS = frozenset({"p_value", "p"})
-FIXED_DECIMALS = {"dispersion": 2, "qaic": 1}  # fit statistics: a fixed number of decimals per column
+FIXED_DECIMALS = {
+    "dispersion": 2,
+    "qaic": 1,
+    "qaic_common": 1,
+    "delta_qaic_common": 1,
+    "i2": 1,
+    "q": 2,
+}  # fit statistics: a fixed number of decimals per column
 
 
 def effects_table(results: Iterable[Any], per: float = 10.0, level: float = 0.95, *, iqr: bool = False) -> pd.DataFrame:
