@@ -487,7 +487,11 @@ def write_report(
         see :func:`airhealth.report.export.export_table`.
     **model_options
         Any :class:`~airhealth.model.spec.ModelSpec` option (``temperature``, ``trend_df_per_year``,
-        ``humidity``, ``family``, ``na_values``, ...).
+        ``humidity``, ``family``, ``na_values``, ...), and the further analyses of the main model, each a
+        section in the order given (:mod:`airhealth.report.analysis_sections`): ``diagnostics=True``,
+        ``robustness=True`` (or df per year values), ``sensitivity=True`` (or checks),
+        ``copollutant_check=["no2"]``, ``effect_modifier="season"``, ``burden="who-guideline:pm2.5:24h"``
+        (or a level), ``compare_designs=True``.
 
     Returns
     -------
