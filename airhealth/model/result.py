@@ -393,6 +393,8 @@ class FitResult:
         }
         if self.hac_lags is not None:
             out["hac_lags"] = self.hac_lags
+        if self.spec.residual_lags:
+            out["residual_lags"] = self.spec.residual_lags
         if self.theta is not None:
             out["theta"] = self.theta
         if self.spec.lag.is_distributed:

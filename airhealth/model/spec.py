@@ -30,6 +30,10 @@ Seasonality = Literal["spline", "fourier"]
 ThetaMethod = Literal["ml", "moments"]
 Interval = Literal["quasi-poisson", "hac"]
 
+#: Most lagged deviance residuals a model may add (``residual_lags``); more would mostly fit noise
+#: (common practice, no source: Brumback et al. 2000 use one to a few).
+MAX_RESIDUAL_LAGS = 30
+
 
 #: How each concentration unit is shown, by its code in :func:`airhealth.prep.units.parse_unit` (which knows
 #: the spellings ug/m3, µg/m3, ugm3, ppbv, mg/m3, ...) or, for the units it does not convert, as typed.
@@ -161,6 +165,11 @@ class ModelSpec:
     hac_lags : int or None
         Truncation lag of the ``"hac"`` interval; ``None`` (default) uses ``floor(4 (n/100)^(2/9))`` for
         ``n`` days used (Newey & West 1994), about 9 for 14 years. Must be shorter than the series.
+    residual_lags : int
+        Lagged deviance residuals entered as covariates (Brumback et al. 2000): ``0`` (default) for none;
+        ``k`` fits the model, takes its deviance residuals on the calendar, adds their lags ``1..k`` as
+        covariates and fits again (:func:`airhealth.model.fitting.fit_spec`). Days whose lagged residual is
+        missing (the first ``k`` days of the series and after each gap) are dropped with that reason.
     tol : float
         Convergence tolerance on the relative change in deviance (default 1e-10; strict, see Dominici
         et al. 2002).
@@ -179,6 +188,8 @@ class ModelSpec:
     consistent covariance matrix. Econometrica 55:703–708.
     Newey WK, West KD (1994). Automatic lag selection in covariance matrix estimation. Rev Econ Stud
     61:631–653.
+    Brumback BA, Ryan LM, Schwartz JD, Neas LM, Stark PC, Burge HA (2000). Transitional regression models,
+    with application to environmental time series. J Am Stat Assoc 95:16–27.
     """
 
     outcome: str
@@ -208,6 +219,7 @@ class ModelSpec:
     interval: Interval = "quasi-poisson"
     hac_lags: int | None = None
     date_format: str | None = None
+    residual_lags: int = 0
 
     def __post_init__(self) -> None:
         for name in ("outcome", "exposure", "date"):
@@ -238,6 +250,13 @@ class ModelSpec:
                     f"temperature_lags must be a pair (first, last) such as (1, 3), or None; got {lags!r}."
                 )
             object.__setattr__(self, "temperature_lags", tuple(lags))
+        lags = self.residual_lags
+        if isinstance(lags, bool) or not isinstance(lags, int | np.integer) or not 0 <= lags <= MAX_RESIDUAL_LAGS:
+            raise SpecificationError(
+                f"residual_lags must be a whole number from 0 (none) to {MAX_RESIDUAL_LAGS}, got {lags!r}; "
+                "one or two lags usually remove short-term residual autocorrelation."
+            )
+        object.__setattr__(self, "residual_lags", int(lags))
         if not (0 < self.tol < 1e-3):
             raise SpecificationError(f"tol must be between 0 and 1e-3, got {self.tol!r}.")
         given = (self.confounders,) if isinstance(self.confounders, str | Term) else self.confounders
