@@ -34,6 +34,8 @@ from .report.city_report import write_report
 from .sample import load_sample, load_sample_tables
 from .studies.compare import compare
 from .studies.diagnostics import Diagnostics, diagnose
+from .studies.sensitivity import sensitivity
+from .studies.time_df_choice import TimeDfChoice, choose_time_df
 
 __version__ = "0.1.0"
 
@@ -61,9 +63,11 @@ __all__ = [
     "SplineLag",
     "SplineResponse",
     "ThresholdResponse",
+    "TimeDfChoice",
     "UnconstrainedLag",
     "__version__",
     "align_daily",
+    "choose_time_df",
     "compare",
     "diagnose",
     "exposure_response",
@@ -75,5 +79,6 @@ __all__ = [
     "parse_lag",
     "pool",
     "pool_multivariate",
+    "sensitivity",
     "write_report",
 ]
