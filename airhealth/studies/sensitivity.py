@@ -203,7 +203,7 @@ def _extreme_rows(frame: pd.DataFrame, main: FitResult, given: Any, per: float, 
         percentile = _checked_percentile(value)
         threshold = float(np.percentile(metric[used], percentile))
         drop = used & (metric > threshold)
-        setting = f"days above the {percentile:g}th percentile ({threshold:.4g} {spec.unit}) left out"
+        setting = f"days above the {percentile:g}th percentile ({threshold:.4g} {spec.unit})"
         rows.append(_fit_without(EXCLUDE_ABOVE, setting, frame, main, drop, per, level))
     return rows
 
@@ -249,7 +249,7 @@ def _period_rows(frame: pd.DataFrame, main: FitResult, periods: Any, per: float,
     dates = pd.DatetimeIndex(frame[main.spec.date])
     rows = []
     for name, days in _period_days(frame, main.spec, periods).items():
-        setting = f"{name} ({days[0]:%Y-%m-%d} to {days[-1]:%Y-%m-%d}) left out"
+        setting = f"{name} ({days[0]:%Y-%m-%d} to {days[-1]:%Y-%m-%d})"
         rows.append(_fit_without(EXCLUDE_PERIODS, setting, frame, main, dates.isin(days), per, level))
     return rows
 
