@@ -15,7 +15,7 @@ from .. import __version__
 from ..errors import AirhealthError
 from .remedies import with_command_line_remedy
 
-COMMANDS = ("report", "fit", "align", "daily", "demo")
+COMMANDS = ("report", "fit", "sensitivity", "align", "daily", "demo")
 
 
 def build_parser() -> argparse.ArgumentParser:
