@@ -30,7 +30,7 @@ from .._choices import check_choice
 from .._progress import progress
 from .._threads import design_threads, fitting_threads
 from ..errors import AirhealthError, SpecificationError
-from ..model.design import build_design, model_frame
+from ..model.design import build_confounders, build_design, model_frame
 from ..model.fitting import fit_with_residual_lags, result_from_fit, warn_if_suspicious
 from ..model.result import FitResult
 from ..model.spec import ModelSpec
@@ -72,7 +72,7 @@ def sweep_results(
     """
     check_choice("on_error", on_error, OnError)
     specs = _checked_specs(option, values, model_options)
-    frames: dict[tuple, pd.DataFrame] = {}
+    frames: dict[tuple, tuple[pd.DataFrame, dict]] = {}  # validated frame and its built terms, by columns
     previous = None
     for value, spec in progress(list(zip(values, specs, strict=True)), label=option, enabled=show_progress):
         try:
@@ -85,13 +85,16 @@ def sweep_results(
         yield value, result
 
 
-def _fit_one(data: pd.DataFrame, spec: ModelSpec, frames: dict[tuple, pd.DataFrame], previous: Any) -> tuple:
-    """One value's fit, sharing validated frames and warm-starting from ``previous`` when columns agree."""
+def _fit_one(data: pd.DataFrame, spec: ModelSpec, frames: dict[tuple, tuple], previous: Any) -> tuple:
+    """One value's fit, sharing validated frames and the confounder terms the values have in common (a df
+    sweep of the time spline builds the temperature splines once), warm-starting from ``previous`` when the
+    columns agree."""
     key = (spec.columns_used(), spec.lag.max_lag)
     with design_threads(len(data)):
         if key not in frames:
-            frames[key] = model_frame(data, spec)
-        design = build_design(frames[key], spec)
+            frames[key] = (model_frame(data, spec), {})
+        frame, built = frames[key]
+        design = build_design(frame, spec, build_confounders(frame, spec, built))
     start = previous.coef if previous is not None and previous.column_names == design.column_names else None
     with fitting_threads(*design.matrix.shape):
         design, glm = fit_with_residual_lags(design, spec, start=start)
