@@ -133,3 +133,19 @@ def test_methods_text_names_the_residual_terms():
     spec = airhealth.ModelSpec(outcome="y", exposure="x", residual_lags=2)
     assert "deviance residuals of a first fit at lags 1–2" in describe_model(spec, 1000)
     assert "deviance residuals" not in describe_model(spec.replace(residual_lags=0), 1000)
+
+
+def test_compare_and_sweep_fit_the_residual_terms_as_a_single_fit_does(four_years):
+    from airhealth.studies.sweep import sweep
+
+    options = {**OPTIONS, "residual_lags": 1}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        table = airhealth.compare(four_years, ["0", "0-1"], **{k: v for k, v in options.items() if k != "lag"})
+        swept = sweep(four_years, "trend_df_per_year", [5], **options)
+        for lag, row in zip(["0", "0-1"], table.to_dict(orient="records"), strict=True):
+            reference = airhealth.fit(four_years, **{**options, "lag": lag}).to_dict()
+            assert row["coef"] == pytest.approx(reference["coef"], rel=1e-8) and row["n_days"] == reference["n_days"]
+        reference = airhealth.fit(four_years, trend_df_per_year=5, **options).to_dict()
+    assert swept.loc[0, "coef"] == pytest.approx(reference["coef"], rel=1e-8)
+    assert swept.loc[0, "se"] == pytest.approx(reference["se"], rel=1e-8)

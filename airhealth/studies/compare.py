@@ -36,7 +36,7 @@ from ..model.design import ConfounderBlock, Design, build_design, cached_confoun
 from ..model.engine.grid import ConfounderFit, fit_confounders
 from ..model.engine.grid_inference import ExposureFit, exposure_block, fit_exposure_only
 from ..model.engine.irls import GLMFit
-from ..model.fitting import fit_design, result_from_fit, warn_if_suspicious
+from ..model.fitting import fit_design, fit_with_residual_lags, result_from_fit, warn_if_suspicious
 from ..model.result import SUMMARY_COLUMNS, FitResult
 from ..model.spec import ModelSpec
 
@@ -78,6 +78,7 @@ def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any
         designs = [_restrict(d, keep) for d in designs]
     shared = specs[0].family != "negbin" and not any(hasattr(s.lag, "bind") for s in specs)
     shared = shared and specs[0].interval == "quasi-poisson"  # HAC intervals: each structure's single fit
+    shared = shared and specs[0].residual_lags == 0  # lagged residual terms: each structure's single fit
     return _Grid(specs, frame, confounders, designs, shared)
 
 
@@ -182,9 +183,9 @@ def _full_results(grid: _Grid, show_progress: bool) -> list[FitResult]:
     results = []
     with grid.threads():
         for spec, design in progress(pairs, label="lag structures", enabled=show_progress):
-            glm = fit_design(design, spec)
-            warn_if_suspicious(design, spec, glm.dispersion)
-            results.append(result_from_fit(design, spec, glm))
+            fitted, glm = fit_with_residual_lags(design, spec)
+            warn_if_suspicious(fitted, spec, glm.dispersion)
+            results.append(result_from_fit(fitted, spec, glm))
     return results
 
 
