@@ -25,8 +25,6 @@ REMEDIES: dict[str, str] = {
     "date_format=": "--date-format FMT",
     "temperature=None": "leave out --temperature",
     "family=": "--family",
-    "exclude_above_percentile": "--exclude-above-percentile P",
-    "exclusion period": "--exclude-period NAME=START:END",
     "residual_lags": "--residual-lags K",
 }
 

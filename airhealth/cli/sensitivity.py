@@ -112,12 +112,15 @@ def _checks(args: argparse.Namespace, options: dict[str, Any]) -> dict[str, Any]
         checks.pop(EXCLUDE_ABOVE)
     else:
         try:
-            checks[EXCLUDE_ABOVE] = float(args.exclude_above_percentile)
+            percentile = float(args.exclude_above_percentile)
         except ValueError:
+            percentile = float("nan")
+        if not 0 < percentile < 100:
             raise SpecificationError(
-                f"--exclude-above-percentile {args.exclude_above_percentile!r}: give a percentile between 0 and "
-                "100 (e.g. 99), or 'none'."
-            ) from None
+                f"--exclude-above-percentile {args.exclude_above_percentile!r}: give a percentile strictly between "
+                "0 and 100 (e.g. 99), or 'none'."
+            )
+        checks[EXCLUDE_ABOVE] = percentile
     if args.exclude_period:
         checks[EXCLUDE_PERIODS] = parse_periods(args.exclude_period)
     return checks
