@@ -203,3 +203,18 @@ def test_bad_value_is_refused_before_anything_is_fitted(six_years, monkeypatch):
     monkeypatch.setattr(module, "fit_spec", lambda *a, **k: pytest.fail("fitted before checking"))
     with pytest.raises(SpecificationError, match="between 0 and 100"):
         run(six_years, {"trend_df_per_year": [4], "exclude_above_percentile": 150})
+
+
+def test_progress_is_shown_only_when_asked(six_years, monkeypatch):
+    import io
+
+    from airhealth.studies import sweep as sweep_module
+
+    stream = io.StringIO()
+    real = sweep_module.progress
+    monkeypatch.setattr(sweep_module, "progress", lambda *a, **k: real(*a, **{**k, "stream": stream}))
+    run(six_years, {"trend_df_per_year": [4, 5]}, show_progress=True)
+    assert "trend_df_per_year 2/2" in stream.getvalue()
+    stream.truncate(0)
+    run(six_years, {"trend_df_per_year": [4, 5]})
+    assert stream.getvalue() == ""

@@ -129,12 +129,13 @@ def _error_row(check: str, setting: str, main: FitResult, per: float, error: Air
 
 
 def _option_rows(
-    data: pd.DataFrame, main: FitResult, option: str, values: list[Any], options: dict, per: float, level: float
-) -> list[dict]:
+    data: pd.DataFrame, main: FitResult, option: str, values: list[Any], options: dict, per: float, level: float,
+    show_progress: bool = False,
+) -> list[dict]:  # fmt: skip
     """One row per value of a model option, fitted through the sweep engine (failures kept)."""
     rest = {k: v for k, v in options.items() if k != option}
     rows = []
-    for value, outcome in sweep_results(data, option, values, on_error="keep", **rest):
+    for value, outcome in sweep_results(data, option, values, "keep", show_progress, **rest):
         text = _setting_text(option, value)
         if isinstance(outcome, AirhealthError):
             rows.append(_error_row(option, text, main, per, outcome))
@@ -280,6 +281,7 @@ def sensitivity(
     checks: Mapping[str, Any] | None = None,
     per: float = 10.0,
     level: float = 0.95,
+    show_progress: bool = False,
     **model_options: Any,
 ) -> pd.DataFrame:
     """Refit the main model under alternative settings; one tidy row per setting.
@@ -302,6 +304,8 @@ def sensitivity(
         :func:`default_checks`.
     per, level : float
         Exposure increase for the relative risks and the confidence level.
+    show_progress : bool
+        Report the progress of each check's refits on stderr.
     **model_options
         Further options of the main model (``temperature``, ``humidity``, ``holidays``, ...), as for
         :func:`airhealth.fit`.
@@ -356,7 +360,7 @@ def sensitivity(
         elif name == EXCLUDE_PERIODS:
             rows += _period_rows(frame, main, given, per, level)
         else:
-            rows += _option_rows(data, main, name, _as_values(name, given), options, per, level)
+            rows += _option_rows(data, main, name, _as_values(name, given), options, per, level, show_progress)
     table = pd.DataFrame(rows, columns=SENSITIVITY_COLUMNS)
     table["n_excluded"] = table["n_excluded"].fillna(0).astype(int)
     failed = table[table["error"].notna()]

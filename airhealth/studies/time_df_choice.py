@@ -94,6 +94,7 @@ def choose_time_df(
     max_lag: int = 30,
     per: float = 10.0,
     level: float = 0.95,
+    show_progress: bool = False,
     **model_options: Any,
 ) -> TimeDfChoice:
     """Choose the df per year of the time spline by minimum QAIC or minimum residual partial autocorrelation.
@@ -115,6 +116,8 @@ def choose_time_df(
         Lags of the partial autocorrelation sum (default 30; at most a quarter of the days used).
     per, level : float
         Exposure increase for the relative risks in the table, and the confidence level.
+    show_progress : bool
+        Report progress on stderr.
     **model_options
         Other options of the model (``temperature``, ...), not ``trend_df_per_year``.
 
@@ -147,7 +150,7 @@ def choose_time_df(
         raise SpecificationError(f"max_lag must be a whole number of days >= 1, got {max_lag!r}.")
     options = {"outcome": outcome, "exposure": exposure, "lag": lag, **model_options}
     rows, errors = [], []
-    for value, result in sweep_results(data, "trend_df_per_year", list(values), on_error="keep", **options):
+    for value, result in sweep_results(data, "trend_df_per_year", list(values), "keep", show_progress, **options):
         if isinstance(result, AirhealthError):
             errors.append(result)
         if isinstance(result, FitResult) and max_lag > result.n_days // 4:
