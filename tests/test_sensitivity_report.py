@@ -81,3 +81,16 @@ def test_section_holds_text_table_and_figure(table):
     assert list(shown.frame["days left out"]) == [0, 0, 0, 0, 42]
     assert shown.frame.loc[3, "error"] == "too few days per parameter"
     assert shown.count_columns == ()  # relative risks and days, no health counts
+
+
+def test_section_is_written_by_the_html_writer_with_user_text_escaped(table, tmp_path):
+    from airhealth.report.html import write_html_report
+
+    table = table.assign(setting=table["setting"].str.replace("fl$u$", "<script>flu</script>", regex=False))
+    section = sensitivity_section(table, name="sens<x>")
+    index = write_html_report([section], tmp_path / "report", small_count_threshold=5)
+    page = index.read_text(encoding="utf-8")
+    assert "Sensitivity analyses" in page and "&lt;script&gt;flu&lt;/script&gt;" in page
+    assert "<script>" not in page
+    folder = tmp_path / "report"
+    assert list((folder / "figures").glob("*.png")) and list((folder / "tables").glob("*.csv"))
