@@ -255,7 +255,7 @@ def _period_rows(frame: pd.DataFrame, main: FitResult, periods: Any, per: float,
     return rows
 
 
-def _checked_checks(checks: Mapping[str, Any] | None, spec: ModelSpec, options: dict) -> dict[str, Any]:
+def _checked_checks(checks: Mapping[str, Any] | None, spec: ModelSpec) -> dict[str, Any]:
     if checks is None:
         return default_checks(spec)
     if not isinstance(checks, Mapping) or not checks:
@@ -344,12 +344,12 @@ def sensitivity(
     """
     options = {"outcome": outcome, "exposure": exposure, "lag": lag, **model_options}
     spec = ModelSpec.from_options(**options)
-    wanted = _checked_checks(checks, spec, options)
+    wanted = _checked_checks(checks, spec)
     for name, given in wanted.items():  # every value checked before anything is fitted
-        if name == EXCLUDE_ABOVE:
-            [_checked_percentile(v) for v in _as_values(name, given)]
-        elif name != EXCLUDE_PERIODS:
-            for value in _as_values(name, given):
+        for value in [] if name == EXCLUDE_PERIODS else _as_values(name, given):
+            if name == EXCLUDE_ABOVE:
+                _checked_percentile(value)
+            else:
                 ModelSpec.from_options(**{**options, name: value})
     main = fit_spec(data, spec)
     rows = [_result_row(MAIN, "main model", True, main, per, level)]
