@@ -1,6 +1,13 @@
 """Lagged deviance residuals as covariates (``residual_lags``; Brumback et al. 2000, J Am Stat Assoc 95:16–27).
 
-Reference: statsmodels ``GLM(family=Poisson)`` with ``scale="X2"`` (quasi-Poisson: Pearson χ² / residual df)
+Reference 1: base R ``glm(family = quasipoisson)`` fitted twice by ``tests/reference/residual_lags_reference.R``
+(invocation in its header; frozen in ``residual_lags_reference.json``, run live when Rscript exists) on the
+complete simulated city of ``make_diagnostics_input.py`` with four exposure days made missing in R: the
+residuals, their lags on the calendar and the second fit are built in R alone. Tolerance 1e-6 relative on
+coefficients and standard errors: ``summary.glm`` computes the dispersion with the IRLS weights from the start
+of the last iteration (see test_against_r.py); days used exactly.
+
+Reference 2: statsmodels ``GLM(family=Poisson)`` with ``scale="X2"`` (quasi-Poisson: Pearson χ² / residual df)
 fitted twice on the same design: first without the residual terms, then with that fit's deviance residuals
 (``resid_deviance``) at lags 1..k, placed on the calendar (a day's lag-j residual is the residual of the
 day j calendar days earlier, missing when that day was not used), on the days where every lag exists.
@@ -11,12 +18,16 @@ shifted by one day or a day kept without its lagged residual moves the estimate 
 
 from __future__ import annotations
 
+import json
+import sys
 import warnings
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
+from conftest import run_r_reference
 
 import airhealth
 from airhealth.cli.main import main as cli_main
@@ -24,6 +35,43 @@ from airhealth.errors import SpecificationError
 from airhealth.model.fitting import RESIDUAL_LAG_MISSING
 
 OPTIONS = {"outcome": "deaths_all", "exposure": "pm25", "temperature": "temperature", "lag": "0-1"}
+REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
+sys.path.insert(0, str(REFERENCE_DIR))
+from make_diagnostics_input import complete_city, write_input  # noqa: E402
+
+FROZEN = json.loads((REFERENCE_DIR / "residual_lags_reference.json").read_text())
+
+
+@pytest.fixture(scope="module")
+def r_city_fit():
+    city = complete_city()
+    city.loc[[299, 300, 301, 699], "pm25"] = np.nan  # R's rows 300-302 and 700
+    return airhealth.fit(city, outcome="deaths_all", exposure="pm25", lag="0", temperature="temperature",
+                         residual_lags=2)  # fmt: skip
+
+
+def check_against_r(result, ref):
+    assert result.n_days == ref["n_used"] and str(result.fitted.index[0].date()) == ref["first_day"]
+    names = {"pm25": "pm25[0]", "r1": "deviance residual lag 1", "r2": "deviance residual lag 2"}
+    for key, name in names.items():
+        assert result.coef[name] == pytest.approx(ref["coef"][key], rel=1e-6), key
+        assert result.std_err[name] == pytest.approx(ref["se"][key], rel=1e-6), key
+    assert result.dispersion == pytest.approx(ref["dispersion"], rel=1e-6)
+    assert result.deviance == pytest.approx(ref["deviance"], rel=1e-9)
+
+
+def test_residual_lags_equal_frozen_r(r_city_fit):
+    check_against_r(r_city_fit, FROZEN)
+
+
+@pytest.mark.needs_r
+def test_residual_lags_equal_live_r(r_city_fit, rscript, tmp_path):
+    data = write_input(tmp_path / "input.csv")
+    live = run_r_reference(rscript, REFERENCE_DIR / "residual_lags_reference.R", data, out=tmp_path / "out.json")
+    check_against_r(r_city_fit, live)
+    for key in ("coef", "se"):
+        for name, value in FROZEN[key].items():
+            assert live[key][name] == pytest.approx(value, rel=1e-9), (key, name)  # the frozen file is current
 
 
 @pytest.fixture(scope="module")
