@@ -218,3 +218,19 @@ def test_progress_is_shown_only_when_asked(six_years, monkeypatch):
     stream.truncate(0)
     run(six_years, {"trend_df_per_year": [4, 5]})
     assert stream.getvalue() == ""
+
+
+def test_sweep_keeps_or_raises_a_failing_value(six_years):
+    from airhealth.studies.sweep import sweep
+
+    short = six_years[six_years["date"] < "2012-01-01"]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        kept = sweep(short, "trend_df_per_year", [4, 30], on_error="keep", **MAIN)
+        assert list(kept.columns)[-1] == "error" and kept["error"].isna().tolist() == [True, False]
+        assert "80 parameters for 705 usable days" in kept.loc[1, "error"] and np.isnan(kept.loc[1, "coef"])
+        assert "error" not in sweep(short, "trend_df_per_year", [4], **MAIN).columns
+        with pytest.raises(DataError, match="80 parameters for 705 usable days"):
+            sweep(short, "trend_df_per_year", [4, 30], **MAIN)
+        with pytest.raises(SpecificationError, match="on_error"):
+            sweep(short, "trend_df_per_year", [4], on_error="skip", **MAIN)
