@@ -266,7 +266,10 @@ def build_confounders(
             if reusable:
                 built[term] = block
         blocks.append(block)
-    matrix = np.asfortranarray(np.hstack([b.columns for b in blocks]))  # column-major: designs gather it fast
+    widths = np.cumsum([0] + [b.columns.shape[1] for b in blocks])
+    matrix = np.empty((n, int(widths[-1])), order="F")  # column-major: designs gather it fast; one copy
+    for block, start, end in zip(blocks, widths[:-1], widths[1:], strict=True):
+        matrix[:, start:end] = block.columns
     first_missing = np.full(n, -1)
     incomplete = np.flatnonzero(~np.isfinite(matrix).all(axis=1))
     if incomplete.size:  # name the first term missing on each incomplete row (few rows)
