@@ -181,6 +181,7 @@ def test_methods_text_names_the_residual_terms():
     spec = airhealth.ModelSpec(outcome="y", exposure="x", residual_lags=2)
     assert "deviance residuals of a first fit at lags 1–2" in describe_model(spec, 1000)
     assert "deviance residuals" not in describe_model(spec.replace(residual_lags=0), 1000)
+    assert "first fit at lag 1 (a transitional model" in describe_model(spec.replace(residual_lags=1), 1000)
 
 
 def test_compare_and_sweep_fit_the_residual_terms_as_a_single_fit_does(four_years):

@@ -99,8 +99,9 @@ def _with_residual_lags(design: Design, spec: ModelSpec, glm: GLMFit) -> Design:
             f"residual_lags={k} left out {lost.size} more days (the first {k} days used and after each gap); "
             "use fewer residual lags or a longer series."
         )
+    at = "lag 1" if k == 1 else f"lags 1-{k}"
     note = (
-        f"deviance residuals of a first fit at lags 1-{k} entered as covariates (Brumback et al. 2000); "
+        f"deviance residuals of a first fit at {at} entered as covariates (Brumback et al. 2000); "
         f"{lost.size} days without a lagged residual left out"
     )
     return dataclasses.replace(

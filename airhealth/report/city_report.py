@@ -86,7 +86,8 @@ def describe_model(
     parts += [f"{t.name}" for t in spec.confounders]
     if spec.residual_lags:
         parts.append(
-            f"the deviance residuals of a first fit at lags 1–{spec.residual_lags} (a transitional model, "
+            f"the deviance residuals of a first fit at "
+            f"{'lag 1' if spec.residual_lags == 1 else f'lags 1–{spec.residual_lags}'} (a transitional model, "
             "Brumback et al. 2000)"
         )
     return (
