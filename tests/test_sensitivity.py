@@ -113,7 +113,11 @@ def test_distributed_lag_leaves_out_days_whose_window_holds_an_extreme_day(six_y
 
 def test_named_periods_left_out_one_at_a_time(six_years):
     periods = {"epidemic": ("2012-01-10", "2012-02-20"), "heat wave": ("2013-07-01", "2013-07-20")}
-    table = run(six_years, {"exclude_periods": periods})
+    given = six_years.assign(date=six_years["date"].dt.strftime("%Y-%m-%d"))  # text dates, as read from a CSV
+    before = given.copy(deep=True)
+    table = run(given, {"exclude_periods": periods, "exclude_above_percentile": 99})
+    pd.testing.assert_frame_equal(given, before)  # the caller's data are never changed
+    table = table[table["check"] != "exclude_above_percentile"].reset_index(drop=True)
     assert list(table["setting"])[1:] == [
         "epidemic (2012-01-10 to 2012-02-20)",
         "heat wave (2013-07-01 to 2013-07-20)",
