@@ -169,7 +169,7 @@ class ModelSpec:
         Lagged deviance residuals entered as covariates (Brumback et al. 2000): ``0`` (default) for none;
         ``k`` fits the model, takes its deviance residuals on the calendar, adds their lags ``1..k`` as
         covariates and fits again (:func:`airhealth.model.fitting.fit_spec`). Days whose lagged residual is
-        missing (the first ``k`` days of the series and after each gap) are dropped with that reason.
+        missing (the first ``k`` days used and the ``k`` days after each gap) are dropped with that reason.
     tol : float
         Convergence tolerance on the relative change in deviance (default 1e-10; strict, see Dominici
         et al. 2002).
