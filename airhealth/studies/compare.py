@@ -13,8 +13,8 @@ confounder are available) and each structure by
 :func:`~airhealth.model.engine.grid_inference.fit_exposure_only`, which reuses it and gives the single fit's
 estimates to rounding; whatever that shared work cannot do (a structure that does not converge, collinear
 columns, aliased columns, negative binomial models that re-estimate theta, exposure-response terms that learn
-from the data, Newey–West intervals, lagged residual terms) is fitted by :func:`~airhealth.model.fitting.fit_design` on the
-structure's own design.
+from the data, Newey–West intervals, lagged residual terms) is fitted by
+:func:`~airhealth.model.fitting.fit_design` on the structure's own design.
 
 BLAS threads follow the fitting path's policy (:func:`airhealth._threads.fitting_threads`).
 """
