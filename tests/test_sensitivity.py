@@ -238,3 +238,11 @@ def test_sweep_keeps_or_raises_a_failing_value(six_years):
             sweep(short, "trend_df_per_year", [4, 30], **MAIN)
         with pytest.raises(SpecificationError, match="on_error"):
             sweep(short, "trend_df_per_year", [4], on_error="skip", **MAIN)
+
+
+def test_a_non_linear_exposure_term_is_refused(six_years):
+    lag = "spline(df=3) x dl0-3:poly2"
+    with pytest.raises(SpecificationError, match=r"sensitivity compares one relative risk per setting, and lag"):
+        run(six_years, {"exclude_above_percentile": 99}, lag=lag)
+    with pytest.raises(SpecificationError, match=r"non-linear exposure-response term, which has no single"):
+        airhealth.choose_time_df(six_years, **{**MAIN, "lag": lag})

@@ -93,3 +93,12 @@ def test_a_candidate_that_cannot_be_fitted_keeps_its_row_and_is_not_chosen(gap_f
 def test_bad_requests_are_refused(gap_free, changes, error, message):
     with pytest.raises(error, match=message):
         airhealth.choose_time_df(gap_free, **{**OPTIONS, "values": VALUES, **changes})
+
+
+def test_the_choice_is_read_only(gap_free):
+    choice = airhealth.choose_time_df(gap_free, values=[3, 5], max_lag=5, **OPTIONS)
+    copy = choice.table
+    copy.loc[0, "qaic"] = -1.0
+    assert choice.table.loc[0, "qaic"] > 0
+    with pytest.raises(AttributeError):
+        choice.chosen = 12

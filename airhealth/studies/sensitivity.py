@@ -156,11 +156,6 @@ def _checked_percentile(value: Any) -> float:
 
 def _exposure_as_entered(frame: pd.DataFrame, spec: ModelSpec) -> np.ndarray:
     """The exposure as it enters the model on each day (for a distributed lag: the window's highest day)."""
-    if hasattr(spec.lag, "bind"):
-        raise SpecificationError(
-            f"{EXCLUDE_ABOVE} needs a linear exposure term; lag {spec.lag.label} is a non-linear exposure-response "
-            "basis. Leave out the check or fit a single-day, moving-average or distributed lag."
-        )
     raw = frame[spec.exposure].to_numpy(dtype=float, na_value=np.nan)
     if not spec.lag.is_distributed:
         return spec.lag.columns(raw)[:, 0]
@@ -323,8 +318,9 @@ def sensitivity(
     Raises
     ------
     SpecificationError
-        An unknown check, an empty list of values, a percentile outside (0, 100), a period that is not a
-        pair of ISO dates, ends before it starts or overlaps another.
+        A non-linear exposure-response lag (no single relative risk), an unknown check, an empty list of
+        values, a percentile outside (0, 100), a period that is not a pair of ISO dates, ends before it
+        starts or overlaps another.
     DataError
         A period with no day in the data (the message gives the dates the data cover); the main model's own
         data errors.
@@ -344,6 +340,11 @@ def sensitivity(
     """
     options = {"outcome": outcome, "exposure": exposure, "lag": lag, **model_options}
     spec = ModelSpec.from_options(**options)
+    if getattr(spec.lag, "is_nonlinear", False):
+        raise SpecificationError(
+            f"sensitivity compares one relative risk per setting, and lag {spec.lag.label!r} is a non-linear "
+            "exposure-response term with none; use a single-day, moving-average or distributed lag."
+        )
     wanted = _checked_checks(checks, spec)
     for name, given in wanted.items():  # every value checked before anything is fitted
         for value in [] if name == EXCLUDE_PERIODS else _as_values(name, given):

@@ -36,6 +36,7 @@ import pandas as pd
 from .._choices import check_choice
 from ..errors import AirhealthError, FitError, SpecificationError
 from ..model.result import FitResult
+from ..model.spec import ModelSpec
 from .diagnostics import _autocorrelation
 from .sweep import sweep_results
 
@@ -60,17 +61,21 @@ class TimeDfChoice:
     table : DataFrame
         One row per candidate: ``trend_df_per_year, qaic, sum_abs_pacf, coef, rr, rr_low, rr_high, n_days,
         chosen, error`` (relative risks per ``per`` units; ``error`` holds the message of a candidate that
-        could not be fitted).
+        could not be fitted). A copy on every access, so changing it cannot change the choice.
     """
 
     chosen: float
     criterion: TimeDfCriterion
     max_lag: int
-    table: pd.DataFrame
+    _table: pd.DataFrame
+
+    @property
+    def table(self) -> pd.DataFrame:
+        return self._table.copy(deep=True)
 
     def _repr_html_(self) -> str:
         head = f"<p>time df per year chosen by {self.criterion}: <b>{self.chosen:g}</b></p>"
-        return head + self.table.to_html(index=False, float_format=lambda v: f"{v:.4g}")
+        return head + self._table.to_html(index=False, float_format=lambda v: f"{v:.4g}")
 
 
 def _row(value: Any, outcome: FitResult | AirhealthError, max_lag: int, per: float, level: float) -> dict:
@@ -149,6 +154,11 @@ def choose_time_df(
     if isinstance(max_lag, bool) or not isinstance(max_lag, int | np.integer) or max_lag < 1:
         raise SpecificationError(f"max_lag must be a whole number of days >= 1, got {max_lag!r}.")
     options = {"outcome": outcome, "exposure": exposure, "lag": lag, **model_options}
+    if getattr(ModelSpec.from_options(**options).lag, "is_nonlinear", False):
+        raise SpecificationError(
+            f"lag {lag!r} is a non-linear exposure-response term, which has no single relative risk for the table; "
+            "choose the time df with a single-day, moving-average or distributed lag."
+        )
     rows, errors = [], []
     for value, result in sweep_results(data, "trend_df_per_year", list(values), "keep", show_progress, **options):
         if isinstance(result, AirhealthError):
