@@ -190,7 +190,9 @@ def test_compare_and_sweep_fit_the_residual_terms_as_a_single_fit_does(four_year
     options = {**OPTIONS, "residual_lags": 1}
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        table = airhealth.compare(four_years, ["0", "0-1"], **{k: v for k, v in options.items() if k != "lag"})
+        table = airhealth.compare(
+            four_years, ["0", "0-1"], common_days=False, **{k: v for k, v in options.items() if k != "lag"}
+        )
         swept = sweep(four_years, "trend_df_per_year", [5], **options)
         for lag, row in zip(["0", "0-1"], table.to_dict(orient="records"), strict=True):
             reference = airhealth.fit(four_years, **{**options, "lag": lag}).to_dict()
