@@ -41,6 +41,8 @@ from .studies.copollutants import copollutant_table
 from .studies.design_comparison import compare_designs
 from .studies.diagnostics import Diagnostics, diagnose
 from .studies.outcomes import fit_outcomes
+from .studies.sensitivity import sensitivity
+from .studies.time_df_choice import TimeDfChoice, choose_time_df
 
 __version__ = "0.1.0"
 
@@ -69,12 +71,14 @@ __all__ = [
     "SplineLag",
     "SplineResponse",
     "ThresholdResponse",
+    "TimeDfChoice",
     "UnconstrainedLag",
     "__version__",
     "align_daily",
     "attributable_burden",
     "burden_from_estimate",
     "burden_pooled",
+    "choose_time_df",
     "compare",
     "compare_designs",
     "copollutant_table",
@@ -93,5 +97,6 @@ __all__ = [
     "pool_multivariate",
     "preset_table",
     "season_column",
+    "sensitivity",
     "write_report",
 ]

@@ -152,7 +152,18 @@ def test_every_command_has_working_help(capsys):
             main([command, "--help"])
         assert info.value.code == 0
         assert f"usage: airhealth {command}" in capsys.readouterr().out
-    assert set(COMMANDS) == {"report", "fit", "compare", "align", "daily", "demo", "burden", "fit-cities", "pool"}
+    assert set(COMMANDS) == {
+        "report",
+        "fit",
+        "compare",
+        "align",
+        "daily",
+        "demo",
+        "sensitivity",
+        "burden",
+        "fit-cities",
+        "pool",
+    }
     assert "report" in build_parser().format_help()
 
 

@@ -15,7 +15,7 @@ from .. import __version__
 from ..errors import AirhealthError
 from .remedies import with_command_line_remedy
 
-COMMANDS = ("report", "fit", "compare", "align", "daily", "demo", "burden", "fit-cities", "pool")
+COMMANDS = ("report", "fit", "compare", "sensitivity", "align", "daily", "demo", "burden", "fit-cities", "pool")
 
 
 def build_parser() -> argparse.ArgumentParser:

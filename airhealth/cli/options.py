@@ -117,6 +117,14 @@ def add_model_options(p: argparse.ArgumentParser) -> None:
         metavar="L",
         help="truncation lag of --interval hac (default floor(4 (days/100)^(2/9)), about 9 for 14 years)",
     )
+    g.add_argument(
+        "--residual-lags",
+        type=int,
+        default=0,
+        metavar="K",
+        help="add the deviance residuals of a first fit at lags 1..K as covariates, for remaining residual "
+        "autocorrelation (Brumback et al. 2000; default 0, none)",
+    )
     e = p.add_argument_group("effects")
     e.add_argument("--per", type=float, default=10.0, help="exposure increase for the relative risk (default 10)")
     e.add_argument(
@@ -345,4 +353,5 @@ def model_options(args: argparse.Namespace) -> dict[str, Any]:
         "na_values": na_values,
         "interval": args.interval,
         "hac_lags": args.hac_lags,
+        "residual_lags": args.residual_lags,
     }

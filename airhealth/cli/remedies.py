@@ -25,6 +25,7 @@ REMEDIES: dict[str, str] = {
     "date_format=": "--date-format FMT",
     "temperature=None": "leave out --temperature",
     "family=": "--family",
+    "residual_lags": "--residual-lags K",
 }
 
 

@@ -248,12 +248,36 @@ def clear_cache() -> None:
     _FRAMES.clear()
 
 
-def build_confounders(frame: pd.DataFrame, spec: ModelSpec) -> ConfounderBlock:
-    """Intercept plus every confounder term of ``spec`` on the full calendar of ``frame``."""
+def _hashable(value: Any) -> bool:
+    try:
+        hash(value)
+    except TypeError:
+        return False
+    return True
+
+
+def build_confounders(
+    frame: pd.DataFrame, spec: ModelSpec, built: dict[Any, TermBlock] | None = None
+) -> ConfounderBlock:
+    """Intercept plus every confounder term of ``spec`` on the full calendar of ``frame``.
+
+    ``built`` (optional, for many specs on the same ``frame``, e.g. a sweep of one option) maps terms to
+    their blocks: a term found there is not built again, and the terms built are added to it.
+    """
     n = len(frame)
     blocks = [TermBlock(INTERCEPT, np.ones((n, 1)), (INTERCEPT,))]
-    blocks += [term.build(frame, spec.date) for term in spec.confounder_terms()]
-    matrix = np.asfortranarray(np.hstack([b.columns for b in blocks]))  # column-major: designs gather it fast
+    for term in spec.confounder_terms():
+        reusable = built is not None and _hashable(term)
+        block = built.get(term) if reusable else None
+        if block is None:
+            block = term.build(frame, spec.date)
+            if reusable:
+                built[term] = block
+        blocks.append(block)
+    widths = np.cumsum([0] + [b.columns.shape[1] for b in blocks])
+    matrix = np.empty((n, int(widths[-1])), order="F")  # column-major: designs gather it fast; one copy
+    for block, start, end in zip(blocks, widths[:-1], widths[1:], strict=True):
+        matrix[:, start:end] = block.columns
     first_missing = np.full(n, -1)
     incomplete = np.flatnonzero(~np.isfinite(matrix).all(axis=1))
     if incomplete.size:  # name the first term missing on each incomplete row (few rows)

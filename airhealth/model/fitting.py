@@ -8,6 +8,7 @@ can replace the engine behind it in one place.
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 from typing import Any
 
@@ -16,14 +17,17 @@ import pandas as pd
 
 from .._threads import design_threads, fitting_blas_threads
 from .._warn import warn_user
-from ..errors import DataWarning, DispersionWarning
+from ..errors import DataError, DataWarning, DispersionWarning
 from .design import EXPOSURE_MISSING, EXPOSURE_REASONS, Design, build_design, lag_window_remedy, model_frame
 from .engine.irls import GLMFit, fit_glm
 from .engine.variance import family_of, fit_hac_covariance
 from .result import FitResult
 from .spec import ModelSpec
 
-__all__ = ["fit", "fit_design", "fit_spec", "result_from_fit", "warn_if_suspicious"]
+__all__ = ["fit", "fit_design", "fit_spec", "fit_with_residual_lags", "result_from_fit", "warn_if_suspicious"]
+
+#: Reason recorded for days left out because a lagged deviance residual (``residual_lags``) is missing.
+RESIDUAL_LAG_MISSING = "lagged residual missing"
 
 DISPERSION_WARN = 5.0
 FEW_EVENTS_PER_DAY = 1.0
@@ -44,6 +48,73 @@ def fit_design(design: Design, spec: ModelSpec, start: np.ndarray | None = None)
         column_names=list(design.column_names),
         response_name=spec.outcome,
         strata=None if design.strata is None else design.strata.codes,
+    )
+
+
+def fit_with_residual_lags(design: Design, spec: ModelSpec, start: np.ndarray | None = None) -> tuple[Design, GLMFit]:
+    r"""Fit ``design``; with ``spec.residual_lags = k > 0``, add lagged deviance residuals and fit again.
+
+    The transitional model of Brumback et al. (2000): the model is fitted, its deviance residuals
+    :math:`r_t` are placed on the calendar (missing on days not used), and the second fit adds
+    :math:`r_{t-1}, \dots, r_{t-k}` as covariates, entered after the confounders and before the exposure.
+    Days whose lagged residual is missing (the first ``k`` days used and the ``k`` days after each gap) are
+    left out with the reason ``"lagged residual missing"``. Returns the design fitted and the fit.
+
+    References
+    ----------
+    Brumback BA, Ryan LM, Schwartz JD, Neas LM, Stark PC, Burge HA (2000). Transitional regression models,
+    with application to environmental time series. J Am Stat Assoc 95:16–27.
+    """
+    glm = fit_design(design, spec, start=start)
+    if spec.residual_lags == 0:
+        return design, glm
+    augmented = _with_residual_lags(design, spec, glm)
+    return augmented, fit_design(augmented, spec)
+
+
+def _with_residual_lags(design: Design, spec: ModelSpec, glm: GLMFit) -> Design:
+    """``design`` with the lagged deviance residuals of ``glm`` as columns, on the days where all exist."""
+    k = spec.residual_lags
+    family = family_of(glm.family, glm.theta)
+    y, mu = design.response, glm.fitted
+    on_calendar = np.full(len(design.calendar), np.nan)
+    on_calendar[design.used] = np.sign(y - mu) * np.sqrt(np.maximum(family.unit_deviance(y, mu), 0.0))
+    lagged = np.full((on_calendar.size, k), np.nan)
+    for j in range(1, k + 1):
+        lagged[j:, j - 1] = on_calendar[:-j]
+    keep_used = np.isfinite(lagged[design.used]).all(axis=1)  # among the rows of design.matrix
+    used = design.used.copy()
+    used[design.used] = keep_used
+    lost = design.calendar[design.used & ~used]
+    dropped = pd.concat(
+        [design.dropped, pd.DataFrame({"date": lost, "reason": RESIDUAL_LAG_MISSING})], ignore_index=True
+    ).sort_values("date", kind="stable", ignore_index=True)
+    n_conf = design.exposure_slice.start
+    names = [f"deviance residual lag {j}" for j in range(1, k + 1)]
+    matrix = np.asfortranarray(
+        np.hstack([design.matrix[keep_used, :n_conf], lagged[used], design.matrix[keep_used, n_conf:]])
+    )
+    if matrix.shape[0] <= matrix.shape[1]:
+        raise DataError(
+            f"too few usable days ({matrix.shape[0]}) for a model with {matrix.shape[1]} parameters after "
+            f"residual_lags={k} left out {lost.size} more days (the first {k} days used and after each gap); "
+            "use fewer residual lags or a longer series."
+        )
+    at = "lag 1" if k == 1 else f"lags 1-{k}"
+    note = (
+        f"deviance residuals of a first fit at {at} entered as covariates (Brumback et al. 2000); "
+        f"{lost.size} days without a lagged residual left out"
+    )
+    return dataclasses.replace(
+        design,
+        matrix=matrix,
+        response=design.response[keep_used],
+        offset=None if design.offset is None else design.offset[keep_used],
+        column_names=(*design.column_names[:n_conf], *names, *design.column_names[n_conf:]),
+        exposure_slice=slice(n_conf + k, matrix.shape[1]),
+        used=used,
+        dropped=dropped,
+        notes=(*design.notes, note),
     )
 
 
@@ -157,16 +228,22 @@ def _strata_counts(strata: Any) -> dict[str, int]:
     }
 
 
+def fitted_result(design: Design, spec: ModelSpec, start: np.ndarray | None = None) -> tuple[FitResult, GLMFit]:
+    """Fit a built design (with lagged residual terms when the spec asks), warn as a single fit does, and
+    return the result and the engine's fit: the one sequence every full fit of a design goes through."""
+    design, glm = fit_with_residual_lags(design, spec, start=start)
+    warn_if_suspicious(design, spec, glm.dispersion)
+    return result_from_fit(design, spec, glm), glm
+
+
 def fit_spec(data: pd.DataFrame, spec: ModelSpec) -> FitResult:
     """Validate ``data``, build the design for ``spec``, fit it and return the result."""
     with design_threads(len(data)):  # BLAS threads by the policy also around the fit (small products)
         frame = model_frame(data, spec)
         design = build_design(frame, spec)
         if fitting_blas_threads(*design.matrix.shape) == 1:  # the fit's own policy picks the same one thread:
-            glm = fit_design(design, spec)  # stay inside (each switch of the BLAS threads costs ~0.1 ms)
-            warn_if_suspicious(design, spec, glm.dispersion)
-            return result_from_fit(design, spec, glm)
-    glm = fit_design(design, spec)
+            return fitted_result(design, spec)[0]  # stay inside (a BLAS thread switch costs ~0.1 ms)
+    design, glm = fit_with_residual_lags(design, spec)
     with design_threads(len(data)):
         warn_if_suspicious(design, spec, glm.dispersion)
         return result_from_fit(design, spec, glm)

@@ -447,6 +447,8 @@ class FitResult:
         out.update(self.strata or {})  # a case-crossover: n_strata, n_strata_without_events, n_strata_single_day
         if self.hac_lags is not None:
             out["hac_lags"] = self.hac_lags
+        if self.spec.residual_lags:
+            out["residual_lags"] = self.spec.residual_lags
         if self.theta is not None:
             out["theta"] = self.theta
         if self.spec.lag.is_distributed and not self.groups:

@@ -32,6 +32,10 @@ ThetaMethod = Literal["ml", "moments"]
 Interval = Literal["quasi-poisson", "hac"]
 StudyDesign = Literal["time-series", "case-crossover"]
 
+#: Most lagged deviance residuals a model may add (``residual_lags``); more would mostly fit noise
+#: (common practice, no source: Brumback et al. 2000 use one to a few).
+MAX_RESIDUAL_LAGS = 30
+
 
 #: How each concentration unit is shown, by its code in :func:`airhealth.prep.units.parse_unit` (which knows
 #: the spellings ug/m3, µg/m3, ugm3, ppbv, mg/m3, ...) or, for the units it does not convert, as typed.
@@ -188,6 +192,11 @@ class ModelSpec:
         Correct the standard errors for over-dispersion (default ``True``: quasi-Poisson, dispersion =
         Pearson χ² / (days used − coefficients − strata used)). ``False`` is the same as
         ``family="poisson"`` (dispersion 1); not with ``family="negbin"``, which models over-dispersion itself.
+    residual_lags : int
+        Lagged deviance residuals entered as covariates (Brumback et al. 2000): ``0`` (default) for none;
+        ``k`` fits the model, takes its deviance residuals on the calendar, adds their lags ``1..k`` as
+        covariates and fits again (:func:`airhealth.model.fitting.fit_spec`). Days whose lagged residual is
+        missing (the first ``k`` days used and the ``k`` days after each gap) are dropped with that reason.
     tol : float
         Convergence tolerance on the relative change in deviance (default 1e-10; strict, see Dominici
         et al. 2002).
@@ -210,6 +219,8 @@ class ModelSpec:
     conditional logistic case cross-over analysis. BMC Med Res Methodol 14:122.
     Janes H, Sheppard L, Lumley T (2005). Case-crossover analyses of air pollution exposure data: referent
     selection strategies and their implications for bias. Epidemiology 16:717–726.
+    Brumback BA, Ryan LM, Schwartz JD, Neas LM, Stark PC, Burge HA (2000). Transitional regression models,
+    with application to environmental time series. J Am Stat Assoc 95:16–27.
     """
 
     outcome: str
@@ -244,6 +255,7 @@ class ModelSpec:
     modifier: str | None = None
     design: StudyDesign = "time-series"
     overdispersion: bool = True
+    residual_lags: int = 0
 
     def __post_init__(self) -> None:
         for name in ("outcome", "exposure", "date"):
@@ -274,6 +286,13 @@ class ModelSpec:
                     f"temperature_lags must be a pair (first, last) such as (1, 3), or None; got {lags!r}."
                 )
             object.__setattr__(self, "temperature_lags", tuple(lags))
+        lags = self.residual_lags
+        if isinstance(lags, bool) or not isinstance(lags, int | np.integer) or not 0 <= lags <= MAX_RESIDUAL_LAGS:
+            raise SpecificationError(
+                f"residual_lags must be a whole number from 0 (none) to {MAX_RESIDUAL_LAGS}, got {lags!r}; "
+                "one or two lags usually remove short-term residual autocorrelation."
+            )
+        object.__setattr__(self, "residual_lags", int(lags))
         if not (0 < self.tol < 1e-3):
             raise SpecificationError(f"tol must be between 0 and 1e-3, got {self.tol!r}.")
         given = (self.confounders,) if isinstance(self.confounders, str | Term) else self.confounders

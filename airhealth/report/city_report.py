@@ -127,6 +127,12 @@ def describe_model(
     if spec.holidays:
         parts.append(f"a public-holiday indicator ({spec.holidays})")
     parts += [f"{t.name}" for t in spec.confounders]
+    if spec.residual_lags:
+        parts.append(
+            f"the deviance residuals of a first fit at "
+            f"{'lag 1' if spec.residual_lags == 1 else f'lags 1–{spec.residual_lags}'} (a transitional model, "
+            "Brumback et al. 2000)"
+        )
     return (
         "; ".join(parts)
         + f". Relative risks are per {per:g} {unit} with {level:.0%} Wald intervals{_interval_text(spec)}; "

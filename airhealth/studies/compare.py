@@ -13,8 +13,8 @@ confounder are available) and each structure by
 :func:`~airhealth.model.engine.grid_inference.fit_exposure_only`, which reuses it and gives the single fit's
 estimates to rounding; whatever that shared work cannot do (a structure that does not converge, collinear
 columns, aliased columns, negative binomial models that re-estimate theta, exposure-response terms that learn
-from the data, Newey–West intervals) is fitted by :func:`~airhealth.model.fitting.fit_design` on the
-structure's own design.
+from the data, Newey–West intervals, lagged residual terms) is fitted by
+:func:`~airhealth.model.fitting.fit_design` on the structure's own design.
 
 A comparison may also cross the lag structures with several df per year of the time spline (one row per
 combination; each df value has its own confounder block and confounder-only fit). By default every model
@@ -43,7 +43,7 @@ from ..model.design import ConfounderBlock, Design, build_design, cached_confoun
 from ..model.engine.grid import ConfounderFit, fit_confounders
 from ..model.engine.grid_inference import ExposureFit, exposure_block, fit_exposure_only
 from ..model.engine.irls import GLMFit
-from ..model.fitting import fit_design, result_from_fit, warn_if_suspicious
+from ..model.fitting import fit_design, fitted_result, warn_if_suspicious
 from ..model.result import SUMMARY_COLUMNS, FitResult
 from ..model.spec import Interval, ModelSpec
 from .qaic import add_common_qaic
@@ -141,6 +141,7 @@ def _grid(frame: pd.DataFrame, specs: list[ModelSpec]) -> _Grid:
     shared = specs[0].family != "negbin" and not any(hasattr(s.lag, "bind") for s in specs)
     shared = shared and specs[0].interval == "quasi-poisson"  # HAC intervals: each structure's single fit
     shared = shared and specs[0].design == "time-series"  # a case-crossover: each structure's single fit
+    shared = shared and specs[0].residual_lags == 0  # lagged residual terms: each structure's single fit
     return _Grid(specs, frame, confounders, designs, shared)
 
 
@@ -279,9 +280,7 @@ def _full_results(grid: _Grid, show_progress: bool) -> list[FitResult]:
     with grid.threads():
         for i in progress(range(len(grid.specs)), label="lag structures", enabled=show_progress):
             spec, design = grid.specs[i], grid.fitting_design(i)
-            glm = fit_design(design, spec)
-            warn_if_suspicious(design, spec, glm.dispersion)
-            results.append(result_from_fit(design, spec, glm))
+            results.append(fitted_result(design, spec)[0])
     return results
 
 
@@ -413,9 +412,7 @@ def _fit_row(grid: _Grid, shared, i: int, per: float, level: float) -> dict[str,
     with grid.threads():
         if not grid.shared:
             design = grid.fitting_design(i)
-            glm = fit_design(design, spec)
-            warn_if_suspicious(design, spec, glm.dispersion)
-            row = _result_row(result_from_fit(design, spec, glm), per, level)
+            row = _result_row(fitted_result(design, spec)[0], per, level)
         else:
             fit = _exposure_fit(grid, shared, i)
             warn_if_suspicious(design, spec, fit.dispersion)

@@ -4,7 +4,7 @@
 exposure's lag structure, :mod:`airhealth.model.bases.copollutant`), every model on the same days, so that
 a change in the estimate reflects the adjustment and not different days. Each model goes through the
 single fit's checks and warnings (``model_frame``, ``build_design``, ``warn_if_suspicious``) and the one
-fitting function (``fit_design``), so each row equals ``airhealth.fit`` on the same days.
+fitting sequence (``fitted_result``), so each row equals ``airhealth.fit`` on the same days.
 
 References
 ----------
@@ -24,7 +24,7 @@ import pandas as pd
 from .._progress import progress
 from ..errors import DataError, SpecificationError
 from ..model.design import Design, build_design, model_frame
-from ..model.fitting import fit_design, result_from_fit, warn_if_suspicious
+from ..model.fitting import fitted_result
 from ..model.result import FitResult
 from ..model.spec import ModelSpec
 
@@ -83,10 +83,7 @@ def copollutant_fits(
         )
     results = []
     for spec, design in progress(list(zip(specs, designs, strict=True)), label="co-pollutants", enabled=show_progress):
-        design = _on_days(design, keep)
-        glm = fit_design(design, spec)
-        warn_if_suspicious(design, spec, glm.dispersion)
-        results.append(result_from_fit(design, spec, glm))
+        results.append(fitted_result(_on_days(design, keep), spec)[0])
     return results
 
 
