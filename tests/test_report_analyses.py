@@ -129,6 +129,20 @@ def test_diagnostics_and_robustness_hold_diagnose_and_compare(city: pd.DataFrame
     assert shown["n_days"].nunique() == 1  # common days, so that QAIC compares
 
 
+def test_sensitivity_section_holds_airhealth_sensitivity(city: pd.DataFrame) -> None:
+    checks = {"trend_df_per_year": [4, 10], "exclude_above_percentile": 99}
+    content = _content(city, sensitivity=checks)
+    assert _titles(content)[4] == "Sensitivity analyses"
+    expected = airhealth.sensitivity(city, "deaths_all", "pm25", lag="0-1", checks=checks, **OPTIONS)
+    shown = _table(content, "sensitivity")
+    assert len(shown) == len(expected) == 4  # main, df 4, df 10, days above the 99th percentile left out
+    rr = shown.filter(like="RR").iloc[:, 0].tolist()
+    for text, row in zip(rr, expected.itertuples(), strict=True):
+        assert f"{row.rr:.3f}" in text or f"{row.rr:.4f}" in text
+    figures = [b for s in content.sections for b in s.blocks if getattr(b, "name", "") == "sensitivity"]
+    assert len(figures) == 2  # the table and its figure
+
+
 def test_robustness_takes_its_own_df_values(city: pd.DataFrame) -> None:
     content = _content(city, robustness=[5, 9])
     assert _table(content, "robustness_full")["trend_df_per_year"].tolist() == [5, 9, 5, 9]
@@ -168,6 +182,7 @@ def test_user_labels_are_escaped_in_the_new_sections(city: pd.DataFrame, tmp_pat
         ({"copollutant_check": ["nox"]}, "copollutant_check 'nox': the data have no column 'nox'"),
         ({"effect_modifier": "age"}, "effect_modifier 'age': the data have no column 'age'"),
         ({"diagnostics": "yes"}, "diagnostics takes True (or False), got 'yes'"),
+        ({"sensitivity": [4, 10]}, "sensitivity takes True (the default checks) or a mapping of checks"),
     ],
 )
 def test_bad_analysis_values_are_refused_before_fitting(city: pd.DataFrame, tmp_path: Path, options, message) -> None:
@@ -197,11 +212,11 @@ def test_cli_sections_follow_the_command_line_order(city_csv: Path, tmp_path: Pa
     out = tmp_path / "r"
     code = main(["report", str(city_csv), "--outcome", "deaths_all", "--exposure", "pm25", "--temperature",
                  "temperature", "--out", str(out), "--compare-designs", "--burden", "15", "--copollutant", "no2",
-                 "--modifier", "season", "--diagnostics"])  # fmt: skip
+                 "--modifier", "season", "--diagnostics", "--sensitivity"])  # fmt: skip
     assert code == 0
-    assert _headings(out)[4:9] == ["Time series and case-crossover", "Attributable burden",
+    assert _headings(out)[4:10] == ["Time series and case-crossover", "Attributable burden",
                                    "Adjustment for co-pollutants", "Effect modification by season",
-                                   "Diagnostics of the main model"]  # fmt: skip
+                                   "Diagnostics of the main model", "Sensitivity analyses"]  # fmt: skip
     total = pd.read_csv(out / "tables" / "burden_total.csv")
     main_fit = airhealth.fit(pd.read_csv(city_csv), "deaths_all", "pm25", lag="0-1", temperature="temperature")
     data = pd.read_csv(city_csv, parse_dates=["date"])

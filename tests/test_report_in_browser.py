@@ -77,6 +77,7 @@ def test_the_demo_report_renders_offline_in_chromium(chromium: str, demo_report:
     )
     further = [
         "Diagnostics of the main model",
+        "Sensitivity analyses",
         "Adjustment for co-pollutants",
         "Time series and case-crossover",
         "Attributable burden",

@@ -2,8 +2,9 @@
 
 The demo is the report command with fixed arguments: the sample's three outcomes, four pollutants and
 :data:`LAGS`, temperature as the weather control, the further analyses of :data:`ANALYSES` on the main model
-(deaths and PM2.5 at lag 0-1: its diagnostics, the co-pollutant table, the design comparison and the burden
-above the WHO 2021 24-hour PM2.5 guideline level), and an extra section on the invented hourly NO2 readings.
+(deaths and PM2.5 at lag 0-1: its diagnostics, the sensitivity analyses, the co-pollutant table, the design
+comparison and the burden above the WHO 2021 24-hour PM2.5 guideline level), and an extra section on the
+invented hourly NO2 readings.
 """
 
 from __future__ import annotations
@@ -20,6 +21,7 @@ MAIN_LAG = "0-1"
 #: The further analyses of the demo's main model (``write_report`` keywords, in the order shown).
 ANALYSES = {
     "diagnostics": True,
+    "sensitivity": True,  # the default checks of airhealth.sensitivity
     "copollutant_check": ["no2"],
     "compare_designs": True,
     "burden": "who-guideline:pm2.5:24h",  # WHO global air quality guidelines 2021: 15 µg/m³, 24-hour
@@ -34,7 +36,8 @@ def register(sub: Any) -> None:
         help="run the report on the bundled sample data",
         description="Write the report (as 'airhealth report') for every outcome x pollutant x lag of the invented "
         f"Norhaven data (lags {', '.join(LAGS)}), with the diagnostics of the main model (deaths and PM2.5, "
-        f"lag {MAIN_LAG}), a co-pollutant table, the time-series vs case-crossover comparison, the burden above the "
+        f"lag {MAIN_LAG}), its sensitivity analyses, a co-pollutant table, the time-series vs case-crossover "
+        "comparison, the burden above the "
         "WHO 2021 24-hour PM2.5 guideline, and a section on its hourly NO2 monitoring data.",
     )
     add_report_options(p)

@@ -42,7 +42,8 @@ __all__ = [
 
 #: The command-line option of each analysis keyword of ``write_report`` (for messages).
 CLI_NAMES = {
-    "diagnostics": "--diagnostics", "robustness": "--robustness", "copollutant_check": "--copollutant",
+    "diagnostics": "--diagnostics", "robustness": "--robustness", "sensitivity": "--sensitivity",
+    "copollutant_check": "--copollutant",
     "effect_modifier": "--modifier", "burden": "--burden", "compare_designs": "--compare-designs",
 }  # fmt: skip
 
@@ -72,6 +73,12 @@ def add_analysis_options(p: argparse.ArgumentParser) -> None:
         action=_InOrder,
         nargs=0,
         help="every --lags structure x df per year of the time trend (own -3, own, +3), common days, QAIC",
+    )
+    g.add_argument(
+        "--sensitivity",
+        action=_InOrder,
+        nargs=0,
+        help="the main model refitted with one setting changed at a time (time df, temperature, extreme days)",
     )
     g.add_argument(
         "--copollutant",

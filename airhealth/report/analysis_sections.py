@@ -1,14 +1,14 @@
 """The further analyses a one-city report can hold, each built from its main model by the existing builders.
 
 :func:`write_report <airhealth.report.city_report.write_report>` takes the keywords of :data:`ANALYSES`
-(``diagnostics=True``, ``robustness=True``, ``copollutant_check=["no2"]``, ``effect_modifier="season"``,
-``burden="who-guideline:pm2.5:24h"``, ``compare_designs=True``); :func:`split_analyses` takes them out of
-the model options in the order the user gave them, :func:`check_analyses` refuses bad values before any
-fitting, and :func:`analysis_sections` runs each on the report's main model (its outcome, exposure, lag and
-confounder options) and returns one section per analysis, in that order. The statistics and figures are
-those of :func:`airhealth.diagnose`, :func:`airhealth.compare`, :func:`airhealth.copollutant_table`,
-:func:`airhealth.fit` with a modifier, :func:`airhealth.attributable_burden` and
-:func:`airhealth.compare_designs`; nothing is recomputed here.
+(``diagnostics=True``, ``robustness=True``, ``sensitivity=True``, ``copollutant_check=["no2"]``,
+``effect_modifier="season"``, ``burden="who-guideline:pm2.5:24h"``, ``compare_designs=True``);
+:func:`split_analyses` takes them out of the model options in the order the user gave them,
+:func:`check_analyses` refuses bad values before any fitting, and :func:`analysis_sections` runs each on the
+report's main model (its outcome, exposure, lag and confounder options) and returns one section per analysis,
+in that order. The statistics and figures are those of :func:`airhealth.diagnose`, :func:`airhealth.compare`,
+:func:`airhealth.sensitivity`, :func:`airhealth.copollutant_table`, :func:`airhealth.fit` with a modifier,
+:func:`airhealth.attributable_burden` and :func:`airhealth.compare_designs`; nothing is recomputed here.
 
 References
 ----------
@@ -34,6 +34,8 @@ ANALYSES = {
     "diagnostics": "diagnostics of the main model (residual autocorrelation, influential days, verdict)",
     "robustness": "the main outcome and exposure over every lag structure and several df per year of the time "
     "trend, on common days, with QAIC",
+    "sensitivity": "the main model refitted with one setting changed at a time (control of season and trend, of "
+    "temperature, humidity and holidays, the most polluted days left out)",
     "copollutant_check": "the main model adjusted for each co-pollutant in turn, on common days",
     "effect_modifier": "the main model's effect in each level of a categorical column, with a test of equal effects",
     "burden": "the cases attributable to exposure above a counterfactual level",
@@ -106,6 +108,11 @@ def check_analyses(analyses: Analyses, data: pd.DataFrame, names: Mapping[str, s
         name = (names or {}).get(key, key)
         if key in _SWITCHES and value is not True and not (key == "robustness" and _df_values(value)):
             raise SpecificationError(f"{name} takes True (or False), got {value!r}.")
+        if key == "sensitivity" and value is not True and not isinstance(value, Mapping):
+            raise SpecificationError(
+                f"{name} takes True (the default checks) or a mapping of checks such as "
+                f"{{'trend_df_per_year': [4, 10]}} (see airhealth.sensitivity), got {value!r}."
+            )
         if key == "copollutant_check":
             for column in _columns(value, name):
                 _check_column(data, column, name)
@@ -212,6 +219,17 @@ def _robustness(m: MainModel, value: Any) -> Section:
     )
 
 
+def _sensitivity(m: MainModel, value: Any) -> Section:
+    from ..studies.sensitivity import sensitivity
+    from .sensitivity_plots import sensitivity_section
+
+    options = m.call_options()
+    outcome, exposure = options.pop("outcome"), options.pop("exposure")
+    checks = None if value is True else dict(value)
+    table = sensitivity(m.data, outcome, exposure, lag=m.main.spec.lag, checks=checks, **options)
+    return sensitivity_section(table, level=m.level)
+
+
 def _copollutants(m: MainModel, value: Any) -> Section:
     from ..studies.copollutants import copollutant_table
     from .modification_section import copollutant_section
@@ -254,6 +272,7 @@ def _designs(m: MainModel, _: Any) -> Section:
 _BUILDERS = {
     "diagnostics": _diagnostics,
     "robustness": _robustness,
+    "sensitivity": _sensitivity,
     "copollutant_check": _copollutants,
     "effect_modifier": _modifier,
     "burden": _burden,

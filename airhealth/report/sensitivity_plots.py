@@ -104,7 +104,7 @@ def _display_table(table: pd.DataFrame, level: float) -> pd.DataFrame:
         "QAIC": table["qaic"].map(lambda v: "" if pd.isna(v) else f"{v:.1f}"),
         "days used": table["n_days"].map(lambda v: "" if pd.isna(v) else f"{int(v)}"),
         "days left out": table["n_excluded"],
-        "error": table["error"].fillna(""),
+        "error": table["error"].astype(object).where(table["error"].notna(), ""),
     })  # fmt: skip
 
 
