@@ -79,6 +79,9 @@ def test_methods_paragraph_names_what_was_run_and_caution_covers_burden(everythi
     methods = " ".join(b.text for b in everything.sections[0].blocks if isinstance(b, Text))
     assert "Further analyses of the main model, in the order shown: the cases attributable to exposure above" in methods
     assert "time-stratified case-crossover" in methods and "QAIC" in methods
+    assert f"counterfactual level ({WHO_PM25_24H})" in methods
+    assert "co-pollutant in turn, on common days (no2)" in methods
+    assert "test of equal effects (season)" in methods
     assert "not proof of causation" in everything.caution
     assert "assumes that the estimated association is causal and that the counterfactual level could" in (
         everything.caution
@@ -161,6 +164,17 @@ def test_written_page_suppresses_small_counts_in_the_new_sections(city: pd.DataF
     assert (observed.dropna() >= 40).all() and (influential["observed"] == "<40").any()
     page = html.unescape((out / "index.html").read_text(encoding="utf-8"))
     assert "QAIC" in page and page.count("assumes that the estimated association is causal") >= 3
+
+
+def test_qaic_caveat_follows_the_robustness_table(city: pd.DataFrame, tmp_path: Path) -> None:
+    from airhealth.report.html import QAIC_CAVEAT
+
+    out = tmp_path / "r"
+    write_report(city, ["deaths_all"], ["pm25"], ["0-1"], out, robustness=[4, 7], **OPTIONS)
+    page = html.unescape((out / "index.html").read_text(encoding="utf-8"))
+    section = page[page.index("Robustness to the lag structure and the time trend") :]
+    table_at = section.index("Estimates by lag structure and df per year")
+    assert QAIC_CAVEAT in section[table_at:]
 
 
 def test_user_labels_are_escaped_in_the_new_sections(city: pd.DataFrame, tmp_path: Path) -> None:

@@ -34,8 +34,8 @@ ANALYSES = {
     "diagnostics": "diagnostics of the main model (residual autocorrelation, influential days, verdict)",
     "robustness": "the main outcome and exposure over every lag structure and several df per year of the time "
     "trend, on common days, with QAIC",
-    "sensitivity": "the main model refitted with one setting changed at a time (control of season and trend, of "
-    "temperature, humidity and holidays, the most polluted days left out)",
+    "sensitivity": "the main model refitted with one setting changed at a time (the control of season and trend, "
+    "of temperature, humidity and holidays; the most polluted days left out)",
     "copollutant_check": "the main model adjusted for each co-pollutant in turn, on common days",
     "effect_modifier": "the main model's effect in each level of a categorical column, with a test of equal effects",
     "burden": "the cases attributable to exposure above a counterfactual level",
@@ -132,11 +132,26 @@ def _df_values(value: Any) -> list[float] | None:
     return None
 
 
+def _value_text(name: str, value: Any) -> str:
+    """What was given for an analysis, in words for the methods paragraph ("" for a plain switch)."""
+    if name == "copollutant_check":
+        return f" ({', '.join(_columns(value, name))})"
+    if name == "effect_modifier":
+        return f" ({value})"
+    if name == "burden":
+        return f" ({value:g} in the exposure's unit)" if isinstance(value, int | float) else f" ({value})"
+    if name == "robustness" and _df_values(value):
+        return f" (df per year {', '.join(f'{v:g}' for v in _df_values(value) or [])})"
+    if name == "sensitivity" and isinstance(value, Mapping):
+        return f", checks {', '.join(map(str, value))}"
+    return ""
+
+
 def methods_text(analyses: Analyses) -> str:
     """One sentence for the methods paragraph naming every further analysis run."""
     if not analyses:
         return ""
-    done = [ANALYSES[name] for name, _ in analyses.asked]
+    done = [ANALYSES[name] + _value_text(name, value) for name, value in analyses.asked]
     return "Further analyses of the main model, in the order shown: " + "; ".join(done) + "."
 
 

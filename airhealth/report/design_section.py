@@ -69,7 +69,7 @@ def design_section(table: pd.DataFrame, title: str = "Time series and case-cross
         title,
         [
             Text(_INTRO),
-            Table("Estimates by design", shown, "design_comparison", note="RR: relative risk; CI: confidence interval"),
+            Table("Estimates by design", shown, "design_comparison"),  # the writer adds the abbreviation notes
             Table("Design comparison, all statistics", table.copy(), "design_comparison_tidy", display=False),
         ],
     )
