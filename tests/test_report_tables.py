@@ -180,3 +180,22 @@ def test_the_page_explains_every_abbreviation_its_tables_use(report: Path) -> No
     # figures explain their own codes in the note after each figure
     tables_part = re.sub(r"<figure.*?</figure>(<p class='note'>.*?</p>)?", "", page, flags=re.S)
     assert tables_part.count("RR: relative risk") == 1  # once under the effects table, not repeated in its note
+
+
+def test_qaic_is_left_empty_for_models_fitted_on_different_days() -> None:
+    """QAIC compares models on the same days only (Peng, Dominici & Louis 2006): the effects table does not put
+    QAIC side by side for lags that used different days, and keeps it when they share the days."""
+    import warnings
+
+    import airhealth
+    from airhealth.report.tables import effects_table
+    from airhealth.studies.compare import compare_results
+
+    data = airhealth.load_sample().iloc[:1500]
+    options = dict(outcome="deaths_all", exposure="pm25", temperature="temperature")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        own = effects_table(compare_results(data, ["0", "dl0-5"], **options))
+        common = effects_table(compare_results(data, ["0", "dl0-5"], common_days=True, **options))
+    assert own["n_days"].nunique() == 2 and own["qaic"].isna().all()
+    assert common["n_days"].nunique() == 1 and common["qaic"].notna().all()

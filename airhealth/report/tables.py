@@ -52,12 +52,17 @@ def effects_table(results: Iterable[Any], per: float = 10.0, level: float = 0.95
     """One row per fitted model: the effect per ``per`` units of the exposure's ``unit`` and fit statistics.
 
     With ``iqr=True`` the effect per interquartile range of the exposure on the days each model used is
-    added beside it: ``exposure_iqr``, ``rr_iqr``, ``rr_iqr_low``, ``rr_iqr_high``.
+    added beside it: ``exposure_iqr``, ``rr_iqr``, ``rr_iqr_low``, ``rr_iqr_high``. QAIC is comparable only
+    between models fitted on the same days (Peng, Dominici & Louis 2006): when the models of one outcome and
+    exposure used different days (a deeper lag loses more), their ``qaic`` is left empty —
+    :func:`airhealth.compare` compares them on common days.
     """
     results = list(results)
     frame = pd.DataFrame([r.to_dict(per=per, level=level) for r in results])
     cols = [c for c in [*EFFECT_COLUMNS, "coef", "se", "interval"] if c in frame.columns]
     out = frame[cols].copy()
+    if "qaic" in out and results:
+        out.loc[~_same_days_as_group(results, frame), "qaic"] = np.nan
     if "per" in out and "unit" in frame:
         out.insert(out.columns.get_loc("per") + 1, "unit", frame["unit"])
     if iqr and results:
@@ -67,6 +72,16 @@ def effects_table(results: Iterable[Any], per: float = 10.0, level: float = 0.95
         out["rr_iqr_low"] = [e.rr_low for e in effects]
         out["rr_iqr_high"] = [e.rr_high for e in effects]
     return out
+
+
+def _same_days_as_group(results: list[Any], frame: pd.DataFrame) -> np.ndarray:
+    """Whether each model's outcome × exposure group has all its models fitted on one set of days."""
+    days = [hash(tuple(r.fitted.index.asi8)) for r in results]
+    keys = list(zip(frame.get("outcome", [""] * len(results)), frame.get("exposure", [""] * len(results)), strict=True))
+    groups: dict[Any, set[int]] = {}
+    for key, d in zip(keys, days, strict=True):
+        groups.setdefault(key, set()).add(d)
+    return np.array([len(groups[k]) == 1 for k in keys])
 
 
 def _per_text(table: pd.DataFrame, column: str) -> list[str]:
@@ -268,7 +283,9 @@ _ABBREVIATIONS = (
     ("SE", "SE: standard error of the coefficient."),
     ("Coefficient", "Coefficient: log relative risk per unit of exposure (per µg/m³, ppb, ... as stated)."),
     ("df", "df: degrees of freedom."),
-    ("QAIC", "QAIC: quasi-Akaike information criterion; compare only models fitted on the same days."),
+    ("QAIC", "QAIC: quasi-Akaike information criterion; compare only models fitted on the same days (left empty "
+             "where the models of one outcome and exposure used different days: airhealth compare fits them on "
+             "common days)."),
 )  # fmt: skip
 _LAG_NOTE = (
     "Lag: '0' the same day's exposure, '1' the day before's, '0-1' the mean over lags 0 to 1 (a moving average)."
