@@ -43,9 +43,10 @@ from ..model.design import ConfounderBlock, Design, build_design, cached_confoun
 from ..model.engine.grid import ConfounderFit, fit_confounders
 from ..model.engine.grid_inference import ExposureFit, exposure_block, fit_exposure_only
 from ..model.engine.irls import GLMFit
-from ..model.fitting import fit_design, result_from_fit, warn_if_suspicious
+from ..model.fitting import fit_design, warn_if_suspicious
 from ..model.result import SUMMARY_COLUMNS, FitResult
 from ..model.spec import Interval, ModelSpec
+from ._rows import fit_on_design, restrict_to_days
 from .qaic import add_common_qaic
 
 __all__ = ["compare", "compare_results"]
@@ -237,23 +238,8 @@ def _result_row(result: FitResult, per: float, level: float) -> dict[str, Any]:
 
 
 def _restrict(design: Design, keep: np.ndarray, matrix: bool = True) -> Design:
-    """The design restricted to the calendar days ``keep`` (a subset of ``design.used``).
-
-    ``matrix=False``: the matrix is left unrestricted and the days left out for not being common are not
-    added to ``dropped`` (what :func:`warn_if_suspicious` counts there are the exposure reasons alone): the
-    cheap bookkeeping copy of the shared path, never fitted (see :meth:`_Grid.fitting_design`).
-    """
-    inside = keep[design.used]
-    offset = None if design.offset is None else design.offset[inside]
-    if not matrix:
-        return dataclasses.replace(design, response=design.response[inside], offset=offset, used=keep)
-    newly = design.used & ~keep
-    extra = pd.DataFrame({"date": design.calendar[newly], "reason": NOT_COMMON})
-    dropped = pd.concat([design.dropped, extra], ignore_index=True).sort_values("date", kind="stable")
-    return dataclasses.replace(
-        design, matrix=design.matrix[inside], response=design.response[inside], offset=offset, used=keep,
-        dropped=dropped.reset_index(drop=True),
-    )  # fmt: skip
+    """The design on the common days ``keep`` (see :func:`~airhealth.studies._rows.restrict_to_days`)."""
+    return restrict_to_days(design, keep, NOT_COMMON, matrix=matrix)
 
 
 def compare_results(
@@ -278,10 +264,7 @@ def _full_results(grid: _Grid, show_progress: bool) -> list[FitResult]:
     results = []
     with grid.threads():
         for i in progress(range(len(grid.specs)), label="lag structures", enabled=show_progress):
-            spec, design = grid.specs[i], grid.fitting_design(i)
-            glm = fit_design(design, spec)
-            warn_if_suspicious(design, spec, glm.dispersion)
-            results.append(result_from_fit(design, spec, glm))
+            results.append(fit_on_design(grid.fitting_design(i), grid.specs[i]))
     return results
 
 
@@ -413,9 +396,7 @@ def _fit_row(grid: _Grid, shared, i: int, per: float, level: float) -> dict[str,
     with grid.threads():
         if not grid.shared:
             design = grid.fitting_design(i)
-            glm = fit_design(design, spec)
-            warn_if_suspicious(design, spec, glm.dispersion)
-            row = _result_row(result_from_fit(design, spec, glm), per, level)
+            row = _result_row(fit_on_design(design, spec), per, level)
         else:
             fit = _exposure_fit(grid, shared, i)
             warn_if_suspicious(design, spec, fit.dispersion)

@@ -29,6 +29,7 @@ from ..errors import SpecificationError
 from ..model.design import build_design, model_frame
 from ..model.fitting import fit_design, result_from_fit, warn_if_suspicious
 from ..model.spec import ModelSpec
+from ._rows import pick
 from .compare import COMPARE_COLUMNS
 
 __all__ = ["sweep"]
@@ -98,5 +99,5 @@ def sweep(
         with design_threads(len(data)):
             warn_if_suspicious(design, spec, glm.dispersion)
             record = result_from_fit(design, spec, glm).to_dict(per=per, level=level)
-        rows.append({option: value, **{c: record[c] for c in COMPARE_COLUMNS}})
+        rows.append({option: value, **pick(record, COMPARE_COLUMNS)})
     return pd.DataFrame(rows, columns=[option, *COMPARE_COLUMNS])
