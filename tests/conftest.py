@@ -1,4 +1,8 @@
-"""Shared test fixtures: the Norhaven sample data and access to Rscript."""
+"""Shared test fixtures: the Norhaven sample data, access to Rscript and the R reference folder.
+
+The folder ``tests/reference`` is put on ``sys.path`` here, so a test imports an input script of an R
+reference as ``from make_dl_input import write_input``.
+"""
 
 from __future__ import annotations
 
@@ -6,8 +10,10 @@ import json
 import os
 import shutil
 import subprocess
+import sys
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pytest
 from hypothesis import settings
@@ -19,6 +25,22 @@ import airhealth
 settings.register_profile("airhealth", derandomize=True, database=None)
 settings.load_profile("airhealth")
 
+#: The R reference scripts, their input scripts (``make_*_input.py``) and the frozen JSON they wrote.
+REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
+if str(REFERENCE_DIR) not in sys.path:
+    sys.path.insert(0, str(REFERENCE_DIR))
+
+
+def frozen_reference(name: str) -> dict:
+    """The committed ``tests/reference/<name>.json``, written by the R script ``<name>.R``."""
+    return json.loads((REFERENCE_DIR / f"{name}.json").read_text())
+
+
+def rel_diff(a, b) -> float:
+    """The largest relative difference of ``a`` from the reference ``b`` (numbers or arrays of the same shape)."""
+    a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+    return float(np.max(np.abs(a - b) / np.abs(b)))
+
 
 @pytest.fixture(scope="session")
 def _sample_once() -> pd.DataFrame:
@@ -29,6 +51,20 @@ def _sample_once() -> pd.DataFrame:
 def sample(_sample_once: pd.DataFrame) -> pd.DataFrame:
     """The aligned Norhaven sample (a fresh deep copy per test, so tests cannot leak changes)."""
     return _sample_once.copy(deep=True)
+
+
+@pytest.fixture
+def three_years(sample: pd.DataFrame) -> pd.DataFrame:
+    """The sample's first three years, 2010-2012 (a fresh copy per test)."""
+    return sample[sample["date"] < "2013-01-01"].reset_index(drop=True)
+
+
+@pytest.fixture(scope="session")
+def sample_csv(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The whole sample written once as a CSV file, for the command-line tests (read it, never write it)."""
+    path = tmp_path_factory.mktemp("sample_csv") / "norhaven.csv"
+    airhealth.load_sample().to_csv(path, index=False)
+    return path
 
 
 def r_unavailable(reason: str) -> None:

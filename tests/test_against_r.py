@@ -26,21 +26,17 @@ Tolerances
 
 from __future__ import annotations
 
-import json
-from pathlib import Path
-
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import run_r_reference
+from conftest import REFERENCE_DIR, frozen_reference, rel_diff, run_r_reference
 
 import airhealth
 
-REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
 REPO = REFERENCE_DIR.parent.parent
 
 R_SCRIPT = REFERENCE_DIR / "glm_reference.R"
-FROZEN = json.loads((REFERENCE_DIR / "glm_reference.json").read_text())
+FROZEN = frozen_reference("glm_reference")
 VARIANTS = [f["name"] for f in FROZEN["fits"]]
 
 REL_SUMMARY = 1e-6
@@ -76,27 +72,23 @@ def live(rscript, tmp_path_factory) -> dict:
     return run_r_reference(rscript, R_SCRIPT, REPO / "airhealth" / "data", out=out)
 
 
-def _rel(a: float, b: float) -> float:
-    return abs(a - b) / abs(b)
-
-
 def check_against(result: airhealth.FitResult, ref: dict) -> None:
     assert result.n_days == ref["n_used"]
     assert result.df_resid == ref["df_resid"]
     assert len(result.coef) == ref["n_coef"]
-    assert _rel(result.exposure_coef, ref["coef"]) < REL_SUMMARY
-    assert _rel(result.exposure_se, ref["se"]) < REL_SUMMARY
-    assert _rel(result.dispersion, ref["dispersion"]) < REL_SUMMARY
-    assert _rel(result.exposure_coef, ref["coef"]) < REL_FINAL
-    assert _rel(result.exposure_se, ref["se_final_mu"]) < REL_FINAL
-    assert _rel(result.dispersion, ref["dispersion_final_mu"]) < REL_FINAL
-    assert _rel(result.deviance, ref["deviance"]) < REL_FINAL
+    assert rel_diff(result.exposure_coef, ref["coef"]) < REL_SUMMARY
+    assert rel_diff(result.exposure_se, ref["se"]) < REL_SUMMARY
+    assert rel_diff(result.dispersion, ref["dispersion"]) < REL_SUMMARY
+    assert rel_diff(result.exposure_coef, ref["coef"]) < REL_FINAL
+    assert rel_diff(result.exposure_se, ref["se_final_mu"]) < REL_FINAL
+    assert rel_diff(result.dispersion, ref["dispersion_final_mu"]) < REL_FINAL
+    assert rel_diff(result.deviance, ref["deviance"]) < REL_FINAL
     if ref["family"] == "quasipoisson":
-        assert _rel(result.qaic, ref["qaic"]) < REL_FINAL
+        assert rel_diff(result.qaic, ref["qaic"]) < REL_FINAL
     else:  # Poisson AIC; negative binomial AIC counting theta as a parameter
-        assert _rel(result.qaic, ref["aic"]) < REL_FINAL
+        assert rel_diff(result.qaic, ref["aic"]) < REL_FINAL
     if ref["family"] == "negbin":
-        assert _rel(result.theta, ref["theta"]) < REL_THETA
+        assert rel_diff(result.theta, ref["theta"]) < REL_THETA
 
 
 def test_frozen_reference_describes_the_shipped_sample(sample):

@@ -22,11 +22,6 @@ from airhealth.model.spec import ModelSpec
 BASE = {"outcome": "deaths_all", "exposure": "pm25", "lag": "0-1", "temperature": "temperature"}
 
 
-@pytest.fixture
-def three_years(sample):
-    return sample[sample["date"] < "2013-01-01"].reset_index(drop=True)
-
-
 def fit(data, **options):
     return airhealth.fit(data, **{**BASE, **options})
 

@@ -29,13 +29,6 @@ CONTRACT = {
 }
 
 
-@pytest.fixture(scope="module")
-def sample_csv(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    path = tmp_path_factory.mktemp("burden") / "norhaven.csv"
-    airhealth.load_sample().to_csv(path, index=False)
-    return path
-
-
 def test_json_from_a_given_coefficient_matches_python(sample_csv: Path, capsys: pytest.CaptureFixture) -> None:
     args = ["--outcome", "deaths_all", "--exposure", "pm25", "--lag", "0", "--coef", "0.0008", "--se", "0.0003"]
     code = main(["burden", str(sample_csv), *args, "--counterfactual", "who-guideline:pm2.5:24h", "--json"])

@@ -26,28 +26,18 @@ Tolerances
 
 from __future__ import annotations
 
-import json
-import sys
-from pathlib import Path
-
 import numpy as np
 import pytest
-from conftest import run_r_reference
+from conftest import REFERENCE_DIR, frozen_reference, rel_diff, run_r_reference
+from make_case_crossover_input import input_table, write_input
 
 import airhealth
 
-REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
 R_SCRIPT = REFERENCE_DIR / "case_crossover.R"
-FROZEN = json.loads((REFERENCE_DIR / "case_crossover.json").read_text())
+FROZEN = frozen_reference("case_crossover")
 CASES = [(f["name"], f["family"]) for f in FROZEN["fits"]]
 REL_SUMMARY = 1e-6
 REL_FINAL = 1e-9
-
-sys.path.insert(0, str(REFERENCE_DIR))
-try:
-    from make_case_crossover_input import input_table, write_input
-finally:
-    sys.path.pop(0)
 
 
 @pytest.fixture(scope="module")
@@ -83,11 +73,6 @@ def live(rscript, tmp_path_factory):
     return run_r_reference(rscript, R_SCRIPT, csv, out=tmp / "case_crossover.json")
 
 
-def _rel(a, b) -> float:
-    a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
-    return float(np.max(np.abs(a - b) / np.abs(b)))
-
-
 def check_against(result, ref: dict) -> None:
     assert result.n_days == ref["n_used"]
     assert result.df_resid == ref["df_resid"]
@@ -96,18 +81,18 @@ def check_against(result, ref: dict) -> None:
     assert record["design"] == "case-crossover"
     for key in ("n_strata", "n_strata_without_events", "n_strata_single_day"):
         assert record[key] == ref[key]
-    assert _rel(result.exposure_coef, ref["cumulative_coef"]) < REL_SUMMARY
-    assert _rel(result.exposure_se, ref["cumulative_se"]) < REL_SUMMARY
-    assert _rel(result.exposure_se, ref["cumulative_se_final_mu"]) < REL_FINAL
-    assert _rel(result.dispersion, ref["dispersion_final_mu"]) < REL_FINAL
-    assert _rel(result.deviance, ref["deviance"]) < REL_FINAL
+    assert rel_diff(result.exposure_coef, ref["cumulative_coef"]) < REL_SUMMARY
+    assert rel_diff(result.exposure_se, ref["cumulative_se"]) < REL_SUMMARY
+    assert rel_diff(result.exposure_se, ref["cumulative_se_final_mu"]) < REL_FINAL
+    assert rel_diff(result.dispersion, ref["dispersion_final_mu"]) < REL_FINAL
+    assert rel_diff(result.deviance, ref["deviance"]) < REL_FINAL
     if ref["n_params"] > 1:  # distributed lag: each lag's coefficient and SE
         lags = result.lag_coefficients()
-        assert _rel(lags["coef"], ref["lag_coef"]) < REL_SUMMARY
-        assert _rel(lags["se"], ref["lag_se"]) < REL_SUMMARY
-        assert _rel(lags["se"], ref["lag_se_final_mu"]) < REL_FINAL
+        assert rel_diff(lags["coef"], ref["lag_coef"]) < REL_SUMMARY
+        assert rel_diff(lags["se"], ref["lag_se"]) < REL_SUMMARY
+        assert rel_diff(lags["se"], ref["lag_se_final_mu"]) < REL_FINAL
     if "aic" in ref:  # Poisson: R's AIC counts the stratum intercepts as parameters, and so do we
-        assert _rel(result.qaic, ref["aic"]) < REL_FINAL
+        assert rel_diff(result.qaic, ref["aic"]) < REL_FINAL
 
 
 def test_frozen_reference_covers_the_cases(table):
@@ -131,10 +116,10 @@ def check_clogit(result, ref: dict) -> None:
     coef = result.coef[["pm25[0]", "temperature"]].to_numpy()
     se = result.std_err[["pm25[0]", "temperature"]].to_numpy()
     assert result.strata["n_strata"] == ref["n_strata"]
-    assert _rel(coef, ref["coef"]) < REL_SUMMARY
-    assert _rel(se, ref["se"]) < REL_SUMMARY
-    assert _rel(coef, ref["glm_coef"]) < REL_SUMMARY
-    assert _rel(se, ref["glm_se"]) < REL_SUMMARY
+    assert rel_diff(coef, ref["coef"]) < REL_SUMMARY
+    assert rel_diff(se, ref["se"]) < REL_SUMMARY
+    assert rel_diff(coef, ref["glm_coef"]) < REL_SUMMARY
+    assert rel_diff(se, ref["glm_se"]) < REL_SUMMARY
 
 
 def test_conditional_poisson_equals_frozen_clogit_on_expanded_case_referent_sets(clogit_example):

@@ -29,13 +29,6 @@ REQUIRED_KEYS = {
 }
 
 
-@pytest.fixture(scope="module")
-def sample_csv(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    path = tmp_path_factory.mktemp("cli") / "norhaven.csv"
-    airhealth.load_sample().to_csv(path, index=False)
-    return path
-
-
 def test_fit_json_has_the_contract_keys_and_matches_python(sample_csv: Path, capsys: pytest.CaptureFixture) -> None:
     code = main(
         [

@@ -20,22 +20,19 @@ Tolerances
 
 from __future__ import annotations
 
-import json
 import warnings
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
-from conftest import run_r_reference
+from conftest import REFERENCE_DIR, frozen_reference, rel_diff, run_r_reference
 
 import airhealth
 
-REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
 REPO = REFERENCE_DIR.parent.parent
 R_SCRIPT = REFERENCE_DIR / "copollutant_modifier.R"
-FROZEN = json.loads((REFERENCE_DIR / "copollutant_modifier.json").read_text())
+FROZEN = frozen_reference("copollutant_modifier")
 NAMES = [f["name"] for f in FROZEN["fits"]]
 
 REL = 1e-6
@@ -78,32 +75,28 @@ def live(rscript, tmp_path_factory) -> dict:
     return run_r_reference(rscript, R_SCRIPT, REPO / "airhealth" / "data", out=out)
 
 
-def _rel(a: float, b: float) -> float:
-    return abs(a - b) / abs(b)
-
-
 def _check(result: airhealth.FitResult, ref: dict) -> None:
     assert result.n_days == ref["n_used"]
     assert result.df_resid == ref["df_resid"]
-    assert _rel(result.dispersion, ref["dispersion"]) < REL
+    assert rel_diff(result.dispersion, ref["dispersion"]) < REL
     if ref["modifier"]:
         table = result.effects_by_group(per=1)
         assert [str(g) for g in table["group"]] == ref["levels"]
         for row, expected in zip(table.itertuples(), ref["group_effects"], strict=True):
-            assert _rel(row.coef, expected["coef"]) < REL
-            assert _rel(row.se, expected["se"]) < REL
+            assert rel_diff(row.coef, expected["coef"]) < REL
+            assert rel_diff(row.se, expected["se"]) < REL
         test = result.modification_test()
         assert test["df"] == ref["wald"]["df"]
-        assert _rel(test["statistic"], ref["wald"]["statistic"]) < REL_WALD
-        assert _rel(test["p_value"], ref["wald"]["p_value"]) < REL_WALD
+        assert rel_diff(test["statistic"], ref["wald"]["statistic"]) < REL_WALD
+        assert rel_diff(test["p_value"], ref["wald"]["p_value"]) < REL_WALD
     else:
-        assert _rel(result.exposure_coef, ref["exposure_effect"]["coef"]) < REL
-        assert _rel(result.exposure_se, ref["exposure_effect"]["se"]) < REL
+        assert rel_diff(result.exposure_coef, ref["exposure_effect"]["coef"]) < REL
+        assert rel_diff(result.exposure_se, ref["exposure_effect"]["se"]) < REL
     if ref["copollutant"]:
         row = result.copollutant_effects(per=1).iloc[0]
         assert row["copollutant"] == ref["copollutant"]
-        assert _rel(row["coef"], ref["copollutant_effect"]["coef"]) < REL
-        assert _rel(row["se"], ref["copollutant_effect"]["se"]) < REL
+        assert rel_diff(row["coef"], ref["copollutant_effect"]["coef"]) < REL
+        assert rel_diff(row["se"], ref["copollutant_effect"]["se"]) < REL
 
 
 @pytest.mark.parametrize("name", NAMES)
@@ -121,7 +114,7 @@ def test_copollutant_and_group_estimates_match_live_r(fits, live, name):
 def test_frozen_copollutant_reference_is_up_to_date(live):
     for frozen, now in zip(FROZEN["fits"], live["fits"], strict=True):
         assert frozen["formula"] == now["formula"]
-        assert _rel(frozen["dispersion"], now["dispersion"]) < 1e-12  # same R script, same data
+        assert rel_diff(frozen["dispersion"], now["dispersion"]) < 1e-12  # same R script, same data
 
 
 def _statsmodels(result: airhealth.FitResult):
@@ -155,5 +148,5 @@ def test_coefficients_and_wald_test_match_statsmodels_on_the_same_design(fits, n
     d = np.hstack([-np.ones((len(result.groups) - 1, 1)), np.eye(len(result.groups) - 1)])
     wald = sm_fit.wald_test(d @ rows, use_f=False, scalar=True)
     test = result.modification_test()
-    assert _rel(test["statistic"], float(wald.statistic)) < REL_WALD
-    assert _rel(test["p_value"], float(wald.pvalue)) < REL_WALD
+    assert rel_diff(test["statistic"], float(wald.statistic)) < REL_WALD
+    assert rel_diff(test["p_value"], float(wald.pvalue)) < REL_WALD

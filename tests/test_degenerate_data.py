@@ -22,11 +22,6 @@ BASE = {"outcome": "deaths_all", "exposure": "pm25", "lag": "0-1", "temperature"
 COMPARE = {k: v for k, v in BASE.items() if k != "lag"}
 
 
-@pytest.fixture
-def three_years(sample):
-    return sample[sample["date"] < "2013-01-01"].reset_index(drop=True)
-
-
 def fit(data, **options):
     return airhealth.fit(data, **{**BASE, **options})
 

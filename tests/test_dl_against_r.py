@@ -24,18 +24,15 @@ Tolerances
 
 from __future__ import annotations
 
-import json
-from pathlib import Path
-
 import numpy as np
 import pytest
-from conftest import run_r_reference
+from conftest import REFERENCE_DIR, frozen_reference, rel_diff, run_r_reference
+from make_dl_input import write_input
 
 from airhealth.model.fitting import fit
 
-REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
 R_SCRIPT = REFERENCE_DIR / "dl_reference.R"
-FROZEN = json.loads((REFERENCE_DIR / "dl_reference.json").read_text())
+FROZEN = frozen_reference("dl_reference")
 NAMES = [f["name"] for f in FROZEN["fits"]]
 
 REL_SUMMARY = 1e-6
@@ -49,21 +46,9 @@ def fits(_sample_once):
 
 @pytest.fixture(scope="module")
 def live(rscript, tmp_path_factory):
-    import sys
-
-    sys.path.insert(0, str(REFERENCE_DIR))
-    try:
-        from make_dl_input import write_input
-    finally:
-        sys.path.pop(0)
     tmp = tmp_path_factory.mktemp("dl_reference")
     csv = write_input(tmp / "dl_input.csv")
     return run_r_reference(rscript, R_SCRIPT, csv, out=tmp / "dl_reference.json")
-
-
-def _rel(a, b) -> float:
-    a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
-    return float(np.max(np.abs(a - b) / np.abs(b)))
 
 
 def check_against(result, ref: dict) -> None:
@@ -72,21 +57,21 @@ def check_against(result, ref: dict) -> None:
     assert result.n_days == ref["n_used"]
     assert result.df_resid == ref["df_resid"]
     assert len(result.coef) == ref["n_coef"]
-    assert _rel(lags["coef"], ref["lag_coef"]) < REL_SUMMARY
-    assert _rel(lags["se"], ref["lag_se"]) < REL_SUMMARY
-    assert _rel(result.exposure_coef, ref["cumulative_coef"]) < REL_SUMMARY
-    assert _rel(result.exposure_se, ref["cumulative_se"]) < REL_SUMMARY
-    assert _rel(lags["coef"], ref["lag_coef"]) < REL_FINAL
-    assert _rel(lags["se"], ref["lag_se_final_mu"]) < REL_FINAL
-    assert _rel(result.exposure_se, ref["cumulative_se_final_mu"]) < REL_FINAL
-    assert _rel(result.dispersion, ref["dispersion_final_mu"]) < REL_FINAL
-    assert _rel(result.deviance, ref["deviance"]) < REL_FINAL
+    assert rel_diff(lags["coef"], ref["lag_coef"]) < REL_SUMMARY
+    assert rel_diff(lags["se"], ref["lag_se"]) < REL_SUMMARY
+    assert rel_diff(result.exposure_coef, ref["cumulative_coef"]) < REL_SUMMARY
+    assert rel_diff(result.exposure_se, ref["cumulative_se"]) < REL_SUMMARY
+    assert rel_diff(lags["coef"], ref["lag_coef"]) < REL_FINAL
+    assert rel_diff(lags["se"], ref["lag_se_final_mu"]) < REL_FINAL
+    assert rel_diff(result.exposure_se, ref["cumulative_se_final_mu"]) < REL_FINAL
+    assert rel_diff(result.dispersion, ref["dispersion_final_mu"]) < REL_FINAL
+    assert rel_diff(result.deviance, ref["deviance"]) < REL_FINAL
     # the JSON record: top-level effect is the cumulative one, per-lag rows match too
     record = result.to_dict(per=10)
-    assert _rel(record["coef"], ref["cumulative_coef"]) < REL_SUMMARY
+    assert rel_diff(record["coef"], ref["cumulative_coef"]) < REL_SUMMARY
     assert record["cumulative"]["se"] == record["se"]
-    assert _rel([row["coef"] for row in record["lags"]], ref["lag_coef"]) < REL_SUMMARY
-    assert _rel([row["rr"] for row in record["lags"]], np.exp(10 * np.asarray(ref["lag_coef"]))) < 1e-9
+    assert rel_diff([row["coef"] for row in record["lags"]], ref["lag_coef"]) < REL_SUMMARY
+    assert rel_diff([row["rr"] for row in record["lags"]], np.exp(10 * np.asarray(ref["lag_coef"]))) < 1e-9
 
 
 def test_frozen_reference_covers_the_lag_structures(_sample_once):

@@ -26,14 +26,13 @@ from __future__ import annotations
 
 import json
 import pickle
-import sys
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
-from conftest import run_r_reference
+from conftest import REFERENCE_DIR, frozen_reference, run_r_reference
+from make_diagnostics_input import complete_city, write_input
 from statsmodels.stats.sandwich_covariance import S_hac_simple
 
 import airhealth
@@ -42,11 +41,7 @@ from airhealth.errors import SpecificationError
 from airhealth.model.engine.variance import default_hac_lags
 from airhealth.studies.compare import compare
 
-REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
-sys.path.insert(0, str(REFERENCE_DIR))
-from make_diagnostics_input import complete_city, write_input  # noqa: E402
-
-FROZEN = json.loads((REFERENCE_DIR / "diagnostics_reference.json").read_text())
+FROZEN = frozen_reference("diagnostics_reference")
 OPTIONS = {"outcome": "deaths_all", "exposure": "pm25", "lag": "0", "temperature": "temperature"}
 
 

@@ -22,35 +22,26 @@ Tolerances
 
 from __future__ import annotations
 
-import json
 import re
-import sys
 import warnings
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import run_r_reference
+from conftest import REFERENCE_DIR, frozen_reference, rel_diff, run_r_reference
+from make_long_gap_input import GAP, gapped_city, write_input
 
 import airhealth
 from airhealth.errors import DataError, DataWarning
 from airhealth.model.engine.aliasing import aliased_columns
 
-REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
 R_SCRIPT = REFERENCE_DIR / "long_gap_reference.R"
-FROZEN = json.loads((REFERENCE_DIR / "long_gap_reference.json").read_text())
+FROZEN = frozen_reference("long_gap_reference")
 NAMES = [f["name"] for f in FROZEN["fits"]]
 
 REL_COEF = 1e-8
 REL_SE = 1e-6
 REL_FINAL = 1e-9
-
-sys.path.insert(0, str(REFERENCE_DIR))
-try:
-    from make_long_gap_input import GAP, gapped_city, write_input
-finally:
-    sys.path.pop(0)
 
 
 @pytest.fixture(scope="module")
@@ -78,10 +69,6 @@ def live(rscript, tmp_path_factory) -> dict:
     return run_r_reference(rscript, R_SCRIPT, csv, out=tmp / "long_gap_reference.json")
 
 
-def _rel(a: float, b: float) -> float:
-    return abs(a - b) / abs(b)
-
-
 def _our_name(r_name: str) -> str:
     """R's ``ns(time, df = 35)15`` is airhealth's ``spline(time)15``."""
     match = re.fullmatch(r"ns\(time, df = \d+\)(\d+)", r_name)
@@ -95,12 +82,12 @@ def check_against(result: airhealth.FitResult, ref: dict) -> None:
     assert result.n_days == ref["n_used"]
     assert result.df_resid == ref["df_resid"]
     assert len(result.coef) == ref["n_coef"]
-    assert _rel(result.exposure_coef, ref["coef"]) < REL_COEF
-    assert _rel(result.exposure_se, ref["se"]) < REL_SE
-    assert _rel(result.exposure_se, ref["se_final_mu"]) < REL_SE
-    assert _rel(result.dispersion, ref["dispersion_final_mu"]) < REL_SE
-    assert _rel(result.deviance, ref["deviance"]) < REL_FINAL
-    assert _rel(result.qaic, ref["qaic"]) < REL_FINAL
+    assert rel_diff(result.exposure_coef, ref["coef"]) < REL_COEF
+    assert rel_diff(result.exposure_se, ref["se"]) < REL_SE
+    assert rel_diff(result.exposure_se, ref["se_final_mu"]) < REL_SE
+    assert rel_diff(result.dispersion, ref["dispersion_final_mu"]) < REL_SE
+    assert rel_diff(result.deviance, ref["deviance"]) < REL_FINAL
+    assert rel_diff(result.qaic, ref["qaic"]) < REL_FINAL
 
 
 def test_frozen_reference_describes_the_gapped_city(city):

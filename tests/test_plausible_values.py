@@ -24,11 +24,6 @@ from airhealth.studies.compare import compare
 BASE = {"outcome": "deaths_all", "exposure": "pm25", "lag": "0-1", "temperature": "temperature"}
 
 
-@pytest.fixture
-def three_years(sample):
-    return sample[sample["date"] < "2013-01-01"].reset_index(drop=True)
-
-
 def fit(data, **options):
     return airhealth.fit(data, **{**BASE, **options})
 

@@ -19,27 +19,21 @@ Tolerances
 
 from __future__ import annotations
 
-import json
 import pickle
-import sys
 import warnings
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import run_r_reference
+from conftest import REFERENCE_DIR, frozen_reference, run_r_reference
+from make_diagnostics_input import complete_city, write_input
 from statsmodels.regression.linear_model import WLS
 from statsmodels.tsa.stattools import acf, pacf
 
 import airhealth
 from airhealth.errors import DataError, DataWarning, SpecificationError
 
-REFERENCE_DIR = Path(__file__).resolve().parent / "reference"
-sys.path.insert(0, str(REFERENCE_DIR))
-from make_diagnostics_input import complete_city, write_input  # noqa: E402
-
-FROZEN = json.loads((REFERENCE_DIR / "diagnostics_reference.json").read_text())
+FROZEN = frozen_reference("diagnostics_reference")
 OPTIONS = {"outcome": "deaths_all", "exposure": "pm25", "lag": "0", "temperature": "temperature"}
 
 
@@ -227,7 +221,6 @@ def test_diagnose_refuses_what_is_not_a_fit():
 
 
 def test_diagnostics_with_aliased_columns_use_the_columns_fitted():
-    sys.path.insert(0, str(REFERENCE_DIR))
     from make_long_gap_input import gapped_city
 
     with warnings.catch_warnings():

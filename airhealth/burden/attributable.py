@@ -77,6 +77,7 @@ def _compute(
     theta: np.ndarray,
     cov: np.ndarray,
     counterfactual: Counterfactual,
+    spec: ModelSpec,
     *,
     draws: int,
     seed: int,
@@ -84,6 +85,8 @@ def _compute(
     notes: list[str],
     **fields: Any,
 ) -> BurdenResult:
+    """Simulate the burden of ``parts`` and build the result, described by ``spec`` and ``fields``."""
+    fields.update(outcome=spec.outcome, exposure=spec.exposure, lag=spec.lag.label, unit=spec.unit)
     if sum(p.n_days for _, p in parts) == 0:
         left = pd.concat([p.left_out for _, p in parts], ignore_index=True)
         reasons = left["reason"].value_counts().to_dict() if len(left) else {}
@@ -220,9 +223,8 @@ def burden(
     else:
         part = _rows_of(_burden_frame(data, spec), spec, term.basis, counter.value, side, perspective)
     return _compute(
-        [(spec.exposure, part)], term.coef, term.cov, counter, draws=draws, seed=seed, level=level, notes=notes,
-        outcome=spec.outcome, exposure=spec.exposure, lag=spec.lag.label, unit=spec.unit, side=side,
-        perspective=perspective, source="fitted model",
+        [(spec.exposure, part)], term.coef, term.cov, counter, spec, draws=draws, seed=seed, level=level,
+        notes=notes, side=side, perspective=perspective, source="fitted model",
     )  # fmt: skip
 
 
@@ -288,9 +290,8 @@ def burden_from_estimate(
     counter = resolve_counterfactual(counterfactual, spec.unit)
     part = _rows_of(_burden_frame(data, spec), spec, basis, counter.value, side, "backward")
     return _compute(
-        [(exposure, part)], theta, cov, counter, draws=draws, seed=seed, level=level, notes=[], outcome=outcome,
-        exposure=exposure, lag=basis.lag.label, unit=spec.unit, side=side, perspective="backward",
-        source=f"given coefficient {float(coef):.6g} (SE {float(se):.6g}) per {spec.unit}",
+        [(exposure, part)], theta, cov, counter, spec, draws=draws, seed=seed, level=level, notes=[], side=side,
+        perspective="backward", source=f"given coefficient {float(coef):.6g} (SE {float(se):.6g}) per {spec.unit}",
     )  # fmt: skip
 
 
@@ -356,6 +357,6 @@ def burden_pooled(
     for name, data in cities.items():
         parts.append((str(name), _rows_of(_burden_frame(data, spec), spec, basis, counter.value, side, perspective)))
     return _compute(
-        parts, theta, cov, counter, draws=draws, seed=seed, level=level, notes=[], outcome=outcome,
-        exposure=exposure, lag=basis.lag.label, unit=spec.unit, side=side, perspective=perspective, source=source,
+        parts, theta, cov, counter, spec, draws=draws, seed=seed, level=level, notes=[], side=side,
+        perspective=perspective, source=source,
     )  # fmt: skip

@@ -38,6 +38,12 @@ import numpy as np
 import pandas as pd
 
 from ..model.bases.exposure_lag import ExposureLagBasis
+from ..model.design import (
+    EXPOSURE_IN_WINDOW,
+    EXPOSURE_MISSING,
+    LAG_BEFORE_START,
+    OUTCOME_MISSING,
+)
 from ..prep.lags import lag_matrix
 
 __all__ = [
@@ -53,13 +59,10 @@ __all__ = [
 Perspective = Literal["backward", "forward"]
 Side = Literal["above", "below", "both"]
 
-EXPOSURE_MISSING = "exposure missing"
-EXPOSURE_IN_WINDOW = "exposure missing in lag window"
-BEFORE_START = "lag window starts before the first day"
-OUTCOME_MISSING = "outcome missing"
+# the reasons a day is left out are the fit's (model/design.py), plus those of the forward perspective
+BEFORE_START = LAG_BEFORE_START
 FUTURE_MISSING = "outcome missing in the following lag window"
 AFTER_END = "lag window ends after the last day"
-EXPOSURE_REASONS = (EXPOSURE_MISSING, EXPOSURE_IN_WINDOW, BEFORE_START)
 
 
 @dataclass(frozen=True)
@@ -84,14 +87,20 @@ def _beyond(x: np.ndarray, x0: float, side: Side) -> np.ndarray:
     return np.ones(x.shape, dtype=bool)
 
 
+def _reasons(bad: np.ndarray, reason: str, at_edge: np.ndarray | None = None, edge_reason: str = "") -> np.ndarray:
+    """Per day, ``reason`` where ``bad`` ('' elsewhere); ``edge_reason`` instead where also ``at_edge``."""
+    reasons = np.full(len(bad), "", dtype=object)
+    reasons[bad] = reason
+    if at_edge is not None:
+        reasons[bad & at_edge] = edge_reason
+    return reasons
+
+
 def exposure_reasons(x: np.ndarray, window: np.ndarray, lags: np.ndarray) -> np.ndarray:
     """Per day, why the exposure is unusable ('' when it is usable)."""
-    n = len(x)
-    reasons = np.full(n, "", dtype=object)
+    early = np.arange(len(x)) < int(lags.max())
     missing = ~np.isfinite(window).all(axis=1)
-    early = np.arange(n) < int(lags.max())
-    reasons[missing & early] = BEFORE_START
-    reasons[missing & ~early] = EXPOSURE_IN_WINDOW
+    reasons = _reasons(missing, EXPOSURE_IN_WINDOW, early, BEFORE_START)
     if 0 in lags:
         reasons[missing & ~np.isfinite(x)] = EXPOSURE_MISSING
     return reasons
@@ -121,13 +130,8 @@ def frame_rows(
 def _future_mean(y: np.ndarray, lags: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Mean of ``y[t + l]`` over the lags and, per day, why it is unavailable."""
     ahead = lag_matrix(y[::-1], lags)[::-1]  # column j: y[t + lags[j]]
-    n = len(y)
-    reasons = np.full(n, "", dtype=object)
-    bad = ~np.isfinite(ahead).all(axis=1)
-    late = np.arange(n) > n - 1 - int(lags.max())
-    reasons[bad & ~late] = FUTURE_MISSING
-    reasons[bad & late] = AFTER_END
-    return ahead.mean(axis=1), reasons
+    late = np.arange(len(y)) > len(y) - 1 - int(lags.max())
+    return ahead.mean(axis=1), _reasons(~np.isfinite(ahead).all(axis=1), FUTURE_MISSING, late, AFTER_END)
 
 
 def _assemble(dates: pd.DatetimeIndex, rows: np.ndarray, cases: np.ndarray, reasons: np.ndarray) -> DailyExcess:
@@ -137,9 +141,7 @@ def _assemble(dates: pd.DatetimeIndex, rows: np.ndarray, cases: np.ndarray, reas
 
 
 def _outcome_reasons(y: np.ndarray) -> np.ndarray:
-    reasons = np.full(len(y), "", dtype=object)
-    reasons[~np.isfinite(y)] = OUTCOME_MISSING
-    return reasons
+    return _reasons(~np.isfinite(y), OUTCOME_MISSING)
 
 
 def model_exposure_rows(
@@ -180,8 +182,7 @@ def lag_rows(
         rows = np.einsum("tlj,lk->tjk", f, c).reshape(len(x), -1)
         why = np.where(reasons == "", _outcome_reasons(y), reasons)
         return _assemble(dates, rows, y, why)
-    reasons = np.full(len(x), "", dtype=object)
-    reasons[~np.isfinite(x)] = EXPOSURE_MISSING
+    reasons = _reasons(~np.isfinite(x), EXPOSURE_MISSING)
     filled = np.where(np.isfinite(x), x, x0)
     f = response.evaluate(filled) - f0
     f = np.where(_beyond(filled, x0, side)[:, None], f, 0.0)

@@ -16,9 +16,9 @@ import pandas as pd
 
 from .._choices import check_choice
 from ..errors import SpecificationError
+from ..model.design import EXPOSURE_REASONS
 from ..model.effects import normal_quantile
 from .counterfactual import Counterfactual
-from .excess import EXPOSURE_REASONS
 from .simulation import Simulation
 
 __all__ = ["CAUTION", "Breakdown", "BurdenResult", "build_result"]

@@ -70,7 +70,9 @@ class CsvFile(CitySource):
 
     def load(self, columns: Sequence[str]) -> pd.DataFrame:
         try:
-            return pd.read_csv(self.path, sep=self.sep, decimal=self.decimal, encoding=self.encoding)
+            return pd.read_csv(
+                self.path, sep=self.sep, decimal=self.decimal, encoding=self.encoding, float_precision="round_trip"
+            )
         except pd.errors.EmptyDataError:
             raise DataError(f"the file {self.path.name} is empty; give a header row and one row per day.") from None
         except (UnicodeDecodeError, pd.errors.ParserError) as exc:

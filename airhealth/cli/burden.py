@@ -21,14 +21,16 @@ from ..burden.simulation import DEFAULT_DRAWS, DEFAULT_SEED, MIN_DRAWS
 from ..errors import SpecificationError
 from .fit import _clean
 from .options import (
+    DAILY_FILE_HELP,
+    add_lag_option,
     add_model_options,
+    add_outcome_exposure,
     add_reading_options,
-    check_min_count,
     confidence_level,
     model_options,
     parse_units,
     read_daily,
-    with_min_count,
+    single_lag,
 )
 from .remedies import with_command_line_remedy
 
@@ -41,10 +43,9 @@ def register(sub: Any) -> None:
         description="Attributable number and fraction of cases above a counterfactual exposure level, with Monte "
         "Carlo intervals. A burden assumes the association is causal and the counterfactual achievable.",
     )
-    p.add_argument("data", type=Path, nargs="?", help="CSV file with one row per day (- for standard input)")
-    p.add_argument("--outcome", help="column of daily counts")
-    p.add_argument("--exposure", help="column of the daily pollutant level")
-    p.add_argument("--lag", default="0-1", help='lag: "0", "0-1", "dl0-5", ... (default "0-1")')
+    p.add_argument("data", type=Path, nargs="?", help=DAILY_FILE_HELP)
+    add_outcome_exposure(p, required=False)  # not needed with --list-counterfactuals
+    add_lag_option(p)
     p.add_argument(
         "--counterfactual",
         metavar="X0|PRESET",
@@ -104,8 +105,7 @@ def _compute(args: argparse.Namespace, level: float) -> Any:
     from ..burden import burden, burden_from_estimate
     from ..model.fitting import fit
 
-    lag = with_min_count(args.lag, args.min_count)
-    check_min_count([lag], args.min_count)
+    lag = single_lag(args)
     units = parse_units(args.unit, [args.exposure])
     unit = units.get(args.exposure, "µg/m³")
     options = {"draws": args.draws, "seed": args.seed, "side": args.side, "level": level}

@@ -23,7 +23,9 @@ from .._io import write_with
 from ..errors import SpecificationError
 from ..model.bases.lag_structures import LagStructure
 from .options import (
+    DAILY_FILE_HELP,
     add_model_options,
+    add_outcome_exposure,
     add_reading_options,
     check_min_count,
     confidence_level,
@@ -54,9 +56,8 @@ def register(sub: Any) -> None:
         "all of them, and tabulate the relative risks and QAIC (own and common dispersion).",
         conflict_handler="resolve",  # --trend-df-per-year below replaces fit's single-value option
     )
-    p.add_argument("data", type=Path, help="CSV file with one row per day (- for standard input)")
-    p.add_argument("--outcome", required=True, help="column of daily counts")
-    p.add_argument("--exposure", required=True, help="column of the daily pollutant level")
+    p.add_argument("data", type=Path, help=DAILY_FILE_HELP)
+    add_outcome_exposure(p)
     p.add_argument(
         "--lags",
         required=True,

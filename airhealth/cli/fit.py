@@ -11,12 +11,14 @@ from pathlib import Path
 from typing import Any
 
 from .options import (
+    DAILY_FILE_HELP,
     add_copollutant_options,
     add_design_options,
     add_label_option,
+    add_lag_option,
     add_model_options,
+    add_outcome_exposure,
     add_reading_options,
-    check_min_count,
     confidence_level,
     copollutant_options,
     design_options,
@@ -24,7 +26,7 @@ from .options import (
     parse_labels,
     parse_units,
     read_daily,
-    with_min_count,
+    single_lag,
 )
 from .remedies import with_command_line_remedy
 
@@ -36,10 +38,9 @@ def register(sub: Any) -> None:
         help="fit the time-series model for one outcome and one exposure",
         description="Fit a quasi-Poisson time-series model of daily counts and report the relative risk.",
     )
-    p.add_argument("data", type=Path, help="CSV file with one row per day (- for standard input)")
-    p.add_argument("--outcome", required=True, help="column of daily counts")
-    p.add_argument("--exposure", required=True, help="column of the daily pollutant level")
-    p.add_argument("--lag", default="0-1", help='lag: "0", "2", "0-1", "dl0-5", "dl0-7:poly3", ... (default "0-1")')
+    p.add_argument("data", type=Path, help=DAILY_FILE_HELP)
+    add_outcome_exposure(p)
+    add_lag_option(p)
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     add_label_option(p)
     add_model_options(p)
@@ -65,8 +66,7 @@ def _clean(value: Any) -> Any:
 def _fit(args: argparse.Namespace) -> Any:
     from ..model.fitting import fit
 
-    lag = with_min_count(args.lag, args.min_count)
-    check_min_count([lag], args.min_count)
+    lag = single_lag(args)
     units = parse_units(args.unit, [args.exposure, *args.copollutant])
     columns = [args.outcome, args.exposure, args.temperature, args.humidity, *args.copollutant, args.modifier]
     data = read_daily(args, columns, per_analysis=[args.modifier] if args.modifier else ())

@@ -18,12 +18,13 @@ from typing import Any
 
 from .._io import write_text, write_with
 from .options import (
+    add_lag_option,
     add_model_options,
-    check_min_count,
+    add_outcome_exposure,
     confidence_level,
     model_options,
     parse_units,
-    with_min_count,
+    single_lag,
 )
 from .remedies import with_command_line_remedy
 
@@ -37,9 +38,8 @@ def register(sub: Any) -> None:
     )
     p.add_argument("data", type=Path, help="folder of CSV files (one per city), or a CSV or Parquet file with --city")
     p.add_argument("--city", metavar="COL", help="column of city names (a single CSV or Parquet file)")
-    p.add_argument("--outcome", required=True, help="column of daily counts")
-    p.add_argument("--exposure", required=True, help="column of the daily pollutant level")
-    p.add_argument("--lag", default="0-1", help='lag: "0", "2", "0-1", "dl0-5", "dl0-7:poly3", ... (default "0-1")')
+    add_outcome_exposure(p)
+    add_lag_option(p)
     p.add_argument("--out", required=True, type=Path, metavar="ESTIMATES.csv", help="file of the city estimates")
     g = p.add_argument_group("running")
     g.add_argument("--executor", default="local", choices=["local", "dask", "serial"], help="where cities run")
@@ -95,8 +95,7 @@ def run(args: argparse.Namespace) -> int:
     level = confidence_level(args.confidence)
     if args.out.suffix.lower() == ".json":
         raise SpecificationError(f"--out {args.out} ends in .json, the name of the model file beside it: use .csv.")
-    lag = with_min_count(args.lag, args.min_count)
-    check_min_count([lag], args.min_count)
+    lag = single_lag(args)
     options = model_options(args)
     options["date_format"] = args.date_format
     units = parse_units(args.unit, [args.exposure])

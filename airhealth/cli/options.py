@@ -21,10 +21,13 @@ from ..prep.validate import parse_dates, require_columns
 from .tables import check_numeric_columns, read_table
 
 __all__ = [
+    "DAILY_FILE_HELP",
     "add_copollutant_options",
     "add_label_option",
+    "add_lag_option",
     "add_layout_options",
     "add_model_options",
+    "add_outcome_exposure",
     "add_reading_options",
     "confidence_level",
     "copollutant_options",
@@ -33,8 +36,23 @@ __all__ = [
     "parse_na_values",
     "parse_units",
     "read_daily",
+    "single_lag",
     "with_min_count",
 ]
+
+#: Help of the positional daily file of the commands that read one daily table.
+DAILY_FILE_HELP = "CSV file with one row per day (- for standard input)"
+
+
+def add_outcome_exposure(p: argparse.ArgumentParser, required: bool = True) -> None:
+    """``--outcome COL`` and ``--exposure COL``: what every fitting command models."""
+    p.add_argument("--outcome", required=required, help="column of daily counts")
+    p.add_argument("--exposure", required=required, help="column of the daily pollutant level")
+
+
+def add_lag_option(p: argparse.ArgumentParser) -> None:
+    """``--lag``: the one lag structure of a fit (read by :func:`single_lag`)."""
+    p.add_argument("--lag", default="0-1", help='lag: "0", "2", "0-1", "dl0-5", "dl0-7:poly3", ... (default "0-1")')
 
 
 def add_layout_options(g: Any) -> None:
@@ -280,6 +298,13 @@ def check_min_count(lags: Sequence[LagStructure], min_count: int | None) -> None
         raise SpecificationError(
             f"--min-count applies to moving-average lags such as 0-3, and none is given (lags: {shown})."
         )
+
+
+def single_lag(args: argparse.Namespace) -> LagStructure:
+    """The lag structure of ``--lag`` with ``--min-count`` applied (and checked to apply)."""
+    lag = with_min_count(args.lag, args.min_count)
+    check_min_count([lag], args.min_count)
+    return lag
 
 
 def read_daily(

@@ -160,7 +160,14 @@ def read_table(
     """
     raw = _read_bytes(path)
     try:
-        table = pd.read_csv(io.BytesIO(raw), sep=sep, decimal=decimal, na_values=na_values, encoding=encoding)
+        table = pd.read_csv(
+            io.BytesIO(raw),
+            sep=sep,
+            decimal=decimal,
+            na_values=na_values,
+            encoding=encoding,
+            float_precision="round_trip",  # numbers exactly as written (older pandas parsers lose the last digit)
+        )
     except UnicodeDecodeError as exc:
         raise _encoding_error(path, raw, encoding) from exc
     except LookupError as exc:

@@ -46,6 +46,7 @@ from ..model.engine.irls import GLMFit
 from ..model.fitting import fit_design, fitted_result, warn_if_suspicious
 from ..model.result import SUMMARY_COLUMNS, FitResult
 from ..model.spec import Interval, ModelSpec
+from ._rows import restrict_to_days
 from .qaic import add_common_qaic
 
 __all__ = ["compare", "compare_results"]
@@ -238,23 +239,8 @@ def _result_row(result: FitResult, per: float, level: float) -> dict[str, Any]:
 
 
 def _restrict(design: Design, keep: np.ndarray, matrix: bool = True) -> Design:
-    """The design restricted to the calendar days ``keep`` (a subset of ``design.used``).
-
-    ``matrix=False``: the matrix is left unrestricted and the days left out for not being common are not
-    added to ``dropped`` (what :func:`warn_if_suspicious` counts there are the exposure reasons alone): the
-    cheap bookkeeping copy of the shared path, never fitted (see :meth:`_Grid.fitting_design`).
-    """
-    inside = keep[design.used]
-    offset = None if design.offset is None else design.offset[inside]
-    if not matrix:
-        return dataclasses.replace(design, response=design.response[inside], offset=offset, used=keep)
-    newly = design.used & ~keep
-    extra = pd.DataFrame({"date": design.calendar[newly], "reason": NOT_COMMON})
-    dropped = pd.concat([design.dropped, extra], ignore_index=True).sort_values("date", kind="stable")
-    return dataclasses.replace(
-        design, matrix=design.matrix[inside], response=design.response[inside], offset=offset, used=keep,
-        dropped=dropped.reset_index(drop=True),
-    )  # fmt: skip
+    """The design on the common days ``keep`` (see :func:`~airhealth.studies._rows.restrict_to_days`)."""
+    return restrict_to_days(design, keep, NOT_COMMON, matrix=matrix)
 
 
 def compare_results(

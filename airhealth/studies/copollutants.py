@@ -14,7 +14,6 @@ environmental epidemiology. Int J Epidemiol 42:1187–1195 (two-pollutant models
 
 from __future__ import annotations
 
-import dataclasses
 from collections.abc import Sequence
 from typing import Any
 
@@ -23,10 +22,11 @@ import pandas as pd
 
 from .._progress import progress
 from ..errors import DataError, SpecificationError
-from ..model.design import Design, build_design, model_frame
+from ..model.design import build_design, model_frame
 from ..model.fitting import fitted_result
 from ..model.result import FitResult
 from ..model.spec import ModelSpec
+from ._rows import effect_fields, restrict_to_days
 
 __all__ = ["COPOLLUTANT_COLUMNS", "copollutant_table"]
 
@@ -38,19 +38,6 @@ COPOLLUTANT_COLUMNS = (
 
 #: Reason recorded for days left out only to put every model on the same days.
 NOT_COMMON = "not usable by every model of the co-pollutant table"
-
-
-def _on_days(design: Design, keep: np.ndarray) -> Design:
-    """The design restricted to the calendar days ``keep`` (a subset of ``design.used``)."""
-    inside = keep[design.used]
-    newly = design.used & ~keep
-    extra = pd.DataFrame({"date": design.calendar[newly], "reason": NOT_COMMON})
-    dropped = pd.concat([design.dropped, extra], ignore_index=True).sort_values("date", kind="stable")
-    return dataclasses.replace(
-        design, matrix=design.matrix[inside], response=design.response[inside],
-        offset=None if design.offset is None else design.offset[inside], used=keep,
-        dropped=dropped.reset_index(drop=True),
-    )  # fmt: skip
 
 
 def _checked_names(copollutants: Any, exposure: str) -> tuple[str, ...]:
@@ -83,7 +70,7 @@ def copollutant_fits(
         )
     results = []
     for spec, design in progress(list(zip(specs, designs, strict=True)), label="co-pollutants", enabled=show_progress):
-        results.append(fitted_result(_on_days(design, keep), spec)[0])
+        results.append(fitted_result(restrict_to_days(design, keep, NOT_COMMON), spec)[0])
     return results
 
 
@@ -140,12 +127,11 @@ def copollutant_table(
     fits = copollutant_fits(data, exposure, copollutants, show_progress, outcome=outcome, lag=lag, **options)
     rows = []
     for result in fits:
-        e = result.effect(per=per, level=level)
+        effect = effect_fields(result.effect(per=per, level=level))
         adjusted = result.spec.copollutants[0] if result.spec.copollutants else None
         r = result.copollutant_correlations[0] if adjusted else np.nan
         rows.append(
-            {"exposure": exposure, "adjusted_for": adjusted, "lag": result.spec.lag.label, "per": e.per,
-             "coef": e.coef, "se": e.se, "rr": e.rr, "rr_low": e.rr_low, "rr_high": e.rr_high,
-             "p_value": e.p_value, "correlation": r, "n_days": result.n_days}
+            {"exposure": exposure, "adjusted_for": adjusted, "lag": result.spec.lag.label, **effect,
+             "correlation": r, "n_days": result.n_days}
         )  # fmt: skip
     return pd.DataFrame(rows, columns=list(COPOLLUTANT_COLUMNS))

@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import SpecificationError
+from ._rows import pick
 from .compare import compare_results
 
 __all__ = ["DESIGN_COLUMNS", "TIME_SERIES_ONLY", "compare_designs"]
@@ -98,5 +99,5 @@ def compare_designs(
         for results in fits.values():
             record = results[i].to_dict(per=per, level=level)
             record.setdefault("n_strata", np.nan)
-            rows.append({c: record[c] for c in DESIGN_COLUMNS})
+            rows.append(pick(record, DESIGN_COLUMNS))
     return pd.DataFrame(rows, columns=list(DESIGN_COLUMNS))

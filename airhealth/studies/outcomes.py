@@ -16,6 +16,7 @@ from .._progress import progress
 from ..errors import SpecificationError
 from ..model.fitting import fit
 from ..model.result import FitResult
+from ._rows import EFFECT_FIELDS, effect_fields, pick
 
 __all__ = ["OUTCOME_COLUMNS", "fit_outcomes", "outcome_rows"]
 
@@ -43,13 +44,12 @@ def outcome_rows(result: FitResult, per: float = 10.0, level: float = 0.95) -> l
     common = {"outcome": result.spec.outcome, "exposure": result.spec.exposure, "lag": result.spec.lag.label}
     stats = {"n_days": result.n_days, "dispersion": result.dispersion}
     if not result.groups:
-        e = result.effect(per=per, level=level)
-        effect = {k: getattr(e, k) for k in ("per", "coef", "se", "rr", "rr_low", "rr_high", "p_value")}
+        effect = effect_fields(result.effect(per=per, level=level))
         return [{**common, **effect, **stats}]
     test = result.modification_test()
     rows = []
     for row in result.effects_by_group(per=per, level=level).to_dict(orient="records"):
-        effect = {k: row[k] for k in ("coef", "se", "rr", "rr_low", "rr_high", "p_value")}
+        effect = pick(row, EFFECT_FIELDS[1:])
         rows.append(
             {**common, "group": row["group"], "per": float(per), **effect, "n_days": row["n_days"],
              "dispersion": result.dispersion, "modification_p_value": test["p_value"]}

@@ -28,7 +28,7 @@
 #    other days its referents); the set is repeated y_i times (one set per event, the expanded rows).
 #    clogit(case ~ pm25 + temperature + strata(set)). The same data as a Poisson glm with factor(stratum)
 #    is fitted too; Armstrong, Gasparrini & Tobias (2014) show the two estimates are the same.
-# Numbers are written with 17 significant digits by a small JSON writer in base R (no extra packages).
+# Numbers are written with 17 significant digits by the small JSON writer of common.R (base R only).
 
 args <- commandArgs(trailingOnly = TRUE)
 if (length(args) != 2) stop("usage: Rscript case_crossover.R INPUT_CSV OUT_JSON")
@@ -36,20 +36,17 @@ suppressPackageStartupMessages({
   library(splines)
   library(survival)
 })
+here <- dirname(sub("^--file=", "", grep("^--file=", commandArgs(FALSE), value = TRUE)))
+source(file.path(here, "common.R"))  # read_daily, lags, strict, pearson_dispersion, json writer
 
-d0 <- read.csv(args[[1]], stringsAsFactors = FALSE, na.strings = "NA")
-d0$date <- as.Date(d0$date)
+d0 <- read_daily(args[[1]])
 n <- nrow(d0)
-stopifnot(all(diff(d0$date) == 1))
 stratum <- paste(format(d0$date, "%Y"), format(d0$date, "%m"), format(d0$date, "%u"), sep = "-")
 
-lag_k <- function(x, k) if (k == 0) x else c(rep(NA_real_, k), head(x, length(x) - k))
-lag_cols <- function(x, lags) sapply(lags, function(k) lag_k(x, k))
 tb <- unclass(ns(d0$temperature, df = 6))[, 1:6]
 tlb <- unclass(ns(rowMeans(lag_cols(d0$temperature, 1:3)), df = 6))[, 1:6]
 colnames(tb) <- sprintf("t%d", 1:6)
 colnames(tlb) <- sprintf("tl%d", 1:6)
-strict <- glm.control(epsilon = 1e-12, maxit = 100)
 
 # rows with every column present, then strata with events on at least two usable days
 informative_rows <- function(y, X, s) {
@@ -75,8 +72,8 @@ fit_cc <- function(name, X, family) {
   V <- vcov(fit)[xnames, xnames, drop = FALSE]
   X_all <- model.matrix(fit)
   mu <- fitted(fit)
-  phi <- if (family == "quasipoisson") sum((fit$y - mu)^2 / mu) / df.residual(fit) else 1
-  V_final <- (solve(crossprod(X_all * sqrt(mu))) * phi)[xnames, xnames, drop = FALSE]
+  phi <- if (family == "quasipoisson") pearson_dispersion(fit) else 1
+  V_final <- cov_at_fitted(X_all, mu, phi)[xnames, xnames, drop = FALSE]
   w <- rep(1, length(xnames))
   list(
     name = name, family = family, n_params = length(xnames),
@@ -141,28 +138,6 @@ clogit_doc <- list(
   loglik = as.numeric(cl$loglik[2])
 )
 
-# ------------------------------------------------------------------------------------------ JSON out
-json <- function(v) {
-  if (is.null(v)) return("null")
-  if (is.list(v)) {
-    if (!is.null(names(v))) {
-      keep <- names(v)[!vapply(v, is.null, TRUE)]
-      items <- vapply(keep, function(k) paste0('"', k, '": ', json(v[[k]])), "")
-      return(paste0("{", paste(items, collapse = ", "), "}"))
-    }
-    return(paste0("[", paste(vapply(v, json, ""), collapse = ", "), "]"))
-  }
-  scalar <- function(z) {
-    if (is.na(z)) return("null")
-    if (is.logical(z)) return(if (z) "true" else "false")
-    if (is.character(z)) return(paste0('"', gsub('"', '\\\\"', z), '"'))
-    sprintf("%.17g", z)
-  }
-  parts <- vapply(as.list(v), scalar, "")
-  if (length(v) == 1 && is.null(attr(v, "array"))) return(parts)
-  paste0("[", paste(parts, collapse = ", "), "]")
-}
-as_array <- function(v) structure(v, array = TRUE)
 for (i in seq_along(fits)) {
   for (key in c("lag_coef", "lag_se", "lag_se_final_mu")) fits[[i]][[key]] <- as_array(fits[[i]][[key]])
 }
@@ -179,4 +154,4 @@ doc <- list(
   fits = fits,
   clogit = clogit_doc
 )
-writeLines(json(doc), args[[2]])
+write_json(doc, args[[2]], drop_null = TRUE)

@@ -20,32 +20,18 @@
 #    exposure coefficients; the cumulative effect of a level is the sum of its lag coefficients, with SE
 #    sqrt(1' V 1); the Wald statistic of equal cumulative effects is (D b)' (D V_b D')^-1 (D b) with
 #    D = [-1 1 0; -1 0 1] (levels - 1 rows), referred to chi-square on levels - 1 df.
-# Numbers are written with 17 significant digits by a small JSON writer in base R.
+# Numbers are written with 17 significant digits by the small JSON writer of common.R (base R only).
 
 args <- commandArgs(trailingOnly = TRUE)
 if (length(args) != 2) stop("usage: Rscript copollutant_modifier.R DATA_DIR OUT_JSON")
 data_dir <- args[[1]]
 out_path <- args[[2]]
 suppressPackageStartupMessages(library(splines))
+here <- dirname(sub("^--file=", "", grep("^--file=", commandArgs(FALSE), value = TRUE)))
+source(file.path(here, "common.R"))  # read_daily, lags, strict, pearson_dispersion, json writer
 
-read_table <- function(file) {
-  d <- read.csv(file.path(data_dir, file), stringsAsFactors = FALSE)
-  d$date <- as.Date(d$date)
-  d
-}
-counts <- read_table("norhaven_counts.csv")
-pollution <- read_table("norhaven_pollution.csv")
-weather <- read_table("norhaven_weather.csv")
-first_day <- min(counts$date, pollution$date, weather$date)
-last_day <- max(counts$date, pollution$date, weather$date)
-calendar <- data.frame(date = seq(first_day, last_day, by = "day"))
-for (tab in list(counts, pollution, weather)) {
-  rows <- match(calendar$date, tab$date)
-  for (col in setdiff(names(tab), "date")) calendar[[col]] <- tab[[col]][rows]
-}
+calendar <- read_sample_calendar(data_dir)
 n <- nrow(calendar)
-lag_k <- function(x, k) if (k == 0) x else c(rep(NA_real_, k), head(x, length(x) - k))
-lag_mean <- function(x, a, b) rowMeans(sapply(a:b, function(k) lag_k(x, k)))  # NA if any day is NA
 
 month <- as.integer(format(calendar$date, "%m"))
 year <- as.integer(format(calendar$date, "%Y"))
@@ -55,11 +41,9 @@ calendar$period <- ifelse(year < 2015, "a_2010_2014", ifelse(year < 2020, "b_201
 # lag = c(a, b, dl): dl FALSE = the mean of lags a..b (one column), TRUE = one column per lag a..b
 lag_columns <- function(x, lag, prefix) {
   if (!lag$dl) return(setNames(data.frame(lag_mean(x, lag$a, lag$b)), prefix))
-  out <- data.frame(sapply(lag$a:lag$b, function(k) lag_k(x, k)))
+  out <- data.frame(lag_cols(x, lag$a:lag$b))
   setNames(out, paste0(prefix, lag$a:lag$b))
 }
-
-strict <- glm.control(epsilon = 1e-12, maxit = 100)
 
 run <- function(name, lag, copollutant = NULL, modifier = NULL, outcome = "deaths_all", exposure = "pm25") {
   d <- data.frame(y = calendar[[outcome]])
@@ -130,25 +114,6 @@ fits <- list(
   run("season_resp_lag01", lag01, modifier = "season", outcome = "admissions_respiratory")
 )
 
-json <- function(v) {
-  if (is.null(v)) return("null")
-  if (is.list(v)) {
-    if (!is.null(names(v))) {
-      items <- vapply(names(v), function(k) paste0('"', k, '": ', json(v[[k]])), "")
-      return(paste0("{", paste(items, collapse = ", "), "}"))
-    }
-    return(paste0("[", paste(vapply(v, json, ""), collapse = ", "), "]"))
-  }
-  scalar <- function(z) {
-    if (is.na(z)) return("null")
-    if (is.logical(z)) return(if (z) "true" else "false")
-    if (is.character(z)) return(paste0('"', gsub('"', '\\\\"', z), '"'))
-    sprintf("%.17g", z)
-  }
-  parts <- vapply(as.list(v), scalar, "")
-  if (length(v) == 1 && is.null(attr(v, "array"))) return(parts)
-  paste0("[", paste(parts, collapse = ", "), "]")
-}
 for (i in seq_along(fits)) if (!is.null(fits[[i]]$levels)) fits[[i]]$levels <- structure(fits[[i]]$levels, array = TRUE)
 doc <- list(
   source = "base R glm (R Core Team, R: A Language and Environment for Statistical Computing), splines::ns",
@@ -158,4 +123,4 @@ doc <- list(
   glm_epsilon = 1e-12,
   fits = fits
 )
-writeLines(json(doc), out_path)
+write_json(doc, out_path)

@@ -24,18 +24,19 @@ args <- commandArgs(trailingOnly = TRUE)
 if (length(args) != 2) stop("usage: Rscript diagnostics_reference.R INPUT_CSV OUT_JSON")
 suppressPackageStartupMessages(library(splines))
 suppressPackageStartupMessages(library(sandwich))
+here <- dirname(sub("^--file=", "", grep("^--file=", commandArgs(FALSE), value = TRUE)))
+source(file.path(here, "common.R"))  # read_daily, lags, strict, pearson_dispersion, json writer
 
-d <- read.csv(args[[1]], stringsAsFactors = FALSE)
-d$date <- as.Date(d$date)
+d <- read_daily(args[[1]])
 n <- nrow(d)
-lag_k <- function(x, k) c(rep(NA_real_, k), head(x, length(x) - k))
+# the mean written out, as when the frozen JSON was made (lag_mean's rowMeans rounds differently, ~1e-16)
 d$temp_mean_lag1_3 <- (lag_k(d$temperature, 1) + lag_k(d$temperature, 2) + lag_k(d$temperature, 3)) / 3
 d$time <- seq_len(n)
 d$dow <- format(d$date, "%u")
 time_df <- as.integer(round(7 * n / 365.25))
 f <- as.formula(sprintf(
   "deaths_all ~ pm25 + ns(time, df = %d) + ns(temperature, 6) + ns(temp_mean_lag1_3, 6) + factor(dow)", time_df))
-fit <- glm(f, family = quasipoisson(), data = d, control = glm.control(epsilon = 1e-12, maxit = 100))
+fit <- glm(f, family = quasipoisson(), data = d, control = strict)
 used <- d$date[as.integer(names(fitted(fit)))]
 
 dev_res <- residuals(fit, type = "deviance")
@@ -46,25 +47,6 @@ for (lag in c(0, 5, 7, 20)) {
 }
 nw[[length(nw) + 1]] <- list(lag = 7, adjust = TRUE, se = unname(hac(7, TRUE)))
 
-json <- function(v) {
-  if (is.null(v)) return("null")
-  if (is.list(v)) {
-    if (!is.null(names(v))) {
-      items <- vapply(names(v), function(k) paste0('"', k, '": ', json(v[[k]])), "")
-      return(paste0("{", paste(items, collapse = ", "), "}"))
-    }
-    return(paste0("[", paste(vapply(v, json, ""), collapse = ", "), "]"))
-  }
-  scalar <- function(z) {
-    if (is.na(z)) return("null")
-    if (is.logical(z)) return(if (z) "true" else "false")
-    if (is.character(z)) return(paste0('"', z, '"'))
-    sprintf("%.17g", z)
-  }
-  parts <- vapply(as.list(v), scalar, "")
-  if (length(v) == 1 && is.null(attr(v, "array"))) return(parts)
-  paste0("[", paste(parts, collapse = ", "), "]")
-}
 arr <- function(v) structure(unname(as.numeric(v)), array = TRUE)
 doc <- list(
   source = "base R glm, residuals.glm, hatvalues, cooks.distance, acf, pacf; splines::ns; sandwich::NeweyWest",
@@ -87,4 +69,4 @@ doc <- list(
   exposure_index = which(names(coef(fit)) == "pm25"),
   newey_west = nw
 )
-writeLines(json(doc), args[[2]])
+write_json(doc, args[[2]])

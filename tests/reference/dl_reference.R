@@ -25,19 +25,16 @@
 #    For each: per-lag coefficients C theta with SEs sqrt(diag(C V C')), and the cumulative effect
 #    1' C theta with SE sqrt(1' C V C' 1), V = vcov(fit) (summary.glm's dispersion) and also V recomputed
 #    at the final fitted means.
-# Numbers are written with 17 significant digits by a small JSON writer in base R (no extra packages).
+# Numbers are written with 17 significant digits by the small JSON writer of common.R (base R only).
 
 args <- commandArgs(trailingOnly = TRUE)
 if (length(args) != 2) stop("usage: Rscript dl_reference.R INPUT_CSV OUT_JSON")
 suppressPackageStartupMessages(library(splines))
+here <- dirname(sub("^--file=", "", grep("^--file=", commandArgs(FALSE), value = TRUE)))
+source(file.path(here, "common.R"))  # read_daily, lags, strict, pearson_dispersion, json writer
 
-d0 <- read.csv(args[[1]], stringsAsFactors = FALSE, na.strings = "NA")
-d0$date <- as.Date(d0$date)
+d0 <- read_daily(args[[1]])
 n <- nrow(d0)
-stopifnot(all(diff(d0$date) == 1))
-
-lag_k <- function(x, k) if (k == 0) x else c(rep(NA_real_, k), head(x, length(x) - k))
-lag_cols <- function(x, lags) sapply(lags, function(k) lag_k(x, k))  # n x length(lags)
 
 base <- data.frame(y = d0$deaths_all)
 base$time <- seq_len(n)
@@ -47,7 +44,6 @@ base$dow <- format(d0$date, "%u")
 time_df <- as.integer(round(7 * n / 365.25))
 confounders <- sprintf("ns(time, df = %d) + ns(temperature, 6) + ns(temp_mean_lag1_3, 6) + factor(dow)",
                        time_df)
-strict <- glm.control(epsilon = 1e-12, maxit = 100)
 
 spline_knots <- function(first, last, df, log_scale) {
   p <- seq_len(df - 2) / (df - 1)
@@ -82,10 +78,8 @@ fit_lag <- function(b) {
   V <- vcov(fit)[xnames, xnames, drop = FALSE]
   theta <- coef(fit)[xnames]
   # covariance at the final fitted means (summary.glm uses the weights from the start of the last step)
-  X <- model.matrix(fit)
-  mu <- fitted(fit)
-  phi <- sum((fit$y - mu)^2 / mu) / df.residual(fit)
-  V_final <- (solve(crossprod(X * sqrt(mu))) * phi)[xnames, xnames, drop = FALSE]
+  phi <- pearson_dispersion(fit)
+  V_final <- cov_at_fitted(model.matrix(fit), fitted(fit), phi)[xnames, xnames, drop = FALSE]
   w <- colSums(C)
   list(
     name = b$name, lags = b$lags, n_params = k,
@@ -105,28 +99,6 @@ fit_lag <- function(b) {
 }
 fits <- lapply(lag_bases, fit_lag)
 
-# ------------------------------------------------------------------------------------------ JSON out
-json <- function(v) {
-  if (is.null(v)) return("null")
-  if (is.list(v)) {
-    if (!is.null(names(v))) {
-      keep <- names(v)[!vapply(v, is.null, TRUE)]
-      items <- vapply(keep, function(k) paste0('"', k, '": ', json(v[[k]])), "")
-      return(paste0("{", paste(items, collapse = ", "), "}"))
-    }
-    return(paste0("[", paste(vapply(v, json, ""), collapse = ", "), "]"))
-  }
-  scalar <- function(z) {
-    if (is.na(z)) return("null")
-    if (is.logical(z)) return(if (z) "true" else "false")
-    if (is.character(z)) return(paste0('"', gsub('"', '\\\\"', z), '"'))
-    sprintf("%.17g", z)
-  }
-  parts <- vapply(as.list(v), scalar, "")
-  if (length(v) == 1 && is.null(attr(v, "array"))) return(parts)
-  paste0("[", paste(parts, collapse = ", "), "]")
-}
-as_array <- function(v) structure(v, array = TRUE)
 for (i in seq_along(fits)) {
   for (key in c("lags", "knots", "theta", "lag_coef", "lag_se", "lag_se_final_mu")) {
     if (!is.null(fits[[i]][[key]])) fits[[i]][[key]] <- as_array(fits[[i]][[key]])
@@ -142,4 +114,4 @@ doc <- list(
   glm_epsilon = 1e-12,
   fits = fits
 )
-writeLines(json(doc), args[[2]])
+write_json(doc, args[[2]], drop_null = TRUE)

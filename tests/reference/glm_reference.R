@@ -20,35 +20,20 @@
 #    drops incomplete rows -- the behaviour airhealth reproduces.
 # 4. Evaluates splines::ns bases for a few fixed x vectors (with and without intercept, given knots, and
 #    predict() beyond the boundary knots).
-# Numbers are written with 17 significant digits by a small JSON writer in base R (no extra packages).
+# Numbers are written with 17 significant digits by the small JSON writer of common.R (base R only).
 
 args <- commandArgs(trailingOnly = TRUE)
 if (length(args) != 2) stop("usage: Rscript glm_reference.R DATA_DIR OUT_JSON")
 data_dir <- args[[1]]
 out_path <- args[[2]]
 suppressPackageStartupMessages(library(splines))
+here <- dirname(sub("^--file=", "", grep("^--file=", commandArgs(FALSE), value = TRUE)))
+source(file.path(here, "common.R"))  # read_daily, lags, strict, pearson_dispersion, json writer
 has_mass <- suppressPackageStartupMessages(requireNamespace("MASS", quietly = TRUE))
 
 # ---------------------------------------------------------------------------------------------- data
-read_table <- function(file) {
-  d <- read.csv(file.path(data_dir, file), stringsAsFactors = FALSE)
-  d$date <- as.Date(d$date)
-  d
-}
-counts <- read_table("norhaven_counts.csv")
-pollution <- read_table("norhaven_pollution.csv")
-weather <- read_table("norhaven_weather.csv")
-first_day <- min(counts$date, pollution$date, weather$date)
-last_day <- max(counts$date, pollution$date, weather$date)
-calendar <- data.frame(date = seq(first_day, last_day, by = "day"))
-for (tab in list(counts, pollution, weather)) {
-  rows <- match(calendar$date, tab$date)
-  for (col in setdiff(names(tab), "date")) calendar[[col]] <- tab[[col]][rows]
-}
+calendar <- read_sample_calendar(data_dir)
 n <- nrow(calendar)
-
-lag_k <- function(x, k) if (k == 0) x else c(rep(NA_real_, k), head(x, length(x) - k))
-lag_mean <- function(x, a, b) rowMeans(sapply(a:b, function(k) lag_k(x, k)))  # NA if any day is NA
 
 # ------------------------------------------------------------------------------------------ variants
 variant <- function(name, outcome = "deaths_all", exposure = "pm25", lag = c(0, 1), temperature = TRUE,
@@ -100,9 +85,8 @@ model_formula <- function(v) {
   as.formula(paste("y ~", paste(rhs, collapse = " + ")))
 }
 
-# Strict convergence (epsilon 1e-12 instead of the default 1e-8), so the reference is the exact optimum
-# to far more digits than the 1e-6 relative tolerance of the tests.
-strict <- glm.control(epsilon = 1e-12, maxit = 100)
+# Strict convergence (`strict` of common.R: epsilon 1e-12 instead of the default 1e-8), so the reference
+# is the exact optimum to far more digits than the 1e-6 relative tolerance of the tests.
 
 fit_variant <- function(v) {
   d <- model_data(v)
@@ -197,27 +181,6 @@ bases <- list(
 )
 
 # ------------------------------------------------------------------------------------------ JSON out
-json <- function(v) {
-  if (is.null(v)) return("null")
-  if (is.list(v)) {
-    if (!is.null(names(v))) {
-      items <- vapply(names(v), function(k) paste0('"', k, '": ', json(v[[k]])), "")
-      return(paste0("{", paste(items, collapse = ", "), "}"))
-    }
-    return(paste0("[", paste(vapply(v, json, ""), collapse = ", "), "]"))
-  }
-  if (is.matrix(v)) return(json(lapply(seq_len(nrow(v)), function(i) as_array(as.numeric(v[i, ])))))
-  scalar <- function(z) {
-    if (is.na(z)) return("null")
-    if (is.logical(z)) return(if (z) "true" else "false")
-    if (is.character(z)) return(paste0('"', gsub('"', '\\\\"', z), '"'))
-    sprintf("%.17g", z)
-  }
-  parts <- vapply(as.list(v), scalar, "")
-  if (length(v) == 1 && is.null(attr(v, "array"))) return(parts)
-  paste0("[", paste(parts, collapse = ", "), "]")
-}
-as_array <- function(v) structure(v, array = TRUE)  # keep length-1 vectors as arrays
 for (i in seq_along(bases)) {
   for (k in c("x", "newx", "interior_knots", "boundary_knots")) {
     if (!is.null(bases[[i]][[k]])) bases[[i]][[k]] <- as_array(bases[[i]][[k]])
@@ -233,4 +196,4 @@ doc <- list(
   fits = fits,
   ns_bases = bases
 )
-writeLines(json(doc), out_path)
+write_json(doc, out_path)

@@ -30,14 +30,11 @@
 args <- commandArgs(trailingOnly = TRUE)
 if (length(args) != 2) stop("usage: Rscript long_gap_reference.R INPUT_CSV OUT_JSON")
 suppressPackageStartupMessages(library(splines))
+here <- dirname(sub("^--file=", "", grep("^--file=", commandArgs(FALSE), value = TRUE)))
+source(file.path(here, "common.R"))  # read_daily, lags, strict, pearson_dispersion, json writer
 
-d0 <- read.csv(args[[1]], stringsAsFactors = FALSE, na.strings = "NA")
-d0$date <- as.Date(d0$date)
+d0 <- read_daily(args[[1]])
 n <- nrow(d0)
-stopifnot(all(diff(d0$date) == 1))
-
-lag_k <- function(x, k) if (k == 0) x else c(rep(NA_real_, k), head(x, length(x) - k))
-lag_mean <- function(x, a, b) rowMeans(sapply(a:b, function(k) lag_k(x, k)))  # NA if any day is NA
 
 time_df <- as.integer(round(7 * n / 365.25))
 f <- as.formula(sprintf(
@@ -55,7 +52,7 @@ fit_variant <- function(v) {
                   dow = format(d0$date, "%u"))
   fam <- if (v$family == "poisson") poisson() else quasipoisson()
   default_fit <- glm(f, family = fam, data = d)
-  fit <- glm(f, family = fam, data = d, control = glm.control(epsilon = 1e-12, maxit = 100))
+  fit <- glm(f, family = fam, data = d, control = strict)
   aliased <- names(coef(default_fit))[is.na(coef(default_fit))]
   stopifnot(identical(aliased, names(coef(fit))[is.na(coef(fit))]))
   s <- summary(fit)
@@ -63,8 +60,8 @@ fit_variant <- function(v) {
   mu <- fitted(fit)
   X <- model.matrix(fit)[, !is.na(coef(fit))]
   p <- ncol(X)
-  phi_final <- if (v$family == "quasipoisson") sum((y - mu)^2 / mu) / df.residual(fit) else 1
-  cov_final <- solve(crossprod(X * sqrt(mu))) * phi_final
+  phi_final <- if (v$family == "quasipoisson") pearson_dispersion(fit) else 1
+  cov_final <- cov_at_fitted(X, mu, phi_final)
   loglik <- sum(dpois(y, mu, log = TRUE))
   list(
     name = v$name, lag = if (v$lag[1] == v$lag[2]) sprintf("%d", v$lag[1]) else sprintf("%d-%d", v$lag[1], v$lag[2]),
@@ -80,25 +77,6 @@ fit_variant <- function(v) {
 }
 fits <- lapply(variants, fit_variant)
 
-json <- function(v) {
-  if (is.null(v)) return("null")
-  if (is.list(v)) {
-    if (!is.null(names(v))) {
-      items <- vapply(names(v), function(k) paste0('"', k, '": ', json(v[[k]])), "")
-      return(paste0("{", paste(items, collapse = ", "), "}"))
-    }
-    return(paste0("[", paste(vapply(v, json, ""), collapse = ", "), "]"))
-  }
-  scalar <- function(z) {
-    if (is.na(z)) return("null")
-    if (is.logical(z)) return(if (z) "true" else "false")
-    if (is.character(z)) return(paste0('"', gsub('"', '\\\\"', z), '"'))
-    sprintf("%.17g", z)
-  }
-  parts <- vapply(as.list(v), scalar, "")
-  if (length(v) == 1 && is.null(attr(v, "array"))) return(parts)
-  paste0("[", paste(parts, collapse = ", "), "]")
-}
 doc <- list(
   source = "base R glm / glm.fit (R Core Team, R: A Language and Environment for Statistical Computing), splines::ns",
   r_version = R.version.string,
@@ -107,4 +85,4 @@ doc <- list(
   n_calendar_days = n, time_df = time_df, gap = structure(c("2014-01-01", "2014-12-31"), array = TRUE),
   glm_epsilon = 1e-12, fits = fits
 )
-writeLines(json(doc), args[[2]])
+write_json(doc, args[[2]])

@@ -11,12 +11,11 @@ written as ``NA`` so that R reads them as missing. Numbers are written with 17 s
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 
 import pandas as pd
+from r_input import main, write_r_csv
 
-from airhealth._io import write_text
 from airhealth.sample import load_sample
 
 COLUMNS = ("date", "deaths_all", "admissions_respiratory", "pm25", "temperature")
@@ -31,13 +30,8 @@ def input_table() -> pd.DataFrame:
 
 def write_input(path: str | Path) -> Path:
     """Write the R input CSV to ``path`` and return it."""
-    data = input_table()
-    data["date"] = data["date"].dt.strftime("%Y-%m-%d")
-    write_text(path, data.to_csv(index=False, na_rep="NA", float_format="%.17g"))
-    return Path(path)
+    return write_r_csv(input_table(), path)
 
 
 if __name__ == "__main__":
-    if len(sys.argv) != 2:
-        raise SystemExit("usage: python tests/reference/make_case_crossover_input.py OUT_CSV")
-    print(write_input(sys.argv[1]))
+    main(write_input, "make_case_crossover_input.py")

@@ -13,14 +13,10 @@ Columns ``date``, ``deaths_all``, ``pm25``, ``temperature``; numbers with 17 sig
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 
 import pandas as pd
-
-from airhealth._io import write_text
-from airhealth.prep.align import align_daily
-from airhealth.simulate import simulate_city
+from r_input import main, simulated_daily, write_r_csv
 
 SEED = 20261209
 PERIOD = ("2015-01-01", "2017-12-31")
@@ -29,20 +25,13 @@ COLUMNS = ("date", "deaths_all", "pm25", "temperature")
 
 def complete_city() -> pd.DataFrame:
     """The daily table of :data:`PERIOD`, every value present."""
-    tables = simulate_city(seed=SEED, start=PERIOD[0], end=PERIOD[1], missing_fraction=0.0, outage_days=0)
-    data = align_daily(tables["counts"], tables["pollution"], tables["weather"])[list(COLUMNS)]
-    return data.reset_index(drop=True)
+    return simulated_daily(SEED, PERIOD, COLUMNS, missing_fraction=0.0, outage_days=0)
 
 
 def write_input(path: str | Path) -> Path:
     """Write the R input CSV to ``path`` and return it."""
-    data = complete_city()
-    data["date"] = data["date"].dt.strftime("%Y-%m-%d")
-    write_text(path, data.to_csv(index=False, na_rep="NA", float_format="%.17g"))
-    return Path(path)
+    return write_r_csv(complete_city(), path)
 
 
 if __name__ == "__main__":
-    if len(sys.argv) != 2:
-        raise SystemExit("usage: python tests/reference/make_diagnostics_input.py OUT_CSV")
-    write_input(sys.argv[1])
+    main(write_input, "make_diagnostics_input.py")

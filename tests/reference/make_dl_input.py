@@ -11,10 +11,10 @@ Numbers are written with 17 significant digits (the sample holds values rounded 
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 
-from airhealth._io import write_text
+from r_input import main, write_r_csv
+
 from airhealth.sample import load_sample
 
 COLUMNS = ("date", "deaths_all", "pm25", "temperature")
@@ -22,13 +22,8 @@ COLUMNS = ("date", "deaths_all", "pm25", "temperature")
 
 def write_input(path: str | Path) -> Path:
     """Write the R input CSV to ``path`` and return it."""
-    data = load_sample()[list(COLUMNS)].copy()
-    data["date"] = data["date"].dt.strftime("%Y-%m-%d")
-    write_text(path, data.to_csv(index=False, na_rep="NA", float_format="%.17g"))
-    return Path(path)
+    return write_r_csv(load_sample()[list(COLUMNS)], path)
 
 
 if __name__ == "__main__":
-    if len(sys.argv) != 2:
-        raise SystemExit("usage: python tests/reference/make_dl_input.py OUT_CSV")
-    print(write_input(sys.argv[1]))
+    main(write_input, "make_dl_input.py")

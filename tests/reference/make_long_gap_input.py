@@ -13,15 +13,11 @@ reads them as missing, numbers with 17 significant digits.
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
-
-from airhealth._io import write_text
-from airhealth.prep.align import align_daily
-from airhealth.simulate import simulate_city
+from r_input import main, simulated_daily, write_r_csv
 
 SEED = 20261208
 PERIOD = ("2012-01-01", "2016-12-31")
@@ -31,21 +27,15 @@ COLUMNS = ("date", "deaths_all", "pm25", "temperature")
 
 def gapped_city() -> pd.DataFrame:
     """The daily table with the exposure missing throughout :data:`GAP`."""
-    tables = simulate_city(seed=SEED, start=PERIOD[0], end=PERIOD[1])
-    data = align_daily(tables["counts"], tables["pollution"], tables["weather"])[list(COLUMNS)]
+    data = simulated_daily(SEED, PERIOD, COLUMNS)
     data.loc[data["date"].between(*GAP), "pm25"] = np.nan
-    return data.reset_index(drop=True)
+    return data
 
 
 def write_input(path: str | Path) -> Path:
     """Write the R input CSV to ``path`` and return it."""
-    data = gapped_city()
-    data["date"] = data["date"].dt.strftime("%Y-%m-%d")
-    write_text(path, data.to_csv(index=False, na_rep="NA", float_format="%.17g"))
-    return Path(path)
+    return write_r_csv(gapped_city(), path)
 
 
 if __name__ == "__main__":
-    if len(sys.argv) != 2:
-        raise SystemExit("usage: python tests/reference/make_long_gap_input.py OUT_CSV")
-    print(write_input(sys.argv[1]))
+    main(write_input, "make_long_gap_input.py")

@@ -36,6 +36,8 @@ suppressPackageStartupMessages({
   library(metafor)
   library(MASS)
 })
+here <- dirname(sub("^--file=", "", grep("^--file=", commandArgs(FALSE), value = TRUE)))
+source(file.path(here, "common.R"))  # read_daily, lags, strict, pearson_dispersion, json writer
 tight <- list(threshold = 1e-12, maxiter = 10000, stepadj = 1)
 
 # ------------------------------------------------------------------------------------------ data sets
@@ -146,26 +148,6 @@ mv <- list(
 names(mv$berkey$covs) <- NULL
 
 # ------------------------------------------------------------------------------------------ JSON out
-json <- function(v) {
-  if (is.null(v)) return("null")
-  if (is.list(v)) {
-    if (!is.null(names(v))) {
-      keep <- names(v)[!vapply(v, is.null, TRUE)]
-      items <- vapply(keep, function(k) paste0('"', k, '": ', json(v[[k]])), "")
-      return(paste0("{", paste(items, collapse = ", "), "}"))
-    }
-    return(paste0("[", paste(vapply(v, json, ""), collapse = ", "), "]"))
-  }
-  scalar <- function(z) {
-    if (is.na(z)) return("null")
-    if (is.logical(z)) return(if (z) "true" else "false")
-    if (is.character(z)) return(paste0('"', gsub('"', '\\\\"', z), '"'))
-    sprintf("%.17g", z)
-  }
-  parts <- vapply(as.list(v), scalar, "")
-  if (length(v) == 1 && is.null(attr(v, "array"))) return(parts)
-  paste0("[", paste(parts, collapse = ", "), "]")
-}
 # Every data vector, coefficient vector, matrix row and moderator list is written as a JSON array, even of length 1.
 arrays <- function(x) {
   if (is.list(x)) {
@@ -192,4 +174,4 @@ doc <- list(
   univariate = unarray(arrays(uni)),
   multivariate = unarray(arrays(mv))
 )
-writeLines(json(doc), args[1])
+write_json(doc, args[1], drop_null = TRUE)
