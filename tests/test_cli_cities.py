@@ -11,6 +11,7 @@ import pandas as pd
 import pytest
 
 import airhealth
+from airhealth._io import EXACT_FLOATS
 from airhealth.cities.estimates_table import unflatten
 from airhealth.cities.simulate_cities import simulate_cities
 from airhealth.cli.main import main
@@ -44,7 +45,7 @@ def test_fit_cities_writes_the_python_estimates(scenario, folder, tmp_path, caps
     out = tmp_path / "estimates.csv"
     assert main(["fit-cities", str(folder), *MODEL, "--out", str(out), "--quiet", "--workers", "2"]) == 0
     assert "4 of 5 cities fitted" in capsys.readouterr().out
-    written = pd.read_csv(out, keep_default_na=False, na_values=[""], float_precision="round_trip")
+    written = pd.read_csv(out, keep_default_na=False, na_values=[""], **EXACT_FLOATS)
     with pytest.warns(airhealth.DataWarning):
         python = airhealth.fit_cities(scenario.frames, "serial", show_progress=False, outcome="deaths",
                                       exposure="pm25", temperature="temperature")  # fmt: skip
@@ -63,7 +64,7 @@ def test_a_distributed_lag_round_trips_through_the_csv_columns(scenario, tmp_pat
     assert main([*args, "--out", str(out), "--quiet"]) == 0
     meta = json.loads(out.with_suffix(".json").read_text())
     assert meta["lags"] == [0, 1, 2, 3] and np.array(meta["lag_basis"]).shape == (4, 3)
-    back = unflatten(pd.read_csv(out, keep_default_na=False, na_values=[""], float_precision="round_trip"))
+    back = unflatten(pd.read_csv(out, keep_default_na=False, na_values=[""], **EXACT_FLOATS))
     with pytest.warns(airhealth.DataWarning):
         python = airhealth.fit_cities(scenario.frames, "serial", show_progress=False, lag="dl0-3:poly2",
                                       outcome="deaths", exposure="pm25", temperature="temperature")  # fmt: skip
@@ -84,7 +85,7 @@ def test_pool_json_has_the_contract_keys_and_equals_python(folder, tmp_path, cap
     assert POOL_KEYS <= set(record)
     assert "left out of the pooling: Elsworth Vale" in captured.err  # the broken city, named
     with pytest.warns(airhealth.DataWarning):
-        python = airhealth.pool(pd.read_csv(out, float_precision="round_trip"), method="dl")
+        python = airhealth.pool(pd.read_csv(out, **EXACT_FLOATS), method="dl")
     assert record["k"] == python.k == 4
     for key in ("coef", "se", "tau2", "i2", "q", "q_p", "rr", "rr_low", "rr_high"):
         assert record[key] == pytest.approx(python.to_dict()[key], rel=1e-15), key  # same numbers, JSON repr

@@ -26,6 +26,7 @@ from typing import Any
 
 import pandas as pd
 
+from .._io import EXACT_FLOATS
 from ..errors import DataError, SpecificationError
 
 __all__ = ["CitySource", "CityTask", "CsvFile", "CsvFolder", "FrameSource", "ParquetRows", "city_tasks"]
@@ -70,9 +71,7 @@ class CsvFile(CitySource):
 
     def load(self, columns: Sequence[str]) -> pd.DataFrame:
         try:
-            return pd.read_csv(
-                self.path, sep=self.sep, decimal=self.decimal, encoding=self.encoding, float_precision="round_trip"
-            )
+            return pd.read_csv(self.path, sep=self.sep, decimal=self.decimal, encoding=self.encoding, **EXACT_FLOATS)
         except pd.errors.EmptyDataError:
             raise DataError(f"the file {self.path.name} is empty; give a header row and one row per day.") from None
         except (UnicodeDecodeError, pd.errors.ParserError) as exc:

@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from .._io import EXACT_FLOATS
 from ..errors import DataError
 
 __all__ = ["STDIN", "check_numeric_columns", "read_table"]
@@ -166,7 +167,7 @@ def read_table(
             decimal=decimal,
             na_values=na_values,
             encoding=encoding,
-            float_precision="round_trip",  # numbers exactly as written (older pandas parsers lose the last digit)
+            **EXACT_FLOATS,
         )
     except UnicodeDecodeError as exc:
         raise _encoding_error(path, raw, encoding) from exc
