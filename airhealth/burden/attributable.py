@@ -127,7 +127,7 @@ def _rows_of(
     return frame_rows(dates, x, y, basis, x0, side, perspective)
 
 
-def _fit_counterfactual(result: FitResult, given: Any) -> Counterfactual:
+def _fit_counterfactual(result: FitResult, given: Any, pollutant: str | None) -> Counterfactual:
     if isinstance(given, str) and given.strip().lower() == MINIMUM_RISK:
         if getattr(result.spec.lag, "is_nonlinear", False) is False:
             raise SpecificationError(
@@ -138,7 +138,7 @@ def _fit_counterfactual(result: FitResult, given: Any) -> Counterfactual:
         return Counterfactual(
             lowest.exposure, result.spec.unit, "minimum-risk exposure", "lowest point of the fitted curve", lowest.note
         )
-    return resolve_counterfactual(given, result.spec.unit)
+    return resolve_counterfactual(given, result.spec.unit, exposure=result.spec.exposure, pollutant=pollutant)
 
 
 def _rows_from_fit(result: FitResult, x0: float, side: Side) -> DailyExcess:
@@ -162,6 +162,7 @@ def burden(
     draws: int = DEFAULT_DRAWS,
     seed: int = DEFAULT_SEED,
     level: float = 0.95,
+    pollutant: str | None = None,
 ) -> BurdenResult:
     """Deaths or admissions attributable to exposure beyond a counterfactual, from a fitted model.
 
@@ -189,6 +190,10 @@ def burden(
         Monte Carlo draws (at least 100) and the seed of the generator; the defaults make results reproducible.
     level : float
         Level of the intervals.
+    pollutant : str, optional
+        The exposure's pollutant (``"pm2.5"``, ``"pm10"``, ``"no2"``, ``"o3"``, ``"so2"``, ``"co"``), checked
+        against a preset's; by default read from the exposure column's name, and a preset is refused when it
+        cannot be told from it.
 
     Returns
     -------
@@ -206,7 +211,7 @@ def burden(
         raise SpecificationError(f"burden needs a FitResult from airhealth.fit, got {type(result).__name__}.")
     draws, seed = _checked_options(side, perspective, draws, seed, level)
     term = find_lag_term(result)
-    counter = _fit_counterfactual(result, counterfactual)
+    counter = _fit_counterfactual(result, counterfactual, pollutant)
     spec, notes = result.spec, []
     simple = term.basis.response.is_linear and not term.basis.is_distributed and perspective == "backward"
     if data is None:
@@ -269,12 +274,14 @@ def burden_from_estimate(
     draws: int = DEFAULT_DRAWS,
     seed: int = DEFAULT_SEED,
     level: float = 0.95,
+    pollutant: str | None = None,
     **read_options: Any,
 ) -> BurdenResult:
     """The burden of a given (e.g. published) log relative risk per unit, ``coef`` with ``se``, on ``data``.
 
     ``coef`` is per unit of ``exposure`` on the lag day or averaged over the moving-average window ``lag``;
-    ``unit`` is the exposure's unit (checked against a preset's). ``read_options`` are the
+    ``unit`` is the exposure's unit (checked against a preset's) and ``pollutant`` its pollutant (as
+    :func:`burden`). ``read_options`` are the
     :class:`~airhealth.model.spec.ModelSpec` reading options ``na_values`` and ``date_format``. Other
     parameters as :func:`burden`.
     """
@@ -285,7 +292,7 @@ def burden_from_estimate(
     if unknown:
         raise SpecificationError(f"unknown option {unknown[0]!r}; the reading options are na_values and date_format.")
     spec = ModelSpec(outcome, exposure, basis.lag, date=date, temperature=None, unit=unit, **read_options)
-    counter = resolve_counterfactual(counterfactual, spec.unit)
+    counter = resolve_counterfactual(counterfactual, spec.unit, exposure=exposure, pollutant=pollutant)
     part = _rows_of(_burden_frame(data, spec), spec, basis, counter.value, side, "backward")
     return _compute(
         [(exposure, part)], theta, cov, counter, draws=draws, seed=seed, level=level, notes=[], outcome=outcome,
@@ -337,6 +344,7 @@ def burden_pooled(
     draws: int = DEFAULT_DRAWS,
     seed: int = DEFAULT_SEED,
     level: float = 0.95,
+    pollutant: str | None = None,
 ) -> BurdenResult:
     """A pooled estimate applied to each city's data.
 
@@ -351,7 +359,7 @@ def burden_pooled(
     draws, seed = _checked_options(side, perspective, draws, seed, level)
     basis, theta, cov, source = _pooled_coefficients(pooled, lag)
     spec = ModelSpec(outcome, exposure, basis.lag, date=date, temperature=None, unit=unit)
-    counter = resolve_counterfactual(counterfactual, spec.unit)
+    counter = resolve_counterfactual(counterfactual, spec.unit, exposure=exposure, pollutant=pollutant)
     parts = []
     for name, data in cities.items():
         parts.append((str(name), _rows_of(_burden_frame(data, spec), spec, basis, counter.value, side, perspective)))
