@@ -223,7 +223,7 @@ def _row(spec: ModelSpec, fit: ExposureFit, design: Design, per: float, level: f
         "unit": spec.unit, "coef": e.coef, "se": e.se, "rr": e.rr, "rr_low": e.rr_low, "rr_high": e.rr_high,
         "percent_change": e.percent_change, "p_value": e.p_value, "dispersion": float(fit.dispersion),
         "n_params": int(fit.n_params), "loglik": float(fit.loglik), "qaic": float(fit.qaic),
-        "n_days": int(design.used.sum()), "interval": spec.interval,
+        "n_days": int(design.used.sum()), "interval": spec.interval_used,
     }  # fmt: skip
 
 
