@@ -41,6 +41,7 @@ Jackson D, Riley R, White IR (2011). Multivariate meta-analysis: potential and p
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any, Literal
 
 import numpy as np
@@ -61,7 +62,9 @@ GRADIENT_TOLERANCE = 1e-6
 NULL_EIGENVALUE = 1e-6
 
 
-def pool_multivariate(coefs: Any, covs: Any, method: MultivariateMethod = "reml") -> MultivariatePooled:
+def pool_multivariate(
+    coefs: Any, covs: Any, method: MultivariateMethod = "reml", cities: Sequence[Any] | None = None
+) -> MultivariatePooled:
     """Pool vectors of city coefficients with their within-city covariances (multivariate random effects).
 
     Parameters
@@ -72,6 +75,9 @@ def pool_multivariate(coefs: Any, covs: Any, method: MultivariateMethod = "reml"
         Within-city covariances of the vectors, in the same city order.
     method : {"reml", "mm"}
         Restricted maximum likelihood, or the method of moments of Jackson, White & Riley (2013).
+    cities : sequence of str, optional
+        The cities' names, in the order of ``coefs`` (default: a DataFrame's index labels, else ``city 0``,
+        ``city 1``, ...); results and error messages name the cities by them.
 
     Returns
     -------
@@ -87,7 +93,7 @@ def pool_multivariate(coefs: Any, covs: Any, method: MultivariateMethod = "reml"
     array([0.15, 0.25])
     """
     check_choice("method", method, MultivariateMethod)
-    y, labels, names = check_vectors(coefs)
+    y, labels, names = check_vectors(coefs, cities)
     k, p = y.shape
     S = check_covariances(covs, k, p, labels)
     scale = np.sqrt(np.mean(np.diagonal(S, axis1=1, axis2=2), axis=0))
