@@ -32,6 +32,7 @@ from ..errors import DataWarning, SpecificationError
 from ..model.bases.exposure_lag import ExposureLagBasis, LinearResponse
 from ..model.design import model_frame
 from ..model.effects import normal_quantile
+from ..model.group_effects import require_one_effect
 from ..model.lag_predictions import find_lag_term, minimum_risk_exposure
 from ..model.result import FitResult
 from ..model.spec import ModelSpec
@@ -209,6 +210,7 @@ def burden(
     """
     if not isinstance(result, FitResult):
         raise SpecificationError(f"burden needs a FitResult from airhealth.fit, got {type(result).__name__}.")
+    require_one_effect(result.spec.modifier, "burden")
     draws, seed = _checked_options(side, perspective, draws, seed, level)
     term = find_lag_term(result)
     counter = _fit_counterfactual(result, counterfactual, pollutant)

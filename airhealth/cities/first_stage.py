@@ -33,6 +33,7 @@ from .._warn import warn_user
 from ..errors import AirhealthError, DataError, DataWarning
 from ..model.effects import relative_risk
 from ..model.fitting import fit_spec
+from ..model.group_effects import require_one_effect
 from ..model.spec import ModelSpec
 from .executors import run_tasks
 from .inputs import CityTask, city_tasks
@@ -158,6 +159,7 @@ def fit_cities(
     20 largest US cities: a hierarchical modelling strategy. J R Stat Soc A 163:263–302 (the two-stage design).
     """
     spec = ModelSpec.from_options(**model_options)
+    require_one_effect(spec.modifier, "fit_cities")
     relative_risk(0.0, 0.0, per=per, level=level)  # per and level checked before any city runs
     tasks = city_tasks(cities, city)
     rows: list[dict[str, Any] | None] = [None] * len(tasks)

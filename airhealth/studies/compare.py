@@ -44,6 +44,7 @@ from ..model.engine.grid import ConfounderFit, fit_confounders
 from ..model.engine.grid_inference import ExposureFit, exposure_block, fit_exposure_only
 from ..model.engine.irls import GLMFit
 from ..model.fitting import fit_design, fitted_result, warn_if_suspicious
+from ..model.group_effects import require_one_effect
 from ..model.result import SUMMARY_COLUMNS, FitResult
 from ..model.spec import Interval, ModelSpec
 from .qaic import add_common_qaic
@@ -100,11 +101,7 @@ def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any
     """Validate once, build (and so check) every structure's design as a single fit would."""
     _check_lags(lags)
     specs = [ModelSpec.from_options(lag=lag, **model_options) for lag in lags]
-    if specs[0].modifier is not None:  # one effect per group, not per structure (model/group_effects.py)
-        raise SpecificationError(
-            f"compare reports one effect per lag structure, but modifier={specs[0].modifier!r} gives one per "
-            "group: fit each lag with airhealth.fit(..., modifier=...) and read effects_by_group()."
-        )
+    require_one_effect(specs[0].modifier, "compare")
     frame = _frame(data, specs)
     grid = _grid(frame, specs)
     if common_days:
@@ -383,6 +380,7 @@ def compare(
     dfs = _df_values(trend_df_per_year, model_options)
     options = {**model_options, "interval": interval}
     groups = [[ModelSpec.from_options(lag=lag, trend_df_per_year=df, **options) for lag in lags] for df in dfs]
+    require_one_effect(groups[0][0].modifier, "compare")
     _check_distinct([s.lag.label for s in groups[0]], "lag", "lags")
     frame = _frame(data, groups[0])
     label = "lag structures" if len(dfs) == 1 else "models"
