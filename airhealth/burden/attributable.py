@@ -35,7 +35,7 @@ from ..model.effects import normal_quantile
 from ..model.group_effects import require_one_effect
 from ..model.lag_predictions import find_lag_term, minimum_risk_exposure
 from ..model.result import FitResult
-from ..model.spec import ModelSpec
+from ..model.spec import ModelSpec, display_unit
 from .counterfactual import Counterfactual, resolve_counterfactual
 from .excess import DailyExcess, Perspective, Side, frame_rows, model_exposure_rows
 from .result import BurdenResult, build_result
@@ -303,6 +303,34 @@ def burden_from_estimate(
     )  # fmt: skip
 
 
+def _pooled_lag_unit(pooled: Any, lag: Any, unit: str | None) -> tuple[Any, str]:
+    """The lag and unit of a pooled burden: the given ones checked against what ``pooled`` records."""
+    recorded_lag, recorded_unit = getattr(pooled, "lag", None), getattr(pooled, "unit", None)
+    if lag is None and recorded_lag is None:
+        raise SpecificationError(
+            "the pooled result does not record the lag its cities were fitted with (it was not pooled from a "
+            "fit_cities table): give lag=... (e.g. lag='0-1'), the lag of the pooled coefficient."
+        )
+    if lag is not None and recorded_lag is not None:
+        given = ExposureLagBasis(LinearResponse(), lag).lag.label
+        if given != recorded_lag:
+            raise SpecificationError(
+                f"lag={given!r} but the pooled coefficient is for lag {recorded_lag!r} (the lag its cities were "
+                "fitted with); leave out lag= or give the same lag."
+            )
+    if unit is None and recorded_unit is None:
+        raise SpecificationError(
+            "the pooled result does not record the exposure's unit (it was not pooled from a fit_cities table): "
+            "give unit=... (e.g. unit='µg/m³'), the unit the coefficient is per."
+        )
+    if unit is not None and recorded_unit is not None and display_unit(unit) != display_unit(recorded_unit):
+        raise SpecificationError(
+            f"unit={unit!r} but the pooled coefficient is per {recorded_unit} (the unit its cities were fitted "
+            "with); leave out unit= or convert the coefficient."
+        )
+    return (recorded_lag if lag is None else lag), (recorded_unit if unit is None else unit)
+
+
 def _pooled_coefficients(pooled: Any, lag: Any) -> tuple[ExposureLagBasis, np.ndarray, np.ndarray, str]:
     """The lag basis, pooled coefficients, their covariance and a description, checked against each other."""
     from ..cities import MultivariatePooled, PooledEffect
@@ -338,8 +366,8 @@ def burden_pooled(
     exposure: str,
     counterfactual: float | str,
     *,
-    lag: Any = "0",
-    unit: str = "µg/m³",
+    lag: Any = None,
+    unit: str | None = None,
     date: str = "date",
     side: Side = "above",
     perspective: Perspective = "backward",
@@ -354,11 +382,15 @@ def burden_pooled(
     average) or :func:`airhealth.pool_multivariate` (the lag-basis coefficients of a distributed lag; ``lag`` the
     structure the cities were fitted with, e.g. ``"dl0-5"``). Every city's days are evaluated with the same draws
     of the pooled coefficients, so the total's interval accounts for the estimate being shared; ``table("city")``
-    gives each city's burden. Other parameters as :func:`burden`.
+    gives each city's burden. ``lag`` and ``unit`` default to those the pooled result records (the cities'
+    :func:`airhealth.fit_cities` fits); one given that differs from the recorded one is an error, and so is
+    leaving out one the result does not record (estimates pooled from a table made by hand). Other parameters
+    as :func:`burden`.
     """
     if not isinstance(cities, Mapping) or not cities:
         raise SpecificationError("cities must be a mapping of city name to its daily data, with at least one city.")
     draws, seed = _checked_options(side, perspective, draws, seed, level)
+    lag, unit = _pooled_lag_unit(pooled, lag, unit)
     basis, theta, cov, source = _pooled_coefficients(pooled, lag)
     spec = ModelSpec(outcome, exposure, basis.lag, date=date, temperature=None, unit=unit)
     counter = resolve_counterfactual(counterfactual, spec.unit, exposure=exposure, pollutant=pollutant)

@@ -186,6 +186,7 @@ def _table(rows: list[dict[str, Any] | None], spec: ModelSpec, per: float, level
         outcome=spec.outcome,
         exposure=spec.exposure,
         lag=spec.lag.label,
+        unit=spec.unit,
         lags=[int(x) for x in spec.lag.lags],
         lag_basis=np.asarray(spec.lag.basis(), dtype=float),
     )
@@ -239,5 +240,6 @@ def lag_vectors(estimates: pd.DataFrame) -> tuple[pd.DataFrame, np.ndarray]:
         index=kept["city"].astype(str).to_numpy(),
         columns=[f"lag_basis{j}" for j in range(p)],
     )
+    coefs.attrs.update({k: estimates.attrs[k] for k in ("lag", "unit") if k in estimates.attrs})
     covs = np.stack([np.asarray(c, dtype=float) for c in kept["lag_cov"]]) if vectors else np.empty((0, p, p))
     return coefs, covs

@@ -51,6 +51,7 @@ from .._choices import check_choice
 from ..errors import FitError
 from ._inputs import check_covariances, check_vectors
 from .multivariate_result import MultivariatePooled
+from .pooling import pooled_lag_unit
 
 __all__ = ["MultivariateMethod", "MultivariatePooled", "pool_multivariate"]
 
@@ -104,8 +105,9 @@ def pool_multivariate(
         sigma, iterations = reml_between_cov(ys, Ss, start=sigma)
     between = sigma * np.outer(scale, scale)
     return MultivariatePooled.build(
-        method=method, names=names, labels=labels, estimates=y, within=S, between_cov=between, iterations=iterations
-    )
+        method=method, names=names, labels=labels, estimates=y, within=S, between_cov=between, iterations=iterations,
+        **pooled_lag_unit(coefs),
+    )  # fmt: skip
 
 
 def _fixed_effect(y: np.ndarray, S: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
