@@ -93,14 +93,19 @@ class _Grid:
         return _restrict(self.originals[i], self.keep)
 
 
-def _check_lags(lags: Sequence[Any]) -> None:
+def _check_lags(lags: Sequence[Any], model_options: dict[str, Any]) -> None:
+    if "lag" in model_options:
+        raise SpecificationError(
+            f"compare takes its lag structures as lags=[...], not lag={model_options['lag']!r}: e.g. "
+            "lags=['0', '0-1', 'dl0-5']."
+        )
     if isinstance(lags, str) or not lags:
         raise SpecificationError("compare needs a list of lag structures, e.g. lags=['0', '1', '0-1', 'dl0-5'].")
 
 
 def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any], common_days: bool) -> _Grid:
     """Validate once, build (and so check) every structure's design as a single fit would."""
-    _check_lags(lags)
+    _check_lags(lags, model_options)
     specs = [ModelSpec.from_options(lag=lag, **model_options) for lag in lags]
     require_one_effect(specs[0].modifier, "compare")
     frame = _frame(data, specs)
@@ -362,7 +367,7 @@ def compare(
     Burnham KP, Anderson DR (2002). *Model Selection and Multimodel Inference*, 2nd ed. Springer,
     section 6.2 (QAIC with one variance-inflation factor from the most general model).
     """
-    _check_lags(lags)
+    _check_lags(lags, model_options)
     dfs = _df_values(trend_df_per_year, model_options)
     options = {**model_options, "interval": interval}
     groups = [[ModelSpec.from_options(lag=lag, trend_df_per_year=df, **options) for lag in lags] for df in dfs]
