@@ -9,7 +9,14 @@ from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
 
+import pandas as pd
+
 from .errors import DataError
+
+#: ``pandas.read_csv`` options that read numbers exactly as written: pandas before 3.0 parses with a fast
+#: routine that can lose the last digit unless ``float_precision="round_trip"``; pandas 3 reads exactly by
+#: default and deprecates the option.
+EXACT_FLOATS: dict[str, str] = {} if int(pd.__version__.split(".")[0]) >= 3 else {"float_precision": "round_trip"}
 
 
 @contextmanager

@@ -159,7 +159,7 @@ def test_a_perspective_with_a_given_coefficient_is_refused(sample_csv: Path, cap
 
 
 def test_report_option_writes_an_html_page_with_the_section_and_caution(sample_csv: Path, tmp_path: Path) -> None:
-    args = ["--outcome", "deaths_all", "--exposure", "pm25", "--coef", "0.0008", "--se", "0.0003", "--lag", "0"]
+    args = ["--outcome", "deaths_all", "--exposure", "pm10", "--coef", "0.0008", "--se", "0.0003", "--lag", "0"]
     out = tmp_path / "page"
     assert main(["burden", str(sample_csv), *args, "--counterfactual", "eu-limit:pm10:24h", "--report", str(out)]) == 0
     page = (out / "index.html").read_text(encoding="utf-8")
@@ -189,3 +189,11 @@ def test_user_text_is_escaped_in_the_notebook_display() -> None:
 def test_a_fit_with_holidays_and_confounders_gives_its_burden_from_the_data(sample: pd.DataFrame) -> None:
     fitted = airhealth.fit(sample, "deaths_all", "pm25", lag="dl0-2", temperature="temperature", holidays="GB")
     assert burden(fitted, 10, data=sample).n_days > 4000
+
+
+def test_pollutant_option_is_checked_against_the_preset(sample_csv: Path, capsys: pytest.CaptureFixture) -> None:
+    base = ["burden", str(sample_csv), "--outcome", "deaths_all", "--exposure", "pm25", "--coef", "0.001"]
+    args = [*base, "--se", "0.0005", "--lag", "0", "--counterfactual", "who-guideline:o3:8h"]
+    assert main(args) == 2
+    assert "preset 'who-guideline:o3:8h' is for O3, but the exposure 'pm25' is PM2.5" in capsys.readouterr().err
+    assert main([*args, "--pollutant", "o3", "--json"]) == 0

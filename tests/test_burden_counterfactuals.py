@@ -98,26 +98,27 @@ def test_a_gas_preset_is_converted_to_ppb_at_its_own_reference_conditions() -> N
     # Ideal gas: ppb = µg/m³ × Vm / M, Vm = R T / P (R = 8.314462618, CODATA 2018); WHO converts at 25 °C and
     # 1 atm (references.md), NO2 M = 46.01 g/mol (CRC Handbook).
     vm_who = 8.314462618 * 298.15 / 101.325
-    c = resolve_counterfactual("who-guideline:no2:24h", "ppb")
+    c = resolve_counterfactual("who-guideline:no2:24h", "ppb", exposure="no2")
     assert c.value == pytest.approx(25 * vm_who / 46.01, rel=1e-12)
     assert "25 µg/m³ converted to 13.29 ppb at 25 °C" in c.note
     # EU gaseous pollutants at 293 K and 101.3 kPa
     vm_eu = 8.314462618 * 293.15 / 101.3
-    assert resolve_counterfactual("eu-target:o3:8h", "ppb").value == pytest.approx(120 * vm_eu / 48.00, rel=1e-12)
-    assert resolve_counterfactual("who-guideline:co:24h", "µg/m³").value == pytest.approx(4000.0)
+    ozone = resolve_counterfactual("eu-target:o3:8h", "ppb", exposure="o3")
+    assert ozone.value == pytest.approx(120 * vm_eu / 48.00, rel=1e-12)
+    assert resolve_counterfactual("who-guideline:co:24h", "µg/m³", pollutant="co").value == pytest.approx(4000.0)
 
 
 def test_a_particle_preset_against_an_exposure_in_ppb_is_a_unit_mismatch() -> None:
     with pytest.raises(SpecificationError, match=r"preset is in µg/m³ but the exposure is in ppb.*PM2\.5"):
-        resolve_counterfactual("who-guideline:pm2.5:24h", "ppb")
+        resolve_counterfactual("who-guideline:pm2.5:24h", "ppb", exposure="pm25")
     with pytest.raises(SpecificationError, match=r"preset is in µg/m³ but the exposure is in °C"):
-        resolve_counterfactual("who-guideline:no2:24h", "°C")
+        resolve_counterfactual("who-guideline:no2:24h", "°C", pollutant="no2")
 
 
 def test_the_unit_of_a_fit_is_checked_against_the_preset(sample: pd.DataFrame) -> None:
     fitted = airhealth.fit(sample, "deaths_all", "no2", lag="0", unit="ppb")
     with pytest.raises(SpecificationError, match=r"preset is in µg/m³ but the exposure is in ppb"):
-        burden(fitted, "who-guideline:pm10:24h")
+        burden(fitted, "who-guideline:pm10:24h", pollutant="pm10")  # a particle pollutant has no ppb conversion
     converted = burden(fitted, "who-guideline:no2:24h")
     assert converted.unit == "ppb" and "converted" in converted.counterfactual.note
 
@@ -163,3 +164,49 @@ def test_the_caller_data_is_not_changed() -> None:
     before = data.copy(deep=True)
     burden_from_estimate(data, "deaths", "pm", coef=0.001, se=0.0004, counterfactual=10, lag="0-2")
     pd.testing.assert_frame_equal(data, before)
+
+
+# --- The preset's pollutant against the exposure's (review defect: an O3 preset was applied to PM2.5) ---
+
+
+@pytest.mark.parametrize(
+    ("column", "expected"),
+    [
+        ("pm25", "pm2.5"), ("PM2.5", "pm2.5"), ("pm2_5_mean", "pm2.5"), ("PM10", "pm10"), ("no2_24h", "no2"),
+        ("Ozone", "o3"), ("o3_8h", "o3"), ("SO2", "so2"), ("co", "co"), ("covid_deaths", None), ("pm", None),
+        ("temperature", None), ("pm25_no2_ratio", None),
+    ],
+)  # fmt: skip
+def test_the_pollutant_is_read_from_common_column_names(column: str, expected: str | None) -> None:
+    from airhealth.burden.counterfactual import pollutant_of_column
+
+    assert pollutant_of_column(column) == expected
+
+
+def test_a_preset_for_another_pollutant_is_refused(sample: pd.DataFrame) -> None:
+    fitted = airhealth.fit(sample, "deaths_all", "pm25", lag="0")
+    with pytest.raises(
+        SpecificationError, match=r"preset 'who-guideline:o3:8h' is for O3, but the exposure 'pm25' is PM2\.5"
+    ):
+        burden(fitted, "who-guideline:o3:8h")
+    wrong = r"is for PM2\.5, but the exposure 'pm25' is O3 \(from pollutant='o3'\)"
+    with pytest.raises(SpecificationError, match=wrong):
+        burden(fitted, "who-guideline:pm2.5:24h", pollutant="o3")
+
+
+def test_a_preset_for_an_exposure_of_unknown_pollutant_asks_for_pollutant() -> None:
+    unknown = r"exposure 'pm' cannot be told from its name; give it with pollutant="
+    with pytest.raises(SpecificationError, match=unknown):
+        burden_from_estimate(_city(), "deaths", "pm", 0.001, 0.0004, "who-guideline:pm2.5:24h")
+    given = burden_from_estimate(_city(), "deaths", "pm", 0.001, 0.0004, "who-guideline:pm2.5:24h", pollutant="PM2.5")
+    assert given.counterfactual.value == 15
+    with pytest.raises(SpecificationError, match=r"pollutant 'dust' is not known; give one of pm2\.5, pm10"):
+        burden_from_estimate(_city(), "deaths", "pm", 0.001, 0.0004, "who-guideline:pm2.5:24h", pollutant="dust")
+
+
+def test_an_annual_preset_on_daily_values_warns_that_the_averaging_times_differ() -> None:
+    from airhealth.errors import DataWarning
+
+    with pytest.warns(DataWarning, match=r"'who-guideline:pm2\.5:annual' is a level for the annual mean.*averaging"):
+        c = resolve_counterfactual("who-guideline:pm2.5:annual", "µg/m³", exposure="pm25")
+    assert c.value == 5 and "averaging times differ" in c.note

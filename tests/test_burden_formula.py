@@ -229,7 +229,7 @@ def test_pooled_estimate_applied_to_each_city_shares_its_draws() -> None:
     cities = {"north": _city(1), "south": _city(2)}
     estimates = pd.DataFrame({"city": ["a", "b", "c"], "coef": [0.0006, 0.001, 0.0008], "se": [0.0003, 0.0004, 0.0002]})
     pooled = airhealth.pool(estimates)
-    b = burden_pooled(pooled, cities, "deaths", "pm", 15)
+    b = burden_pooled(pooled, cities, "deaths", "pm", 15, lag="0", unit="µg/m³")  # a hand-made table records none
     per_city = b.table("city").set_index("period")
     for name, data in cities.items():
         alone = burden_from_estimate(data, "deaths", "pm", coef=pooled.coef, se=pooled.se, counterfactual=15)
@@ -297,13 +297,13 @@ def test_pooled_distributed_lag_vector_applied_to_each_city_equals_the_hand_sum(
     covs = [np.diag([1e-8, 1e-8, 1e-8])] * 3
     pooled = airhealth.pool_multivariate(coefs, covs, method="mm")
     cities = {"north": _city(1), "south": _city(2)}
-    b = burden_pooled(pooled, cities, "deaths", "pm", 12, lag="dl0-2")
+    b = burden_pooled(pooled, cities, "deaths", "pm", 12, lag="dl0-2", unit="µg/m³")
     expected = sum(
         _hand_distributed(d["deaths"].to_numpy(float), d["pm"].to_numpy(), np.asarray(pooled.coef), 12.0, False)
         for d in cities.values()
     )
     assert b.attributable == pytest.approx(expected, rel=RTOL)
-    forward = burden_pooled(pooled, cities, "deaths", "pm", 12, lag="dl0-2", perspective="forward")
+    forward = burden_pooled(pooled, cities, "deaths", "pm", 12, lag="dl0-2", unit="µg/m³", perspective="forward")
     expected_fwd = sum(
         _hand_distributed(d["deaths"].to_numpy(float), d["pm"].to_numpy(), np.asarray(pooled.coef), 12.0, True)
         for d in cities.values()
@@ -312,4 +312,47 @@ def test_pooled_distributed_lag_vector_applied_to_each_city_equals_the_hand_sum(
     from airhealth.errors import SpecificationError
 
     with pytest.raises(SpecificationError, match=r"pooled vector has 3 coefficients but lag dl0-5 has 6 basis columns"):
-        burden_pooled(pooled, cities, "deaths", "pm", 12, lag="dl0-5")
+        burden_pooled(pooled, cities, "deaths", "pm", 12, lag="dl0-5", unit="µg/m³")
+
+
+def test_pooled_burden_takes_the_lag_and_unit_the_cities_were_fitted_with() -> None:
+    # review defect: burden_pooled applied a 0-1 pooled coefficient at lag 0 by default
+    from airhealth.errors import SpecificationError
+
+    cities = {"north": _city(1), "south": _city(2), "east": _city(4)}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataWarning)
+        table = airhealth.fit_cities(cities, outcome="deaths", exposure="pm", lag="0-1", temperature=None,
+                                     show_progress=False)  # fmt: skip
+    assert (table.attrs["lag"], table.attrs["unit"]) == ("0-1", "µg/m³")
+    pooled = airhealth.pool(table)
+    assert (pooled.lag, pooled.unit) == ("0-1", "µg/m³")
+    b = burden_pooled(pooled, cities, "deaths", "pm", 15)
+    assert b.lag == "0-1"
+    alone = sum(
+        burden_from_estimate(d, "deaths", "pm", pooled.coef, pooled.se, 15, lag="0-1").attributable
+        for d in cities.values()
+    )
+    assert b.attributable == pytest.approx(alone, rel=RTOL)
+    with pytest.raises(SpecificationError, match=r"lag='0' but the pooled coefficient is for lag '0-1'"):
+        burden_pooled(pooled, cities, "deaths", "pm", 15, lag="0")
+    with pytest.raises(SpecificationError, match=r"unit='ppb' but the pooled coefficient is per µg/m³"):
+        burden_pooled(pooled, cities, "deaths", "pm", 15, unit="ppb")
+    by_hand = airhealth.pool(pd.DataFrame(table[["city", "coef", "se"]].to_dict("list")))
+    with pytest.raises(SpecificationError, match=r"does not record the lag .* give lag=\.\.\."):
+        burden_pooled(by_hand, cities, "deaths", "pm", 15)
+    with pytest.raises(SpecificationError, match=r"does not record the exposure's unit.*give unit="):
+        burden_pooled(by_hand, cities, "deaths", "pm", 15, lag="0-1")
+
+
+def test_pooled_lag_vectors_carry_the_lag_of_the_cities() -> None:
+    from airhealth.cities import lag_vectors
+
+    cities = {"north": _city(1), "south": _city(2), "east": _city(4)}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataWarning)
+        table = airhealth.fit_cities(cities, outcome="deaths", exposure="pm", lag="dl0-2", temperature=None,
+                                     show_progress=False)  # fmt: skip
+    pooled = airhealth.pool_multivariate(*lag_vectors(table), method="mm")
+    assert (pooled.lag, pooled.unit) == ("dl0-2", "µg/m³")
+    assert burden_pooled(pooled, cities, "deaths", "pm", 12).lag == "dl0-2"

@@ -274,3 +274,45 @@ def test_engine_refuses_strata_without_events_and_negbin_with_strata():
 def test_notebook_display_names_the_design(three_years):
     result = airhealth.fit(three_years, "deaths_all", "pm25", design="case-crossover")
     assert "time-stratified case-crossover, 252 strata" in result._repr_html_()
+
+
+def test_modifier_main_effect_absorbed_by_the_strata_is_left_out_as_aliased(three_years):
+    # review defect: case-crossover with modifier="season" raised "constant within every stratum". Reference:
+    # statsmodels GLM (Poisson, Pearson X2 scale) on indicators of year x month x day of week built here, the
+    # warm-season main effect kept (rank deficient: lstsq gives the identified coefficients, as R glm gives
+    # NA for the aliased one), pm25 x season built here; temperature columns from airhealth's design (its
+    # splines are checked against R elsewhere). Same maths: RTOL.
+    data = three_years.assign(season=airhealth.season_column(three_years["date"]))
+    options = dict(lag="0", temperature="temperature", modifier="season", design="case-crossover")
+    result = airhealth.fit(data, "deaths_all", "pm25", **options)
+    assert result.aliased == ("season[warm]",)
+    assert any("constant within every case-crossover stratum" in n for n in result.notes)
+    spec = ModelSpec.from_options(outcome="deaths_all", exposure="pm25", **options)
+    design = build_design(model_frame(data, spec), spec)
+    used = data.loc[design.used]
+    dates = pd.DatetimeIndex(used["date"])
+    stratum = pd.factorize(pd.Series(list(zip(dates.year, dates.month, dates.day_of_week, strict=True))))[0]
+    warm = (used["season"] == "warm").to_numpy(float)
+    pm = used["pm25"].to_numpy(float)
+    temperature = design.matrix[:, [i for i, n in enumerate(design.column_names) if n.startswith("spline(")]]
+    X = np.column_stack([temperature, warm, pm * (1 - warm), pm * warm, indicators(stratum)])
+    model = sm.GLM(used["deaths_all"].to_numpy(float), X, family=sm.families.Poisson())
+    with single_threaded_blas():
+        reference = model.fit(scale="X2", tol=1e-13, maxiter=100, wls_method="lstsq")
+    m = temperature.shape[1]
+    groups = result.effects_by_group(per=1)
+    np.testing.assert_allclose(groups["coef"], reference.params[m + 1 : m + 3], rtol=RTOL)
+    assert result.dispersion == pytest.approx(reference.scale, rel=RTOL) and result.df_resid == reference.df_resid
+    # standard errors from the full-rank fit without the aliased column (the rank-deficient fit's pinv
+    # covariance carries ~2e-7 relative rounding from its singular-value cut-off)
+    full_rank = sm.GLM(model.endog, np.delete(X, m, axis=1), family=sm.families.Poisson())
+    with single_threaded_blas():
+        reduced = full_rank.fit(scale="X2", tol=1e-13, maxiter=100, wls_method="lstsq")
+    np.testing.assert_allclose(groups["se"], reduced.bse[m : m + 2], rtol=RTOL)
+    assert result.deviance == pytest.approx(reference.deviance, rel=RTOL)
+
+
+def test_a_confounder_the_user_named_constant_within_strata_is_still_an_error(three_years):
+    data = three_years.assign(month_code=pd.DatetimeIndex(three_years["date"]).month.astype(float))
+    with pytest.raises(FitError, match=r"'month_code' is constant within every stratum"):
+        airhealth.fit(data, "deaths_all", "pm25", lag="0", confounders=["month_code"], design="case-crossover")

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 
 import airhealth
-from airhealth._csv import EXACT_FLOATS
+from airhealth._io import EXACT_FLOATS
 from airhealth.cities.estimates_table import unflatten
 from airhealth.cities.simulate_cities import simulate_cities
 from airhealth.cli.main import main

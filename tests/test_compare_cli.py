@@ -179,3 +179,9 @@ def test_compare_is_listed_in_the_help(capsys):
     with pytest.raises(SystemExit):
         main(["--help"])
     assert "compare" in capsys.readouterr().out
+
+
+def test_compare_given_lag_instead_of_lags_says_which_to_use() -> None:
+    data = airhealth.load_sample().iloc[:800]
+    with pytest.raises(SpecificationError, match=r"lags=\[\.\.\.\], not lag='0'"):
+        airhealth.compare(data, ["0-1"], lag="0", outcome="deaths_all", exposure="pm25")

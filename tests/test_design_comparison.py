@@ -91,3 +91,13 @@ def test_report_methods_text_describes_the_case_crossover():
     )
     assert "spline of time" not in text and "day-of-week indicators" not in text
     assert "natural splines of same-day temperature (6 df)" in text
+
+
+def test_one_lag_given_as_lag_is_accepted_and_both_forms_are_refused(two_years, table):
+    # review defect: lag= gave a raw TypeError
+    one = airhealth.compare_designs(two_years, "deaths_all", "pm25", lag="0", temperature="temperature",
+                                    trend_df_per_year=6)  # fmt: skip
+    assert one["lag"].tolist() == ["0", "0"]
+    np.testing.assert_allclose(one["coef"], table["coef"].iloc[:2], rtol=1e-12)
+    with pytest.raises(SpecificationError, match=r"got both lag='0' and lags=\['0-1'\]: give one lag as lag="):
+        airhealth.compare_designs(two_years, "deaths_all", "pm25", lag="0", lags=["0-1"])

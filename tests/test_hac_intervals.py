@@ -258,3 +258,14 @@ def test_negative_binomial_hac_uses_its_scores_and_expected_information(city):
     bread = np.linalg.inv(-model.hessian(params, scale=1.0, observed=False))
     expected = bread @ S_hac_simple(model.score_obs(params, scale=1.0), nlags=4) @ bread
     np.testing.assert_allclose(result.std_err.to_numpy(), np.sqrt(np.diag(expected)), rtol=1e-8)
+
+
+def test_the_record_names_the_interval_actually_used(city):
+    # review defect: a Poisson fit said "quasi-poisson"
+    assert airhealth.fit(city, family="poisson", **OPTIONS).to_dict()["interval"] == "poisson"
+    assert airhealth.fit(city, overdispersion=False, **OPTIONS).to_dict()["interval"] == "poisson"
+    assert airhealth.fit(city, family="negbin", **OPTIONS).to_dict()["interval"] == "negative-binomial"
+    assert airhealth.fit(city, family="poisson", interval="hac", **OPTIONS).to_dict()["interval"] == "hac"
+    options = {k: v for k, v in OPTIONS.items() if k != "lag"}
+    table = airhealth.compare(city, lags=["0"], family="poisson", **options)
+    assert set(table["interval"]) == {"poisson"}

@@ -148,7 +148,9 @@ def test_non_positive_definite_covariance_names_the_city_and_eigenvalue():
 def test_missing_coefficient_names_city_and_coefficient():
     _, covs = vectors()
     table = pd.DataFrame({"lag0": [0.1, 0.3, np.nan, 0.0], "lag1": [0.2, 0.1, 0.4, 0.3]}, index=list("ABCD"))
-    with pytest.raises(DataError, match=r"coefficient 'lag0' of C is nan; every city needs all its coefficients"):
+    with pytest.raises(
+        DataError, match=r"coefficient 'lag0' of city 'C' is nan; every city needs all its coefficients"
+    ):
         airhealth.pool_multivariate(table, covs)
 
 
@@ -178,3 +180,18 @@ def test_predict_needs_every_moderator_and_finite_values():
         airhealth.pool(cities().assign(alt=[1.0, 2.0, 5.0, 3.0]), moderators=["temp", "alt"]).predict(
             {"temp": [1.0, 2.0], "alt": [1.0]}
         )
+
+
+def test_multivariate_messages_name_the_city_by_its_name():
+    # review defect: messages said "city 0" even for named cities
+    coefs, covs = vectors()
+    bad = np.array([[0.01, 0.02], [0.02, 0.01]])
+    table = pd.DataFrame(coefs, columns=["lag0", "lag1"], index=["Norhaven", "Eastport", "Millbrook", "Southvale"])
+    with pytest.raises(DataError, match=r"covariance of city 'Southvale' is not positive definite"):
+        airhealth.pool_multivariate(table, [covs[0], covs[0], covs[0], bad])
+    names = ["Norhaven", "Eastport", "Millbrook", "Southvale"]
+    with pytest.raises(DataError, match=r"city 'Norhaven' has 2, city 'Millbrook' has 3; every city must give"):
+        airhealth.pool_multivariate([[0.1, 0.2], [0.3, 0.1], [0.2, 0.4, 0.5], [0.0, 0.3]], covs, cities=names)
+    with pytest.raises(DataError, match=r"got 4 coefficient vectors but 3 city names in cities="):
+        airhealth.pool_multivariate(coefs, covs, cities=names[:3])
+    assert airhealth.pool_multivariate(coefs, covs, cities=names).labels == tuple(names)

@@ -32,9 +32,10 @@ from ..errors import DataWarning, SpecificationError
 from ..model.bases.exposure_lag import ExposureLagBasis, LinearResponse
 from ..model.design import model_frame
 from ..model.effects import normal_quantile
+from ..model.group_effects import require_one_effect
 from ..model.lag_predictions import find_lag_term, minimum_risk_exposure
 from ..model.result import FitResult
-from ..model.spec import ModelSpec
+from ..model.spec import ModelSpec, display_unit
 from .counterfactual import Counterfactual, resolve_counterfactual
 from .excess import DailyExcess, Perspective, Side, frame_rows, model_exposure_rows
 from .result import BurdenResult, build_result
@@ -130,7 +131,7 @@ def _rows_of(
     return frame_rows(dates, x, y, basis, x0, side, perspective)
 
 
-def _fit_counterfactual(result: FitResult, given: Any) -> Counterfactual:
+def _fit_counterfactual(result: FitResult, given: Any, pollutant: str | None) -> Counterfactual:
     if isinstance(given, str) and given.strip().lower() == MINIMUM_RISK:
         if getattr(result.spec.lag, "is_nonlinear", False) is False:
             raise SpecificationError(
@@ -141,7 +142,7 @@ def _fit_counterfactual(result: FitResult, given: Any) -> Counterfactual:
         return Counterfactual(
             lowest.exposure, result.spec.unit, "minimum-risk exposure", "lowest point of the fitted curve", lowest.note
         )
-    return resolve_counterfactual(given, result.spec.unit)
+    return resolve_counterfactual(given, result.spec.unit, exposure=result.spec.exposure, pollutant=pollutant)
 
 
 def _rows_from_fit(result: FitResult, x0: float, side: Side) -> DailyExcess:
@@ -165,6 +166,7 @@ def burden(
     draws: int = DEFAULT_DRAWS,
     seed: int = DEFAULT_SEED,
     level: float = 0.95,
+    pollutant: str | None = None,
 ) -> BurdenResult:
     """Deaths or admissions attributable to exposure beyond a counterfactual, from a fitted model.
 
@@ -192,6 +194,10 @@ def burden(
         Monte Carlo draws (at least 100) and the seed of the generator; the defaults make results reproducible.
     level : float
         Level of the intervals.
+    pollutant : str, optional
+        The exposure's pollutant (``"pm2.5"``, ``"pm10"``, ``"no2"``, ``"o3"``, ``"so2"``, ``"co"``), checked
+        against a preset's; by default read from the exposure column's name, and a preset is refused when it
+        cannot be told from it.
 
     Returns
     -------
@@ -207,9 +213,10 @@ def burden(
     """
     if not isinstance(result, FitResult):
         raise SpecificationError(f"burden needs a FitResult from airhealth.fit, got {type(result).__name__}.")
+    require_one_effect(result.spec.modifier, "burden")
     draws, seed = _checked_options(side, perspective, draws, seed, level)
     term = find_lag_term(result)
-    counter = _fit_counterfactual(result, counterfactual)
+    counter = _fit_counterfactual(result, counterfactual, pollutant)
     spec, notes = result.spec, []
     simple = term.basis.response.is_linear and not term.basis.is_distributed and perspective == "backward"
     if data is None:
@@ -271,12 +278,14 @@ def burden_from_estimate(
     draws: int = DEFAULT_DRAWS,
     seed: int = DEFAULT_SEED,
     level: float = 0.95,
+    pollutant: str | None = None,
     **read_options: Any,
 ) -> BurdenResult:
     """The burden of a given (e.g. published) log relative risk per unit, ``coef`` with ``se``, on ``data``.
 
     ``coef`` is per unit of ``exposure`` on the lag day or averaged over the moving-average window ``lag``;
-    ``unit`` is the exposure's unit (checked against a preset's). ``read_options`` are the
+    ``unit`` is the exposure's unit (checked against a preset's) and ``pollutant`` its pollutant (as
+    :func:`burden`). ``read_options`` are the
     :class:`~airhealth.model.spec.ModelSpec` reading options ``na_values`` and ``date_format``. Other
     parameters as :func:`burden`.
     """
@@ -287,12 +296,40 @@ def burden_from_estimate(
     if unknown:
         raise SpecificationError(f"unknown option {unknown[0]!r}; the reading options are na_values and date_format.")
     spec = ModelSpec(outcome, exposure, basis.lag, date=date, temperature=None, unit=unit, **read_options)
-    counter = resolve_counterfactual(counterfactual, spec.unit)
+    counter = resolve_counterfactual(counterfactual, spec.unit, exposure=exposure, pollutant=pollutant)
     part = _rows_of(_burden_frame(data, spec), spec, basis, counter.value, side, "backward")
     return _compute(
         [(exposure, part)], theta, cov, counter, spec, draws=draws, seed=seed, level=level, notes=[], side=side,
         perspective="backward", source=f"given coefficient {float(coef):.6g} (SE {float(se):.6g}) per {spec.unit}",
     )  # fmt: skip
+
+
+def _pooled_lag_unit(pooled: Any, lag: Any, unit: str | None) -> tuple[Any, str]:
+    """The lag and unit of a pooled burden: the given ones checked against what ``pooled`` records."""
+    recorded_lag, recorded_unit = getattr(pooled, "lag", None), getattr(pooled, "unit", None)
+    if lag is None and recorded_lag is None:
+        raise SpecificationError(
+            "the pooled result does not record the lag its cities were fitted with (it was not pooled from a "
+            "fit_cities table): give lag=... (e.g. lag='0-1'), the lag of the pooled coefficient."
+        )
+    if lag is not None and recorded_lag is not None:
+        given = ExposureLagBasis(LinearResponse(), lag).lag.label
+        if given != recorded_lag:
+            raise SpecificationError(
+                f"lag={given!r} but the pooled coefficient is for lag {recorded_lag!r} (the lag its cities were "
+                "fitted with); leave out lag= or give the same lag."
+            )
+    if unit is None and recorded_unit is None:
+        raise SpecificationError(
+            "the pooled result does not record the exposure's unit (it was not pooled from a fit_cities table): "
+            "give unit=... (e.g. unit='µg/m³'), the unit the coefficient is per."
+        )
+    if unit is not None and recorded_unit is not None and display_unit(unit) != display_unit(recorded_unit):
+        raise SpecificationError(
+            f"unit={unit!r} but the pooled coefficient is per {recorded_unit} (the unit its cities were fitted "
+            "with); leave out unit= or convert the coefficient."
+        )
+    return (recorded_lag if lag is None else lag), (recorded_unit if unit is None else unit)
 
 
 def _pooled_coefficients(pooled: Any, lag: Any) -> tuple[ExposureLagBasis, np.ndarray, np.ndarray, str]:
@@ -330,14 +367,15 @@ def burden_pooled(
     exposure: str,
     counterfactual: float | str,
     *,
-    lag: Any = "0",
-    unit: str = "µg/m³",
+    lag: Any = None,
+    unit: str | None = None,
     date: str = "date",
     side: Side = "above",
     perspective: Perspective = "backward",
     draws: int = DEFAULT_DRAWS,
     seed: int = DEFAULT_SEED,
     level: float = 0.95,
+    pollutant: str | None = None,
 ) -> BurdenResult:
     """A pooled estimate applied to each city's data.
 
@@ -345,14 +383,18 @@ def burden_pooled(
     average) or :func:`airhealth.pool_multivariate` (the lag-basis coefficients of a distributed lag; ``lag`` the
     structure the cities were fitted with, e.g. ``"dl0-5"``). Every city's days are evaluated with the same draws
     of the pooled coefficients, so the total's interval accounts for the estimate being shared; ``table("city")``
-    gives each city's burden. Other parameters as :func:`burden`.
+    gives each city's burden. ``lag`` and ``unit`` default to those the pooled result records (the cities'
+    :func:`airhealth.fit_cities` fits); one given that differs from the recorded one is an error, and so is
+    leaving out one the result does not record (estimates pooled from a table made by hand). Other parameters
+    as :func:`burden`.
     """
     if not isinstance(cities, Mapping) or not cities:
         raise SpecificationError("cities must be a mapping of city name to its daily data, with at least one city.")
     draws, seed = _checked_options(side, perspective, draws, seed, level)
+    lag, unit = _pooled_lag_unit(pooled, lag, unit)
     basis, theta, cov, source = _pooled_coefficients(pooled, lag)
     spec = ModelSpec(outcome, exposure, basis.lag, date=date, temperature=None, unit=unit)
-    counter = resolve_counterfactual(counterfactual, spec.unit)
+    counter = resolve_counterfactual(counterfactual, spec.unit, exposure=exposure, pollutant=pollutant)
     parts = []
     for name, data in cities.items():
         parts.append((str(name), _rows_of(_burden_frame(data, spec), spec, basis, counter.value, side, perspective)))

@@ -7,6 +7,7 @@ multivariate pooling) vectors of different lengths and covariances that are not 
 
 from __future__ import annotations
 
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -168,10 +169,31 @@ def _design(
     return X, terms
 
 
-def check_vectors(coefs: Any) -> tuple[np.ndarray, tuple[str, ...], tuple[str, ...]]:
-    """Validate a k×p table of coefficient vectors; return it with city labels and coefficient names."""
+def _city(labels: tuple[str, ...], i: int) -> str:
+    """How messages name city ``i``: its name (``city 'Athens'``), or ``city 3`` when the cities are unnamed."""
+    return labels[i] if re.fullmatch(r"city \d+", labels[i]) else f"city {labels[i]!r}"
+
+
+def _city_labels(coefs: Any, cities: Sequence[Any] | None, k: int) -> tuple[str, ...]:
+    if cities is not None:
+        names = tuple(str(c) for c in cities)
+        if len(names) != k:
+            raise DataError(f"got {k} coefficient vectors but {len(names)} city names in cities=; give one per city.")
+        return names
     if isinstance(coefs, pd.DataFrame):
-        labels = tuple(str(i) for i in coefs.index)
+        return tuple(str(i) for i in coefs.index)
+    return tuple(f"city {i}" for i in range(k))
+
+
+def check_vectors(
+    coefs: Any, cities: Sequence[Any] | None = None
+) -> tuple[np.ndarray, tuple[str, ...], tuple[str, ...]]:
+    """Validate a k×p table of coefficient vectors; return it with city labels and coefficient names.
+
+    The cities are named by ``cities`` when given, else by a DataFrame's index labels, else ``city 0``, ...
+    """
+    if isinstance(coefs, pd.DataFrame):
+        labels = _city_labels(coefs, cities, len(coefs))
         names = tuple(str(c) for c in coefs.columns)
         values = coefs.apply(pd.to_numeric, errors="coerce").to_numpy(dtype=float)
     else:
@@ -179,21 +201,22 @@ def check_vectors(coefs: Any) -> tuple[np.ndarray, tuple[str, ...], tuple[str, .
             rows = [np.asarray(r, dtype=float).ravel() for r in coefs]
         except (TypeError, ValueError) as exc:
             raise DataError(f"coefs must be a k×p array or DataFrame of numbers: {exc}") from None
+        labels = _city_labels(coefs, cities, len(rows))
         lengths = {len(r) for r in rows}
         if len(lengths) > 1:
             first = next(i for i, r in enumerate(rows) if len(r) != len(rows[0]))
             raise DataError(
-                f"the coefficient vectors have different lengths: city 0 has {len(rows[0])}, city {first} has "
-                f"{len(rows[first])}; every city must give the same coefficients (same lags or basis)."
+                f"the coefficient vectors have different lengths: {_city(labels, 0)} has {len(rows[0])}, "
+                f"{_city(labels, first)} has {len(rows[first])}; every city must give the same coefficients (same "
+                "lags or basis)."
             )
         values = np.vstack(rows) if rows else np.empty((0, 0))
-        labels = tuple(f"city {i}" for i in range(len(values)))
         names = tuple(f"coef{j}" for j in range(values.shape[1]))
     bad = np.argwhere(~np.isfinite(values))
     if bad.size:
         i, j = bad[0]
         raise DataError(
-            f"coefficient {names[j]!r} of {labels[i]} is {float(values[i, j])!r}; every city needs all its "
+            f"coefficient {names[j]!r} of {_city(labels, i)} is {float(values[i, j])!r}; every city needs all its "
             "coefficients (leave out cities whose fit failed)."
         )
     if len(set(labels)) != len(labels):
@@ -210,25 +233,26 @@ def check_covariances(covs: Any, k: int, p: int, labels: tuple[str, ...]) -> np.
         raise DataError(f"got {k} coefficient vectors but {len(items)} covariance matrices; give one per city.")
     out = np.empty((k, p, p))
     for i, cov in enumerate(items):
+        who = _city(labels, i)
         S = np.asarray(cov, dtype=float)
         if S.ndim == 0 and p == 1:
             S = S.reshape(1, 1)
         if S.shape != (p, p):
-            raise DataError(f"the covariance of {labels[i]} has shape {S.shape}; it must be {p}×{p} like its vector.")
+            raise DataError(f"the covariance of {who} has shape {S.shape}; it must be {p}×{p} like its vector.")
         if not np.isfinite(S).all():
-            raise DataError(f"the covariance of {labels[i]} holds missing or infinite values; supply a full matrix.")
+            raise DataError(f"the covariance of {who} holds missing or infinite values; supply a full matrix.")
         scale = max(np.abs(S).max(), np.finfo(float).tiny)
         asym = np.abs(S - S.T).max()
         if asym > SYMMETRY_TOLERANCE * scale:
             raise DataError(
-                f"the covariance of {labels[i]} is not symmetric (largest difference {asym:.3g}); "
+                f"the covariance of {who} is not symmetric (largest difference {asym:.3g}); "
                 "check that it is the covariance of the city's coefficients."
             )
         S = (S + S.T) / 2
         smallest = float(np.linalg.eigvalsh(S).min())
         if smallest <= 0:
             raise DataError(
-                f"the covariance of {labels[i]} is not positive definite (smallest eigenvalue {smallest:.3g}); "
+                f"the covariance of {who} is not positive definite (smallest eigenvalue {smallest:.3g}); "
                 "a city with a singular covariance cannot be weighted: leave it out or fix its first-stage fit."
             )
         out[i] = S

@@ -33,6 +33,7 @@ from .._warn import warn_user
 from ..errors import AirhealthError, DataError, DataWarning
 from ..model.effects import relative_risk
 from ..model.fitting import fit_spec
+from ..model.group_effects import require_one_effect
 from ..model.spec import ModelSpec
 from .executors import run_tasks
 from .inputs import CityTask, city_tasks
@@ -158,6 +159,7 @@ def fit_cities(
     20 largest US cities: a hierarchical modelling strategy. J R Stat Soc A 163:263–302 (the two-stage design).
     """
     spec = ModelSpec.from_options(**model_options)
+    require_one_effect(spec.modifier, "fit_cities")
     relative_risk(0.0, 0.0, per=per, level=level)  # per and level checked before any city runs
     tasks = city_tasks(cities, city)
     rows: list[dict[str, Any] | None] = [None] * len(tasks)
@@ -184,6 +186,7 @@ def _table(rows: list[dict[str, Any] | None], spec: ModelSpec, per: float, level
         outcome=spec.outcome,
         exposure=spec.exposure,
         lag=spec.lag.label,
+        unit=spec.unit,
         lags=[int(x) for x in spec.lag.lags],
         lag_basis=np.asarray(spec.lag.basis(), dtype=float),
     )
@@ -237,5 +240,6 @@ def lag_vectors(estimates: pd.DataFrame) -> tuple[pd.DataFrame, np.ndarray]:
         index=kept["city"].astype(str).to_numpy(),
         columns=[f"lag_basis{j}" for j in range(p)],
     )
+    coefs.attrs.update({k: estimates.attrs[k] for k in ("lag", "unit") if k in estimates.attrs})
     covs = np.stack([np.asarray(c, dtype=float) for c in kept["lag_cov"]]) if vectors else np.empty((0, p, p))
     return coefs, covs

@@ -26,7 +26,7 @@ from typing import Any
 
 import pandas as pd
 
-from .._csv import EXACT_FLOATS
+from .._io import EXACT_FLOATS
 from ..errors import DataError, SpecificationError
 
 __all__ = ["CitySource", "CityTask", "CsvFile", "CsvFolder", "FrameSource", "ParquetRows", "city_tasks"]

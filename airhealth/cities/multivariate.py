@@ -41,6 +41,7 @@ Jackson D, Riley R, White IR (2011). Multivariate meta-analysis: potential and p
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any, Literal
 
 import numpy as np
@@ -50,6 +51,7 @@ from .._choices import check_choice
 from ..errors import FitError
 from ._inputs import check_covariances, check_vectors
 from .multivariate_result import MultivariatePooled
+from .pooling import pooled_lag_unit
 
 __all__ = ["MultivariateMethod", "MultivariatePooled", "pool_multivariate"]
 
@@ -61,7 +63,9 @@ GRADIENT_TOLERANCE = 1e-6
 NULL_EIGENVALUE = 1e-6
 
 
-def pool_multivariate(coefs: Any, covs: Any, method: MultivariateMethod = "reml") -> MultivariatePooled:
+def pool_multivariate(
+    coefs: Any, covs: Any, method: MultivariateMethod = "reml", cities: Sequence[Any] | None = None
+) -> MultivariatePooled:
     """Pool vectors of city coefficients with their within-city covariances (multivariate random effects).
 
     Parameters
@@ -72,6 +76,9 @@ def pool_multivariate(coefs: Any, covs: Any, method: MultivariateMethod = "reml"
         Within-city covariances of the vectors, in the same city order.
     method : {"reml", "mm"}
         Restricted maximum likelihood, or the method of moments of Jackson, White & Riley (2013).
+    cities : sequence of str, optional
+        The cities' names, in the order of ``coefs`` (default: a DataFrame's index labels, else ``city 0``,
+        ``city 1``, ...); results and error messages name the cities by them.
 
     Returns
     -------
@@ -87,7 +94,7 @@ def pool_multivariate(coefs: Any, covs: Any, method: MultivariateMethod = "reml"
     array([0.15, 0.25])
     """
     check_choice("method", method, MultivariateMethod)
-    y, labels, names = check_vectors(coefs)
+    y, labels, names = check_vectors(coefs, cities)
     k, p = y.shape
     S = check_covariances(covs, k, p, labels)
     scale = np.sqrt(np.mean(np.diagonal(S, axis1=1, axis2=2), axis=0))
@@ -98,8 +105,9 @@ def pool_multivariate(coefs: Any, covs: Any, method: MultivariateMethod = "reml"
         sigma, iterations = reml_between_cov(ys, Ss, start=sigma)
     between = sigma * np.outer(scale, scale)
     return MultivariatePooled.build(
-        method=method, names=names, labels=labels, estimates=y, within=S, between_cov=between, iterations=iterations
-    )
+        method=method, names=names, labels=labels, estimates=y, within=S, between_cov=between, iterations=iterations,
+        **pooled_lag_unit(coefs),
+    )  # fmt: skip
 
 
 def _fixed_effect(y: np.ndarray, S: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

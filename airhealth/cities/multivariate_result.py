@@ -46,6 +46,8 @@ class MultivariatePooled:
     estimates: np.ndarray
     within: np.ndarray
     iterations: int
+    lag: str | None = None
+    unit: str | None = None
 
     def __post_init__(self) -> None:
         for name in ("coef", "cov", "between_cov", "estimates", "within"):
@@ -61,6 +63,8 @@ class MultivariatePooled:
         within: np.ndarray,
         between_cov: np.ndarray,
         iterations: int,
+        lag: str | None = None,
+        unit: str | None = None,
     ) -> MultivariatePooled:
         """Pooled vector and Q test for a given between-city covariance."""
         from .multivariate import q_test  # the estimators live there; this module only holds results
@@ -82,6 +86,8 @@ class MultivariatePooled:
             estimates=estimates,
             within=within,
             iterations=iterations,
+            lag=lag,
+            unit=unit,
         )
 
     @property

@@ -65,7 +65,9 @@ class PooledEffect:
 
     ``coef``/``se`` are the pooled estimate (the intercept when there are moderators: the effect where every
     moderator is 0); ``rr``/``rr_low``/``rr_high`` are ``exp(per * ...)``. ``table()`` gives every coefficient,
-    ``summary()`` one tidy row, ``blup()`` the shrunken city estimates.
+    ``summary()`` one tidy row, ``blup()`` the shrunken city estimates. ``lag`` and ``unit`` are those the
+    cities were fitted with when the estimates came from :func:`airhealth.fit_cities` (its table's ``attrs``),
+    else None.
     """
 
     method: str
@@ -81,6 +83,8 @@ class PooledEffect:
     variances: np.ndarray
     design: np.ndarray
     z: float
+    lag: str | None = None
+    unit: str | None = None
 
     def __post_init__(self) -> None:
         for name in ("coefs", "cov", "estimates", "variances", "design"):

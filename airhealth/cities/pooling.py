@@ -119,7 +119,14 @@ def pool(
         variances=v,
         design=X,
         z=z,
+        **pooled_lag_unit(estimates),
     )
+
+
+def pooled_lag_unit(table: Any) -> dict[str, str | None]:
+    """The ``lag`` and ``unit`` a :func:`airhealth.fit_cities` table records in its ``attrs`` (None if absent)."""
+    attrs = getattr(table, "attrs", None) or {}
+    return {k: (None if attrs.get(k) is None else str(attrs[k])) for k in ("lag", "unit")}
 
 
 def _heterogeneity(

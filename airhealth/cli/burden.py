@@ -51,6 +51,11 @@ def register(sub: Any) -> None:
         metavar="X0|PRESET",
         help="level in the exposure's unit, or a preset such as who-guideline:pm2.5:24h (see --list-counterfactuals)",
     )
+    p.add_argument(
+        "--pollutant",
+        help="the exposure's pollutant (pm2.5, pm10, no2, o3, so2, co), checked against a preset's; by default read "
+        "from the exposure column's name",
+    )
     p.add_argument("--coef", type=float, help="given log relative risk per unit (with --se) instead of fitting")
     p.add_argument("--se", type=float, help="standard error of --coef")
     p.add_argument(
@@ -108,7 +113,7 @@ def _compute(args: argparse.Namespace, level: float) -> Any:
     lag = single_lag(args)
     units = parse_units(args.unit, [args.exposure])
     unit = units.get(args.exposure, "µg/m³")
-    options = {"draws": args.draws, "seed": args.seed, "side": args.side, "level": level}
+    options = {"draws": args.draws, "seed": args.seed, "side": args.side, "level": level, "pollutant": args.pollutant}
     if args.coef is not None:
         data = read_daily(args, [args.outcome, args.exposure])
         read = {k: v for k, v in model_options(args).items() if k in ("na_values",)}

@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .._csv import EXACT_FLOATS
+from .._io import EXACT_FLOATS
 from ..errors import DataError
 
 __all__ = ["STDIN", "check_numeric_columns", "read_table"]

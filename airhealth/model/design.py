@@ -25,7 +25,13 @@ from ..prep.validate import check_counts, check_finite, check_not_all_missing, r
 from .bases.copollutant import copollutant_correlations
 from .bases.exposure_lag import ExposureLagBasis
 from .bases.lag_structures import LagStructure, MovingAverage, SingleDay
-from .bases.modifier import check_group_sizes, group_column_names, interact, modifier_codes
+from .bases.modifier import (
+    absorbed_main_effects,
+    check_group_sizes,
+    group_column_names,
+    interact,
+    modifier_codes,
+)
 from .bases.strata import StrataUsed, used_strata
 from .bases.terms import Categorical, TermBlock
 from .engine.aliasing import aliased_columns, describe_aliased
@@ -489,6 +495,11 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
     aliased, why = _alias_confounders(matrix[:, :k], conf, calendar, used, reasons, first)
     if aliased.size:
         warn_user(why, DataWarning)
+    notes = () if why is None else (why,)
+    if strata is not None and groups:  # the strata hold a modifier's main effect that is constant within them
+        absorbed, note = absorbed_main_effects(matrix[:, :k], names[:k], conf.blocks[-1].column_names, strata.codes)
+        aliased, notes = np.union1d(aliased, absorbed).astype(int), notes + ((note,) if note else ())
+    if aliased.size:
         keep = np.setdiff1d(np.arange(p), aliased)
         matrix, names = np.asfortranarray(matrix[:, keep]), tuple(names[j] for j in keep)
         k, p = k - aliased.size, keep.size
@@ -506,7 +517,7 @@ def build_design(frame: pd.DataFrame, spec: ModelSpec, confounders: ConfounderBl
         exposure_raw=raw,
         lag=None if lag is spec.lag else lag,
         aliased=tuple(conf.column_names[first + j] for j in aliased),
-        notes=() if why is None else (why,),
+        notes=notes,
         copollutant_correlations=correlations,
         groups=groups,
         group_codes=codes,

@@ -42,7 +42,14 @@ from .effects import relative_risk
 if TYPE_CHECKING:
     from .result import FitResult
 
-__all__ = ["GROUP_COLUMNS", "copollutant_effects", "effects_by_group", "group_estimates", "modification_test"]
+__all__ = [
+    "GROUP_COLUMNS",
+    "copollutant_effects",
+    "effects_by_group",
+    "group_estimates",
+    "modification_test",
+    "require_one_effect",
+]
 
 #: Columns of :func:`effects_by_group` (the issue's contract, then the test's inputs).
 GROUP_COLUMNS = ("group", "coef", "se", "rr", "rr_low", "rr_high", "p_value", "n_days", "events")
@@ -73,6 +80,24 @@ def copollutant_effects(result: FitResult, per: float = 10.0, level: float = 0.9
         )  # fmt: skip
     columns = ["copollutant", "lag", "per", "unit", "coef", "se", "rr", "rr_low", "rr_high", "p_value", "correlation"]
     return pd.DataFrame(rows, columns=columns)
+
+
+def require_one_effect(modifier: str | None, analysis: str) -> None:
+    """Refuse an effect modifier in an analysis that uses one exposure effect (compare, sweep, sensitivity,
+    burden, fit_cities): the one guard they all call before any work.
+
+    Raises
+    ------
+    SpecificationError
+        When ``modifier`` is set, naming the analysis and what to do instead.
+    """
+    if modifier is None:
+        return
+    raise SpecificationError(
+        f"{analysis} needs one exposure effect, but modifier={modifier!r} gives one per group of {modifier!r}: "
+        f"leave out modifier=..., or fit with airhealth.fit(..., modifier={modifier!r}) and read "
+        "effects_by_group() (or run the analysis on each group's days)."
+    )
 
 
 def group_estimates(result: FitResult) -> tuple[np.ndarray, np.ndarray]:

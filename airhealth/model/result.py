@@ -441,7 +441,7 @@ class FitResult:
             "level": level,
             "aliased": list(self.aliased),
             "notes": list(self.notes),
-            "interval": self.spec.interval,
+            "interval": self.spec.interval_used,
             "design": self.spec.design,
         }
         out.update(self.strata or {})  # a case-crossover: n_strata, n_strata_without_events, n_strata_single_day

@@ -257,6 +257,15 @@ class ModelSpec:
     overdispersion: bool = True
     residual_lags: int = 0
 
+    @property
+    def interval_used(self) -> str:
+        """The interval actually computed, for records and JSON: ``"hac"`` (Newey–West), ``"quasi-poisson"``
+        (covariance scaled by the dispersion), ``"poisson"`` (model-based, dispersion 1: ``family="poisson"`` or
+        ``overdispersion=False``) or ``"negative-binomial"`` (the negative binomial's model-based covariance)."""
+        if self.interval == "hac":
+            return "hac"
+        return {"poisson": "poisson", "negbin": "negative-binomial"}.get(self.family, "quasi-poisson")
+
     def __post_init__(self) -> None:
         for name in ("outcome", "exposure", "date"):
             if not isinstance(getattr(self, name), str) or not getattr(self, name):

@@ -44,6 +44,7 @@ from ..model.engine.grid import ConfounderFit, fit_confounders
 from ..model.engine.grid_inference import ExposureFit, exposure_block, fit_exposure_only
 from ..model.engine.irls import GLMFit
 from ..model.fitting import fit_design, fitted_result, warn_if_suspicious
+from ..model.group_effects import require_one_effect
 from ..model.result import SUMMARY_COLUMNS, FitResult
 from ..model.spec import Interval, ModelSpec
 from ._rows import restrict_to_days
@@ -92,20 +93,21 @@ class _Grid:
         return _restrict(self.originals[i], self.keep)
 
 
-def _check_lags(lags: Sequence[Any]) -> None:
+def _check_lags(lags: Sequence[Any], model_options: dict[str, Any]) -> None:
+    if "lag" in model_options:
+        raise SpecificationError(
+            f"compare takes its lag structures as lags=[...], not lag={model_options['lag']!r}: e.g. "
+            "lags=['0', '0-1', 'dl0-5']."
+        )
     if isinstance(lags, str) or not lags:
         raise SpecificationError("compare needs a list of lag structures, e.g. lags=['0', '1', '0-1', 'dl0-5'].")
 
 
 def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any], common_days: bool) -> _Grid:
     """Validate once, build (and so check) every structure's design as a single fit would."""
-    _check_lags(lags)
+    _check_lags(lags, model_options)
     specs = [ModelSpec.from_options(lag=lag, **model_options) for lag in lags]
-    if specs[0].modifier is not None:  # one effect per group, not per structure (model/group_effects.py)
-        raise SpecificationError(
-            f"compare reports one effect per lag structure, but modifier={specs[0].modifier!r} gives one per "
-            "group: fit each lag with airhealth.fit(..., modifier=...) and read effects_by_group()."
-        )
+    require_one_effect(specs[0].modifier, "compare")
     frame = _frame(data, specs)
     grid = _grid(frame, specs)
     if common_days:
@@ -224,7 +226,7 @@ def _row(spec: ModelSpec, fit: ExposureFit, design: Design, per: float, level: f
         "unit": spec.unit, "coef": e.coef, "se": e.se, "rr": e.rr, "rr_low": e.rr_low, "rr_high": e.rr_high,
         "percent_change": e.percent_change, "p_value": e.p_value, "dispersion": float(fit.dispersion),
         "n_params": int(fit.n_params), "loglik": float(fit.loglik), "qaic": float(fit.qaic),
-        "n_days": int(design.used.sum()), "interval": spec.interval,
+        "n_days": int(design.used.sum()), "interval": spec.interval_used,
     }  # fmt: skip
 
 
@@ -365,10 +367,11 @@ def compare(
     Burnham KP, Anderson DR (2002). *Model Selection and Multimodel Inference*, 2nd ed. Springer,
     section 6.2 (QAIC with one variance-inflation factor from the most general model).
     """
-    _check_lags(lags)
+    _check_lags(lags, model_options)
     dfs = _df_values(trend_df_per_year, model_options)
     options = {**model_options, "interval": interval}
     groups = [[ModelSpec.from_options(lag=lag, trend_df_per_year=df, **options) for lag in lags] for df in dfs]
+    require_one_effect(groups[0][0].modifier, "compare")
     _check_distinct([s.lag.label for s in groups[0]], "lag", "lags")
     frame = _frame(data, groups[0])
     label = "lag structures" if len(dfs) == 1 else "models"

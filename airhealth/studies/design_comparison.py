@@ -39,11 +39,25 @@ DESIGN_COLUMNS = (
 )  # fmt: skip
 
 
+def _lags_given(lags: Sequence[Any] | None, model_options: dict[str, Any]) -> list[Any]:
+    """``lags``, or the one ``lag=`` among the options (taken out of them), or the default ``["0-1"]``."""
+    if "lag" in model_options:
+        if lags is not None:
+            raise SpecificationError(
+                f"compare_designs got both lag={model_options['lag']!r} and lags={lags!r}: give one lag as lag=... "
+                "or several as lags=[...], not both."
+            )
+        lags = [model_options.pop("lag")]
+    if lags is None:
+        return ["0-1"]
+    return [lags] if isinstance(lags, str) else list(lags)
+
+
 def compare_designs(
     data: pd.DataFrame,
     outcome: str,
     exposure: str,
-    lags: Sequence[Any] = ("0-1",),
+    lags: Sequence[Any] | None = None,
     per: float = 10.0,
     level: float = 0.95,
     show_progress: bool = False,
@@ -58,7 +72,8 @@ def compare_designs(
     outcome, exposure : str
         Columns of daily counts and of the daily pollutant level.
     lags : sequence
-        Lag structures, e.g. ``["0", "0-1", "dl0-5"]`` (default ``["0-1"]``).
+        Lag structures, e.g. ``["0", "0-1", "dl0-5"]`` (default ``["0-1"]``). One lag may be given as
+        ``lag="0-1"`` instead (not both).
     per : float
         Exposure increase for the relative risks (default 10).
     level : float
@@ -86,8 +101,7 @@ def compare_designs(
     """
     if "design" in model_options:
         raise SpecificationError("compare_designs fits both designs: remove the design option.")
-    if isinstance(lags, str):
-        lags = [lags]
+    lags = _lags_given(lags, model_options)
     common = dict(outcome=outcome, exposure=exposure, show_progress=show_progress)
     strata_options = {k: v for k, v in model_options.items() if k not in TIME_SERIES_ONLY}
     fits = {

@@ -45,6 +45,7 @@ from .._warn import warn_user
 from ..errors import AirhealthError, DataWarning, SpecificationError
 from ..model.design import model_frame
 from ..model.fitting import fit_spec
+from ..model.group_effects import require_one_effect
 from ..model.result import FitResult
 from ..model.spec import ModelSpec
 from ..prep.align import restrict_period
@@ -340,6 +341,10 @@ def sensitivity(
     """
     options = {"outcome": outcome, "exposure": exposure, "lag": lag, **model_options}
     spec = ModelSpec.from_options(**options)
+    require_one_effect(spec.modifier, "sensitivity")
+    if checks is not None and "modifier" in checks:
+        for value in _as_values("modifier", checks["modifier"]):
+            require_one_effect(value, "sensitivity")
     if getattr(spec.lag, "is_nonlinear", False):
         raise SpecificationError(
             f"sensitivity compares one relative risk per setting, and lag {spec.lag.label!r} is a non-linear "

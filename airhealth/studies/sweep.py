@@ -32,6 +32,7 @@ from .._threads import design_threads, fitting_threads
 from ..errors import AirhealthError, SpecificationError
 from ..model.design import build_confounders, build_design, model_frame
 from ..model.fitting import fit_with_residual_lags, result_from_fit, warn_if_suspicious
+from ..model.group_effects import require_one_effect
 from ..model.result import FitResult
 from ..model.spec import ModelSpec
 from .compare import COMPARE_COLUMNS
@@ -149,6 +150,8 @@ def sweep(
     >>> list(table["trend_df_per_year"])
     [4, 7, 10]
     """
+    for spec in _checked_specs(option, values, model_options):
+        require_one_effect(spec.modifier, "sweep")
     columns = [option, *COMPARE_COLUMNS] + (["error"] if on_error == "keep" else [])
     rows = []
     for value, outcome in sweep_results(data, option, values, on_error, show_progress, **model_options):

@@ -105,6 +105,41 @@ def interact(exposure: np.ndarray, codes: np.ndarray, n_levels: int) -> np.ndarr
     return out
 
 
+def absorbed_main_effects(
+    matrix: np.ndarray, names: tuple[str, ...], main_effects: tuple[str, ...], strata: np.ndarray
+) -> tuple[np.ndarray, str | None]:
+    """Columns of the modifier's main effects that the case-crossover strata absorb, and a note (None if none).
+
+    ``matrix`` holds the design columns ``names`` on the days used and ``strata`` the stratum of each such day.
+    A main-effect column constant within every stratum (a season of calendar months in year × month × day of
+    week strata) is a combination of the stratum intercepts: it is left out, as R's ``glm`` reports such a
+    coefficient NA; the exposure × modifier columns stay. The criterion is that of the engine's check
+    (:func:`airhealth.model.engine.strata.within_strata`): within-stratum sum of squares below ``RANK_TOL`` of
+    the total.
+    """
+    from ..engine.checks import RANK_TOL
+
+    index = [j for j, name in enumerate(names) if name in main_effects]
+    if not index:
+        return np.array([], dtype=int), None
+    counts = np.bincount(strata).astype(float)
+    safe = np.where(counts > 0, counts, 1.0)
+    absorbed = []
+    for j in index:
+        x = matrix[:, j]
+        within = x - (np.bincount(strata, weights=x) / safe)[strata]
+        if float(within @ within) <= RANK_TOL * float(x @ x):
+            absorbed.append(j)
+    if not absorbed:
+        return np.array([], dtype=int), None
+    shown = ", ".join(repr(names[j]) for j in absorbed)
+    note = (
+        f"the modifier's main effect {shown} is constant within every case-crossover stratum, so the stratum "
+        "intercepts hold it: it is left out (aliased, as R's glm reports NA); the exposure effect per group stays."
+    )
+    return np.asarray(absorbed, dtype=int), note
+
+
 def group_column_names(names: list[str], modifier: str, levels: tuple) -> list[str]:
     """Coefficient names of the per-level exposure columns, e.g. ``pm25[0-1]:season=warm``."""
     return [f"{name}:{modifier}={level}" for level in levels for name in names]
