@@ -8,7 +8,6 @@ format must hold exactly the text that the formatting rules give for the numbers
 from __future__ import annotations
 
 import html
-
 import re
 import shutil
 import subprocess

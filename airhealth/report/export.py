@@ -34,9 +34,18 @@ NO_ROWS = "This table has no rows: nothing met its conditions."
 WRAP_AT = 32  # characters: text columns with longer cells wrap (LaTeX p-columns, HTML max-width)
 
 _LATEX_SPECIAL = {
-    "\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
-    "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}",
-    "<": r"\textless{}", ">": r"\textgreater{}",
+    "\\": r"\textbackslash{}",
+    "&": r"\&",
+    "%": r"\%",
+    "$": r"\$",
+    "#": r"\#",
+    "_": r"\_",
+    "{": r"\{",
+    "}": r"\}",
+    "~": r"\textasciitilde{}",
+    "^": r"\textasciicircum{}",
+    "<": r"\textless{}",
+    ">": r"\textgreater{}",
 }  # fmt: skip  (< and > as commands: in the default OT1 font encoding the bare characters print as ¡ and ¿)
 
 
