@@ -141,3 +141,44 @@ def test_the_single_pool_panel_is_named_for_what_was_pooled(pooled):
     forest = next(b for b in section.blocks if getattr(b, "name", "") == "forest_cities").figure.axes[0]
     assert forest.get_title() == "all cities, RR per 10 ppb"
     assert "units" not in forest.get_xlabel() and forest.get_xlabel() == "relative risk per 10 ppb (log scale)"
+
+
+# --- captions name columns by the user's labels ------------------------------------------------------------
+
+LABELS = {"deaths_all": "All-cause deaths", "pm25": "PM2.5"}
+
+
+@pytest.fixture(scope="module")
+def sample() -> pd.DataFrame:
+    return airhealth.load_sample()
+
+
+def test_observed_fitted_caption_and_axes_use_the_labels(sample):
+    from airhealth.report.plots import observed_fitted_figure
+
+    result = airhealth.fit(sample, "deaths_all", "pm25", temperature="temperature")
+    figure = observed_fitted_figure(result, labels=LABELS)
+    assert figure.title == "Observed and fitted daily All-cause deaths (PM2.5, lag 0-1)"
+    ax = figure.figure.axes[0]
+    assert ax.get_title() == "All-cause deaths: observed and fitted" and "deaths_all" not in ax.get_ylabel()
+
+
+def test_exposure_series_captions_use_the_labels(sample):
+    from airhealth.report.data_quality_section import data_quality_section
+
+    section = data_quality_section(sample, ["pm25", "deaths_all"], exposures=["pm25", "deaths_all"],
+                                   count_columns=["deaths_all"], suppress_below=5, labels=LABELS)  # fmt: skip
+    titles = [b.title for b in section.blocks if hasattr(b, "figure")]
+    assert titles[:3] == ["PM2.5 over time", "PM2.5 by month", "All-cause deaths over time"]
+
+
+def test_lag_structure_titles_use_the_labels_and_the_unit(sample):
+    from airhealth.report.lag_section import lag_structure_section
+
+    section = lag_structure_section(
+        sample, "deaths_all", "pm25", single_lags=["0"], distributed=["dl0-2"], labels=LABELS, unit="µg/m³"
+    )
+    titles = [b.title for b in section.blocks if hasattr(b, "title")]
+    assert "All-cause deaths and PM2.5: relative risk per 10 µg/m³ by lag structure" in titles
+    assert "Per-lag effects of the distributed lags of PM2.5 on All-cause deaths (RR per 10 µg/m³)" in titles
+    assert not any("units" in t for t in titles)
