@@ -7,6 +7,8 @@ journal practice, no source); the fixed-form τ² is checked against numpy's own
 
 from __future__ import annotations
 
+from html import escape as html_escape
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -182,3 +184,20 @@ def test_lag_structure_titles_use_the_labels_and_the_unit(sample):
     assert "All-cause deaths and PM2.5: relative risk per 10 µg/m³ by lag structure" in titles
     assert "Per-lag effects of the distributed lags of PM2.5 on All-cause deaths (RR per 10 µg/m³)" in titles
     assert not any("units" in t for t in titles)
+
+
+# --- Diagnostics in a notebook ------------------------------------------------------------------------------
+
+
+def test_diagnostics_display_as_html_with_verdict_dispersion_and_top_autocorrelations(sample):
+    data = sample.rename(columns={"deaths_all": "<b>deaths</b>"})
+    diag = airhealth.diagnose(airhealth.fit(data, "<b>deaths</b>", "pm25", temperature="temperature"), max_lag=10)
+    page = diag._repr_html_()
+    assert "<b>deaths</b>" not in page and "&lt;b&gt;deaths&lt;/b&gt;" in page  # user text escaped
+    assert f"dispersion {diag.dispersion:.2f} (Pearson χ² / residual df)" in page
+    for finding in diag.verdict["finding"]:
+        assert html_escape(finding, quote=False) in page  # pandas escapes & < >, not quotes
+    acf = diag.autocorrelation
+    top = acf.loc[acf["lag"] > 0].assign(size=lambda t: t["acf"].abs()).nlargest(3, "size")  # independent pick
+    for lag, value in zip(top["lag"], top["acf"], strict=True):
+        assert f"<td>{int(lag)}</td>\n      <td>{value:.3f}</td>" in page
