@@ -74,9 +74,9 @@ def test_out_writes_breakdown_tables_with_small_counts_hidden(sample_csv: Path, 
     hidden = (monthly.set_index("period")["cases"] == SUPPRESSED).reindex(has_small.index)
     assert hidden.equals(has_small) and has_small.any()
     assert (monthly.loc[monthly["cases"] == SUPPRESSED, "fraction"] == SUPPRESSED).all()
-    small = pd.to_numeric(monthly["attributable"], errors="coerce")
-    assert not ((small > 0) & (small < 10)).any()
-    assert (monthly["attributable"] == "<10").any()
+    # attributable numbers are model estimates, not counts: each printed with its interval, never "<10"
+    for column in ("attributable", "attributable_low", "attributable_high"):
+        assert pd.to_numeric(monthly[column], errors="coerce").notna().all(), column
     assert "causal" in (out / "CAUTION.txt").read_text()
 
 
@@ -124,16 +124,35 @@ def test_section_hides_small_counts_and_the_fractions_that_would_reveal_them() -
     assert suppressed_burden_table(result, "month", None).equals(result.table("month"))
 
 
-def test_monthly_figure_falls_back_to_years_then_nothing_when_estimates_are_small() -> None:
+def test_monthly_figure_draws_every_month_since_estimates_are_not_counts() -> None:
     result = _respiratory_burden()
     ax = plot_burden_by_month(result)
     assert len(ax.patches) == len(result.table("year_month"))  # one bar per month
     assert "per month" in ax.get_ylabel() and "µg/m³" in ax.get_title()
-    hidden = plot_burden_by_month(result, suppress_below=10_000)
-    assert len(hidden.patches) == 0 and "left out" in hidden.texts[0].get_text()
+    high = plot_burden_by_month(result, suppress_below=10_000)
+    assert len(high.patches) == len(result.table("year_month")) and not high.texts
     section = burden_section(result, suppress_below=10_000)
     figure = next(b for b in section.blocks if isinstance(b, Figure))
-    assert "yearly estimates are below 10000" in figure.note
+    assert figure.note is None
+
+
+def test_burden_tables_show_each_estimate_with_its_interval_and_hide_fractions_with_their_cases() -> None:
+    result = _respiratory_burden()
+    estimates = ["attributable", "attributable_low", "attributable_high"]
+    fractions = ["fraction", "fraction_low", "fraction_high"]
+    for threshold in (10, 20_000):
+        table = suppressed_burden_table(result, "year", threshold)
+        raw = result.table("year")
+        # estimates and their bounds: the model's numbers, unchanged, never "<threshold"
+        pd.testing.assert_frame_equal(table[estimates].astype(float), raw[estimates].astype(float))
+        hidden = table["cases"] == SUPPRESSED
+        assert hidden.all()  # every year has a day with fewer than 10 admissions
+        assert (table.loc[hidden, fractions] == SUPPRESSED).all().all()  # cases = AN / AF would be recoverable
+    section = burden_section(result, suppress_below=20_000)
+    total = next(b for b in section.blocks if isinstance(b, Table) and b.name == "burden_total").frame
+    assert total["attributable"].iloc[0] == pytest.approx(result.attributable)
+    assert total["attributable_low"].iloc[0] == pytest.approx(result.to_dict()["attributable_low"])
+    assert (total[["cases", *fractions]] == SUPPRESSED).all().all()
 
 
 def test_plot_draws_on_the_given_axes() -> None:

@@ -21,9 +21,11 @@ from airhealth.errors import DataError
 from airhealth.report.cities_section import cities_section
 from airhealth.report.document import Figure, Table, Text
 from airhealth.report.forest_plot import forest_figure, plot_forest, pooled_forest_table, pooled_summary
+from airhealth.report.numbers import format_p
 from airhealth.report.pooled_lag_plot import plot_pooled_lag_curve, pooled_lag_curve
 
 Z95 = stats.norm.ppf(0.975)
+XLABEL = "relative risk per 10 µg/m³ (log scale)"
 
 
 @pytest.fixture(scope="module")
@@ -46,7 +48,9 @@ def _right_texts(ax) -> dict[float, list[str]]:
 
 def test_fixed_effect_forest_matches_the_inverse_variance_formulas(estimates: pd.DataFrame) -> None:
     pooled = airhealth.pool(estimates, method="fixed", per=10)
-    ax = plot_forest(pooled_forest_table(pooled), pooled=pooled_summary(pooled), labels={"city_3": "Third city"})
+    ax = plot_forest(
+        pooled_forest_table(pooled), pooled=pooled_summary(pooled), xlabel=XLABEL, labels={"city_3": "Third city"}
+    )
     w = 1 / estimates["se"].to_numpy() ** 2
     mean = float(np.sum(w * estimates["coef"]) / w.sum())
     se = float(1 / np.sqrt(w.sum()))
@@ -79,10 +83,13 @@ def test_fixed_effect_forest_matches_the_inverse_variance_formulas(estimates: pd
 def test_the_heterogeneity_line_and_prediction_interval_come_from_the_pool(estimates: pd.DataFrame) -> None:
     pooled = airhealth.pool(estimates, method="dl", per=10)
     d = pooled.to_dict()
-    ax = plot_forest(pooled_forest_table(pooled), pooled=pooled_summary(pooled))
+    ax = plot_forest(pooled_forest_table(pooled), pooled=pooled_summary(pooled), xlabel=XLABEL)
     line = [t.get_text() for t in ax.texts if t.get_text().startswith("Heterogeneity")]
-    q_p = "<0.001" if d["q_p"] < 0.001 else f"{d['q_p']:.3f}"
-    assert line == [f"Heterogeneity: I² = {d['i2']:.1f}%, τ² = {d['tau2']:.3g}, Cochran's Q p = {q_p}"]
+    q_p = "<0.001" if d["q_p"] < 0.001 else format_p(d["q_p"])  # format_p is checked in test_number_formatting
+    # τ² in fixed form, 3 significant digits (numpy's positional formatter, trailing zeros trimmed): no "e-07"
+    tau2 = np.format_float_positional(d["tau2"], precision=3, unique=False, fractional=False, trim="-")
+    assert line == [f"Heterogeneity: I² = {d['i2']:.1f}%, τ² = {tau2}, Cochran's Q p = {q_p}"]
+    assert "e-" not in line[0]
     bar = next(c for c in ax.collections if c.get_linewidth()[0] == 3.0)
     np.testing.assert_allclose(sorted(bar.get_segments()[0][:, 0]), [d["rr_pi_low"], d["rr_pi_high"]], rtol=1e-12)
     assert d["rr_pi_low"] <= d["rr_low"] and d["rr_pi_high"] >= d["rr_high"]
@@ -187,7 +194,7 @@ def test_awkward_labels_are_drawn_as_written(estimates: pd.DataFrame) -> None:
         "city_1": "Ħ" + "very long city name " * 8,
     }
     pooled = airhealth.pool(estimates, per=10)
-    ax = plot_forest(pooled_forest_table(pooled), pooled=pooled_summary(pooled), labels=awkward)
+    ax = plot_forest(pooled_forest_table(pooled), pooled=pooled_summary(pooled), xlabel=XLABEL, labels=awkward)
     ax.figure.savefig(io.BytesIO(), format="png")  # a "$x$" read as mathematics would fail or change here
     names = [t.get_text() for t in ax.get_yticklabels()]
     assert "São Paulo <&> 100% a_b \\$x\\$" in names

@@ -49,7 +49,7 @@ def test_group_section_shows_each_level_and_the_test(grouped):
     table = next(b for b in section.blocks if isinstance(b, Table))
     assert table.frame["season"].tolist() == ["<b>warm</b>", "cold"]  # levels sorted as text: "<" before "c"
     p = grouped.modification_test()["p_value"]
-    assert f"p = {p:.3g}" in table.note
+    assert f"p = {p:.2g}" in table.note  # two significant digits: the report rule (numbers.format_p)
 
 
 def test_sections_are_written_escaped(copoll_table, grouped, tmp_path):

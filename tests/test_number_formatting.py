@@ -35,8 +35,8 @@ from airhealth.report.tables import format_effects
         (0.99, 1.17, 2),  # width 0.18
         (0.9991, 1.0009, 4),  # width 0.0018
         (0.5, 3.5, 2),  # wide intervals keep at least 2 decimals
-        (0.99999, 1.00001, 4),  # very narrow ones at most 4
-        (1.0, 1.0, 4),  # zero width: the most decimals
+        (0.99999, 1.00001, 6),  # very narrow ones get up to 6, so the bounds still differ in print
+        (1.0, 1.0, 6),  # zero width: the most decimals
     ],
 )
 def test_rr_decimals_follow_the_interval_width(low, high, decimals):

@@ -55,13 +55,13 @@ def test_labels_are_shown_in_tables_page_and_figures_while_the_data_keep_the_nam
     full = pd.read_csv(report / "tables" / "effects_full.csv")
     assert set(full["outcome"]) == {"deaths_all"} and set(full["exposure"]) == {"pm25", "o3"}
     md = (report / "tables" / "effects.md").read_text(encoding="utf-8")
-    assert "| All-cause deaths \\<all> & 100% | Ozone (8-h) |" in md  # "<" backslash-escaped in Markdown
+    assert "| All-cause deaths \\<all> &amp; 100% | Ozone (8-h) |" in md  # "<" backslash-escaped, "&" an entity
     page = html.unescape((report / "index.html").read_text(encoding="utf-8"))
     assert "All-cause deaths <all> & 100%: relative risks per" in page  # the forest figure's caption
     raw = (report / "index.html").read_text(encoding="utf-8")
     assert "All-cause deaths &lt;all&gt; &amp; 100%" in raw and "<all>" not in raw
     tex = (report / "tables" / "effects.tex").read_text(encoding="utf-8")
-    assert r"All-cause deaths <all> \& 100\%" in tex
+    assert r"All-cause deaths \textless{}all\textgreater{} \& 100\%" in tex  # no bare < > (OT1: ¡ ¿)
 
 
 def test_units_and_per_iqr_estimates_stand_beside_the_per_10_estimates(report: Path, city: pd.DataFrame) -> None:
@@ -92,7 +92,7 @@ def test_suppressed_counts_read_the_same_in_every_format(report: Path) -> None:
     assert counts["min"].iloc[0] == "<20" == row["Minimum"]  # the fewest simulated daily deaths is 15
     assert row["Outcome"] == "All-cause deaths <all> & 100%"
     md = [line for line in (report / "tables" / "daily_counts.md").read_text("utf-8").splitlines() if "|" in line]
-    unescaped = [re.sub(r"\\(.)", r"\1", c.strip()) for c in md[2].split(" | ")]  # CommonMark escapes
+    unescaped = [html.unescape(re.sub(r"\\(.)", r"\1", c.strip())) for c in md[2].split(" | ")]  # CommonMark
     assert [unescaped[0].removeprefix("| "), *unescaped[1:-1], unescaped[-1].removesuffix(" |")] == [
         c.text for c in document.rows[1].cells
     ]

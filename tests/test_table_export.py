@@ -7,6 +7,7 @@ format must hold exactly the text that the formatting rules give for the numbers
 
 from __future__ import annotations
 
+import html
 import re
 import shutil
 import subprocess
@@ -49,6 +50,7 @@ def read_markdown(path: Path) -> list[list[str]]:
     rows = [line for line in path.read_text(encoding="utf-8").splitlines() if line.startswith("|")]
     cells = [[c.strip() for c in re.split(r"(?<!\\)\|", row)[1:-1]] for row in rows]
     cells = [[re.sub(r"\\(.)", r"\1", c) for c in row] for row in cells]  # CommonMark backslash escapes
+    cells = [[html.unescape(c) for c in row] for row in cells]  # CommonMark entity references (&amp;)
     return [cells[0], *cells[2:]]  # header, then the rows after the alignment line
 
 
@@ -84,6 +86,8 @@ _LATEX_UNESCAPE = [
     (re.compile(r"\\textbackslash(\{\}| )?"), "\\"),
     (re.compile(r"\\textasciitilde(\{\}| )?"), "~"),
     (re.compile(r"\\textasciicircum(\{\}| )?"), "^"),
+    (re.compile(r"\\textless(\{\}| )?"), "<"),
+    (re.compile(r"\\textgreater(\{\}| )?"), ">"),
     (re.compile(r"\\space ?"), " "),  # pandas writes a space after an escape word this way
     (re.compile(r"\\([%$#_&{}])"), r"\1"),
 ]
@@ -293,3 +297,22 @@ def test_dates_share_one_form_per_column_and_fractional_days_are_not_rounded(tmp
 def test_labels_that_give_two_columns_one_heading_are_refused(effects, tmp_path):
     with pytest.raises(SpecificationError, match="two columns headed 'Name'; give the columns different labels"):
         export_table(effects, tmp_path, formats="md", labels={"outcome": "Name", "exposure": "Name"})
+
+
+def test_markdown_writes_ampersands_as_entities_so_a_label_holding_one_shows_as_written(tmp_path):
+    # CommonMark reads "&amp;" as an entity reference: unescaped, the label "R&amp;D" would show as "R&D"
+    table = pd.DataFrame({"name": ["R&amp;D", "a & b"]})
+    text = export_table(table, tmp_path, formats="md")["md"].read_text(encoding="utf-8")
+    assert "| R&amp;amp;D |" in text and "| a &amp; b |" in text
+    assert read_markdown(tmp_path / "table.md")[1:] == [["R&amp;D"], ["a & b"]]
+
+
+def test_latex_writes_angle_brackets_as_commands_not_bare_characters(tmp_path):
+    # bare < and > print as inverted ! and ? in LaTeX's default OT1 font encoding
+    table = pd.DataFrame({"p <0.05": ["<0.001", "a > b"]})
+    text = export_table(table, tmp_path, formats="tex", caption="p <0.05")["tex"].read_text(encoding="utf-8")
+    body = text.split("\\begin{tabular}")[1]
+    assert "<" not in body and ">" not in body
+    assert r"\textless{}0.001" in body and r"a \textgreater{} b" in body and r"p \textless{}0.05" in body
+    assert r"\caption{p \textless{}0.05}" in text
+    assert read_latex(tmp_path / "table.tex") == [["p <0.05"], ["<0.001"], ["a > b"]]

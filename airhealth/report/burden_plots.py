@@ -8,7 +8,6 @@ from typing import Any
 import pandas as pd
 
 from .plots import new_axes, plain
-from .suppression import has_small
 
 __all__ = ["SIDE_WORDS", "burden_by_month_shown", "plot_burden_by_month"]
 
@@ -16,29 +15,22 @@ _BAR = "#5b8e7d"  # muted green bars
 _RANGE = "#2f3e46"  # dark slate interval lines
 #: How a burden's side reads in titles and sentences.
 SIDE_WORDS = {"above": "above", "below": "below", "both": "on either side of"}
-_ESTIMATES = ("attributable", "attributable_low", "attributable_high")
 
 
 def burden_by_month_shown(result: Any, suppress_below: int | None = None) -> tuple[str, pd.DataFrame, str]:
-    """What the monthly figure may draw under the small-count rule: ``("monthly" | "yearly" | "omitted",
-    table, note)``. Months are drawn only if no monthly estimate (or bound) lies from 1 to the threshold − 1,
-    else years under the same rule, else nothing (:mod:`airhealth.report.suppression`)."""
-    for resolution, by in (("monthly", "year_month"), ("yearly", "year")):
-        table = result.table(by)
-        if not has_small(table[list(_ESTIMATES)].to_numpy(), suppress_below):
-            note = (
-                "" if resolution == "monthly" else f"Shown by year: some monthly estimates are below {suppress_below}."
-            )
-            return resolution, table, note
-    note = f"Estimates are left out because some yearly estimates are below {suppress_below}."
-    return "omitted", result.table("year").iloc[:0], note
+    """What the monthly figure draws: ``("monthly", table, note)``.
+
+    Attributable numbers are model estimates, not counts (the rule of
+    :mod:`airhealth.report.burden_section`), so every month is drawn whatever ``suppress_below`` is; the
+    argument is accepted so that callers pass the report's threshold in one way everywhere.
+    """
+    return "monthly", result.table("year_month"), ""
 
 
 def plot_burden_by_month(result: Any, ax: Any = None, suppress_below: int | None = None) -> Any:
     """Attributable cases per calendar month (bars) with their Monte Carlo intervals (lines).
 
-    With ``suppress_below`` small estimates are not drawn: yearly totals instead, or nothing (see
-    :func:`burden_by_month_shown`).
+    Estimates are drawn whatever ``suppress_below`` is: they are not counts (:func:`burden_by_month_shown`).
     """
     ax = new_axes(ax, (9, 3.5))
     resolution, table, note = burden_by_month_shown(result, suppress_below)

@@ -1,10 +1,11 @@
 """The report section on attributable burden: totals, tables by period, the monthly figure and the caution.
 
-Small counts: the observed cases behind a row are a total of daily counts (``suppressed`` when the smallest
-positive daily count is below the threshold); attributable numbers and their bounds are treated as counts
-(shown as ``<threshold`` from 1 to threshold − 1); fractions are hidden wherever the cases or the attributable
-number of their row are, since either could be recovered from the fraction and the other
-(:mod:`airhealth.report.suppression`).
+Small counts, one rule: the observed cases behind a row are a total of daily counts, shown ``suppressed``
+when the smallest positive daily count is below the threshold (:mod:`airhealth.report.suppression`).
+Attributable numbers are model estimates, not counts of people, so they and their intervals are always
+shown together, never as ``<threshold`` (which hid an estimate but printed its lower bound beside it).
+The attributable fraction and its interval are hidden together wherever the row's cases are, since the
+cases could be recovered as attributable number / fraction.
 """
 
 from __future__ import annotations
@@ -15,7 +16,7 @@ import pandas as pd
 
 from .burden_plots import SIDE_WORDS, burden_by_month_shown, plot_burden_by_month
 from .document import Figure, Section, Table, Text
-from .suppression import SUPPRESSED, check_threshold, suppress_table
+from .suppression import check_threshold, suppress_table
 
 __all__ = ["BREAKDOWN_TITLES", "burden_section", "suppressed_burden_table"]
 
@@ -45,11 +46,7 @@ def suppressed_burden_table(result: Any, by: str, threshold: int | None) -> pd.D
     if threshold is None:
         return table
     smallest = result.smallest_counts(by)
-    out = suppress_table(table, threshold, counts=ESTIMATES, aggregates=("cases",), smallest=smallest)
-    hidden = (out["cases"] == SUPPRESSED) | (out["attributable"] == f"<{threshold}")
-    for col in FRACTIONS:
-        out[col] = out[col].astype(object).where(~hidden, SUPPRESSED)
-    return out
+    return suppress_table(table, threshold, aggregates=("cases", *FRACTIONS), smallest=smallest)
 
 
 def _intro(result: Any) -> str:
@@ -91,7 +88,6 @@ def _table_block(result: Any, by: str, threshold: int | None) -> Table:
         f"Attributable {result.outcome} {BREAKDOWN_TITLES[by]}",
         suppressed_burden_table(result, by, threshold),
         f"burden_{by}",
-        count_columns=ESTIMATES,
         aggregate_columns=("cases", *FRACTIONS),
         smallest_counts=result.smallest_counts(by),
     )
@@ -106,11 +102,11 @@ def burden_section(result: Any, suppress_below: int | None = None) -> Section:
     """
     threshold = check_threshold(suppress_below)
     total, smallest = _total_table(result)
-    shown = suppress_table(total, threshold, counts=ESTIMATES, aggregates=("cases", *FRACTIONS), smallest=smallest)
+    shown = suppress_table(total, threshold, aggregates=("cases", *FRACTIONS), smallest=smallest)
     blocks: list[Any] = [
         Text(_intro(result)),
         Text(result.caution),
-        Table(f"Attributable {result.outcome}: total", shown, "burden_total", count_columns=ESTIMATES),
+        Table(f"Attributable {result.outcome}: total", shown, "burden_total"),
     ]
     blocks += [_table_block(result, by, threshold) for by in ("year", "season", "month") if by in result.breakdowns()]
     if "city" in result.breakdowns():

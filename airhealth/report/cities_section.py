@@ -11,6 +11,7 @@ from typing import Any
 
 import pandas as pd
 
+from ..errors import SpecificationError
 from .document import Figure, Section, Table, Text
 from .forest_plot import forest_figure, pooled_forest_table, pooled_summary
 from .labels import display_name
@@ -62,9 +63,26 @@ def _lag_blocks(lag_pool: Any, basis: Any, lags: Any, per: float, unit: str, lev
     ]
 
 
+def _unit(pooled: Any, unit: str | None) -> str:
+    """The exposure unit: given, else the pooled result's, else an error naming the fix."""
+    unit = unit if unit is not None else getattr(pooled, "unit", None)
+    if unit is None:
+        raise SpecificationError(
+            "cities_section cannot tell the exposure unit: the pooled result carries none. "
+            "Pass unit, e.g. cities_section(pooled, unit='µg/m³')."
+        )
+    return str(unit)
+
+
+def _panel_name(pooled: Any, per: float, unit: str) -> str:
+    """A single pool's forest panel title: its outcome and exposure when known, else what the RR is per."""
+    named = [str(v) for v in (getattr(pooled, "outcome", None), getattr(pooled, "exposure", None)) if v]
+    return " and ".join(named) if named else f"all cities, RR per {per:g} {unit}"
+
+
 def cities_section(
     pooled: Any | Mapping[str, Any],
-    unit: str = "units",
+    unit: str | None = None,
     labels: Mapping[str, str] | None = None,
     lag_pool: Any = None,
     basis: Any = None,
@@ -77,9 +95,11 @@ def cities_section(
     ----------
     pooled : PooledEffect or mapping of name → PooledEffect
         From :func:`airhealth.pool`; a mapping (e.g. outcome → pool) gives one forest panel per entry, all
-        on one x-scale.
-    unit : str
-        Exposure unit for "per 10 µg/m³" labels.
+        on one x-scale. A single pool's panel is titled by its ``outcome``/``exposure`` when it carries
+        them, else "all cities, RR per 10 µg/m³".
+    unit : str, optional
+        Exposure unit for "per 10 µg/m³" labels; by default the pooled result's ``unit``. Required (an error
+        says so) when the pooled result carries none.
     labels : mapping, optional
         Display names of cities and panel names.
     lag_pool : MultivariatePooled, optional
@@ -87,9 +107,10 @@ def cities_section(
     basis, lags : optional
         The lag basis matrix and lag days of ``lag_pool`` (default: one coefficient per lag day 0, 1, ...).
     """
-    pools = dict(pooled) if isinstance(pooled, Mapping) else {"pooled": pooled}
-    first = next(iter(pools.values()))
+    first = next(iter(pooled.values())) if isinstance(pooled, Mapping) and pooled else pooled
+    unit = _unit(first, unit)
     per, level = first.per, first.level
+    pools = dict(pooled) if isinstance(pooled, Mapping) else {_panel_name(first, per, unit): pooled}
     blocks: list[Any] = [Text(_method_text(first, per, unit))]
     summary = pd.concat([_pooled_table(p, unit).assign(name=n) for n, p in pools.items()], ignore_index=True)
     summary = summary[["name", *[c for c in summary.columns if c != "name"]]]

@@ -135,7 +135,11 @@ def fit_notes(results: Sequence[Any]) -> list[Text]:
 
 
 def _main_blocks(
-    main: Any, replaced: str, small_count_threshold: int | None = None, results: Sequence[Any] = ()
+    main: Any,
+    replaced: str,
+    small_count_threshold: int | None = None,
+    results: Sequence[Any] = (),
+    labels: Labels | None = None,
 ) -> list[Any]:
     """The main model: which it is, its fit against the data, its dropped days; then the fits' notes.
 
@@ -153,7 +157,7 @@ def _main_blocks(
             )
         )
     blocks += [
-        observed_fitted_figure(main, small_count_threshold),
+        observed_fitted_figure(main, small_count_threshold, labels=labels),
         Table(
             "Days left out of the main model",
             main.drop_summary().rename_axis("reason").reset_index(),
@@ -164,7 +168,7 @@ def _main_blocks(
     return blocks
 
 
-def _lag_blocks(results: list[Any], per: float, level: float) -> list[Any]:
+def _lag_blocks(results: list[Any], per: float, level: float, labels: Labels | None = None) -> list[Any]:
     """Per-lag effects and lag-response figures of the distributed lags of the main outcome and exposure."""
     distributed = [r for r in results if r is not None and r.spec.lag.is_distributed]
     if not distributed:
@@ -172,7 +176,9 @@ def _lag_blocks(results: list[Any], per: float, level: float) -> list[Any]:
     frames = [r.lag_effects(per=per, level=level).assign(lag_structure=r.spec.lag.label) for r in distributed]
     table = pd.concat(frames, ignore_index=True)[["lag_structure", "lag", "coef", "se", "rr", "rr_low", "rr_high"]]
     spec = distributed[0].spec
-    title = f"Per-lag effects of the distributed lags of {spec.exposure} (RR per {per:g} {spec.unit})"
+    title = (
+        f"Per-lag effects of the distributed lags of {display_name(spec.exposure, labels)} (RR per {per:g} {spec.unit})"
+    )
     blocks: list[Any] = [Table(title, table, "lag_effects")]
     for r in distributed:
         ax = plot_lag_response(r, per=per, level=level)
@@ -259,10 +265,10 @@ def _sections(
         *_problem_sections(fits.failures, fits.warnings, request.outcomes, threshold),
         _count_section(data, outcomes),
         Section("Effect estimates", [*_effects_tables(table, per, level, request, labels), *_forest_figures(table, per, level, request, labels)]),  # noqa: E501
-        Section("Main model", [*_main_blocks(main, fits.main_note, threshold, done), *_lag_blocks(main_pair, per, level)]),  # noqa: E501
+        Section("Main model", [*_main_blocks(main, fits.main_note, threshold, done, labels), *_lag_blocks(main_pair, per, level, labels)]),  # noqa: E501
         data_quality_section(
             data, [*exposures, *weather], exposures=exposures, date=options.get("date", "date"),
-            units={e: request.unit_of(e) for e in exposures} | _weather_units(options),
+            units={e: request.unit_of(e) for e in exposures} | _weather_units(options), labels=labels,
         ),
     ]  # fmt: skip
 

@@ -20,6 +20,7 @@ from .exposure_plots import (
     plot_monitor_series,
     plot_seasonal_pattern,
 )
+from .labels import Labels, display_name
 from .suppression import counts_for_figure, smallest_positive, suppress_table
 
 __all__ = ["data_quality_section", "hourly_quality_section"]
@@ -36,6 +37,7 @@ def data_quality_section(
     count_columns: Sequence[str] = (),
     suppress_below: int | None = None,
     units: Mapping[str, str] | None = None,
+    labels: Labels | None = None,
 ) -> Section:
     """Table 1, correlation matrix, and time-series and seasonal plots of the daily data.
 
@@ -64,6 +66,8 @@ def data_quality_section(
         Disclosure threshold for the counts.
     units : mapping, optional
         Unit of some columns (e.g. ``{"o3": "ppb"}``): a ``unit`` column of Table 1 and the axis labels.
+    labels : mapping, optional
+        Display names of columns (e.g. ``{"pm25": "PM2.5"}``) for the figure captions and axis labels.
     """
     units = dict(units or {})
     describe = _suppressed_table_one(daily, columns, count_columns, suppress_below)
@@ -87,15 +91,16 @@ def data_quality_section(
     ]
     for column in exposures if exposures is not None else columns:
         if column in count_columns and suppress_below is not None:
-            blocks += _count_figures(daily, column, date, suppress_below)
+            blocks += _count_figures(daily, column, date, suppress_below, display_name(column, labels))
             continue
-        label = f"{column} ({units[column]})" if column in units else None
+        shown = display_name(column, labels)
+        label = f"{shown} ({units[column]})" if column in units else (shown if shown != column else None)
         series_ax = plot_exposure_series(daily, column, date=date, label=label)
-        blocks.append(Figure(f"{column} over time", series_ax.figure, name=f"series_{column}"))
+        blocks.append(Figure(f"{shown} over time", series_ax.figure, name=f"series_{column}"))
         season_ax = plot_seasonal_pattern(daily, column, date=date, label=label)
         blocks.append(
             Figure(
-                f"{column} by month",
+                f"{shown} by month",
                 season_ax.figure,
                 name=f"season_{column}",
                 note="Boxes: quartiles; whiskers: 5th and 95th percentiles; dots: monthly means.",
@@ -123,15 +128,15 @@ def _suppressed_table_one(
     )
 
 
-def _count_figures(daily: pd.DataFrame, column: str, date: str, threshold: int) -> list[Figure]:
+def _count_figures(daily: pd.DataFrame, column: str, date: str, threshold: int, shown: str) -> list[Figure]:
     """The series of a count column under the small-count rule; its by-month boxes only if no day is small."""
     ax = plot_count_series(daily, column, date=date, suppress_below=threshold)
     counts = pd.Series(pd.to_numeric(daily[column], errors="coerce").to_numpy(), index=pd.to_datetime(daily[date]))
-    shown = counts_for_figure(counts, threshold)
-    figures = [Figure(f"{column} over time", ax.figure, name=f"series_{column}", note=shown.note or None)]
-    if shown.resolution == "daily":
+    drawn = counts_for_figure(counts, threshold)
+    figures = [Figure(f"{shown} over time", ax.figure, name=f"series_{column}", note=drawn.note or None)]
+    if drawn.resolution == "daily":
         season_ax = plot_seasonal_pattern(daily, column, date=date)
-        figures.append(Figure(f"{column} by month", season_ax.figure, name=f"season_{column}"))
+        figures.append(Figure(f"{shown} by month", season_ax.figure, name=f"season_{column}"))
     return figures
 
 

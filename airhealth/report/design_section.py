@@ -20,6 +20,7 @@ import pandas as pd
 from ..errors import SpecificationError
 from ..studies.design_comparison import DESIGN_COLUMNS
 from .document import Section, Table, Text
+from .numbers import IntervalStyle, format_rr, rr_decimals
 
 __all__ = ["design_section", "designs_side_by_side"]
 
@@ -34,18 +35,24 @@ _INTRO = (
 )
 
 
-def _interval(row: pd.Series, digits: int) -> str:
-    return f"{row['rr']:.{digits}f} ({row['rr_low']:.{digits}f} to {row['rr_high']:.{digits}f})"
+def _interval(row: pd.Series, digits: int, style: IntervalStyle) -> str:
+    return format_rr(row["rr"], row["rr_low"], row["rr_high"], digits, style)
 
 
-def designs_side_by_side(table: pd.DataFrame, digits: int = 3) -> pd.DataFrame:
-    """One row per outcome, exposure and lag: each design's relative risk (CI) and days used, side by side."""
+def designs_side_by_side(table: pd.DataFrame, digits: int | None = None, style: IntervalStyle = "to") -> pd.DataFrame:
+    """One row per outcome, exposure and lag: each design's relative risk (CI) and days used, side by side.
+
+    ``digits=None`` applies the report's decimals rule (:func:`~airhealth.report.numbers.rr_decimals`) to
+    all rows and both designs at once, so the two columns line up; ``style`` is the interval style.
+    """
     missing = [c for c in DESIGN_COLUMNS if c not in table]
     if missing:
         raise SpecificationError(
             f"the design comparison table lacks the column(s) {', '.join(map(repr, missing))}; "
             "pass the table airhealth.compare_designs returns."
         )
+    if digits is None:
+        digits = rr_decimals(table["rr_low"], table["rr_high"])
     rows = []
     for (outcome, exposure, lag), group in table.groupby(["outcome", "exposure", "lag"], sort=False):
         by = {row["design"]: row for _, row in group.iterrows()}
@@ -53,8 +60,8 @@ def designs_side_by_side(table: pd.DataFrame, digits: int = 3) -> pd.DataFrame:
         rows.append({
             "outcome": outcome, "exposure": exposure, "lag": lag,
             f"time series: RR per {group['per'].iloc[0]:g} {group['unit'].iloc[0]} (CI)":
-                "" if ts is None else _interval(ts, digits),
-            "case-crossover: RR (CI)": "" if cc is None else _interval(cc, digits),
+                "" if ts is None else _interval(ts, digits, style),
+            "case-crossover: RR (CI)": "" if cc is None else _interval(cc, digits, style),
             "time series: days": "" if ts is None else int(ts["n_days"]),
             "case-crossover: days": "" if cc is None else int(cc["n_days"]),
             "case-crossover: strata": "" if cc is None else int(cc["n_strata"]),
@@ -62,9 +69,14 @@ def designs_side_by_side(table: pd.DataFrame, digits: int = 3) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-def design_section(table: pd.DataFrame, title: str = "Time series and case-crossover", digits: int = 3) -> Section:
+def design_section(
+    table: pd.DataFrame,
+    title: str = "Time series and case-crossover",
+    digits: int | None = None,
+    style: IntervalStyle = "to",
+) -> Section:
     """A report section of the design comparison (``table`` from :func:`airhealth.compare_designs`)."""
-    shown = designs_side_by_side(table, digits=digits)
+    shown = designs_side_by_side(table, digits=digits, style=style)
     return Section(
         title,
         [

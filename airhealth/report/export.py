@@ -34,13 +34,23 @@ NO_ROWS = "This table has no rows: nothing met its conditions."
 WRAP_AT = 32  # characters: text columns with longer cells wrap (LaTeX p-columns, HTML max-width)
 
 _LATEX_SPECIAL = {
-    "\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
-    "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}",
-}  # fmt: skip
+    "\\": r"\textbackslash{}",
+    "&": r"\&",
+    "%": r"\%",
+    "$": r"\$",
+    "#": r"\#",
+    "_": r"\_",
+    "{": r"\{",
+    "}": r"\}",
+    "~": r"\textasciitilde{}",
+    "^": r"\textasciicircum{}",
+    "<": r"\textless{}",
+    ">": r"\textgreater{}",
+}  # fmt: skip  (< and > as commands: in the default OT1 font encoding the bare characters print as ¡ and ¿)
 
 
 def latex_escape(text: object) -> str:
-    r"""``text`` safe inside LaTeX: ``\ & % $ # _ { } ~ ^`` escaped (captions and notes; cells use Styler's)."""
+    r"""``text`` safe inside LaTeX: ``\ & % $ # _ { } ~ ^ < >`` escaped (captions, notes, cells, headings)."""
     return "".join(_LATEX_SPECIAL.get(ch, ch) for ch in str(text))
 
 
@@ -62,9 +72,11 @@ _MARKDOWN_SPECIAL = re.compile(r"([\\|<*_`\[\]])")
 
 
 def _markdown_cell(text: object) -> str:
-    """One line of Markdown text: line breaks joined, and ``\\ | < * _ ` [ ]`` backslash-escaped so that a
-    cell can neither end its column nor become markup (CommonMark: any ASCII punctuation may be escaped)."""
-    return _MARKDOWN_SPECIAL.sub(r"\\\1", " ".join(str(text).split()))
+    """One line of Markdown text: line breaks joined, ``&`` written ``&amp;`` (else a label holding
+    ``&amp;`` would show as ``&``: CommonMark reads entity references), and ``\\ | < * _ ` [ ]``
+    backslash-escaped so that a cell can neither end its column nor become markup (CommonMark: any ASCII
+    punctuation may be escaped)."""
+    return _MARKDOWN_SPECIAL.sub(r"\\\1", " ".join(str(text).split()).replace("&", "&amp;"))
 
 
 def _markdown(shown: pd.DataFrame, caption: str, notes: Sequence[str]) -> str:
@@ -78,6 +90,10 @@ def _markdown(shown: pd.DataFrame, caption: str, notes: Sequence[str]) -> str:
 
 
 def _styler(shown: pd.DataFrame, escape: Literal["html", "latex"]) -> pd.io.formats.style.Styler:
+    if escape == "latex":  # our own escaping, which also covers < and > (pandas' leaves them bare)
+        shown = shown.map(lambda v: latex_escape(v) if isinstance(v, str) else v)
+        shown.columns = [latex_escape(c) for c in shown.columns]
+        return shown.style.hide(axis="index").set_uuid("airhealth")
     styler = shown.style.hide(axis="index").format(escape=escape).format_index(escape=escape, axis=1)
     return styler.set_uuid("airhealth")
 

@@ -27,9 +27,10 @@ import pandas as pd
 from matplotlib.patches import Polygon
 from matplotlib.ticker import FuncFormatter, MaxNLocator, NullFormatter
 
-from ..errors import DataError
+from ..errors import DataError, SpecificationError
 from ..model.effects import normal_quantile
 from .labels import display_name
+from .numbers import format_coef, format_decimal, format_p, format_rr, rr_decimals
 from .plots import plain
 from .style import (
     ESTIMATE,
@@ -59,10 +60,13 @@ def rr_rows(table: pd.DataFrame, estimate: str = "coef", se: str = "se", per: fl
 
 def pooled_forest_table(pooled: Any) -> pd.DataFrame:
     """City rows of a :class:`~airhealth.cities.pooled_result.PooledEffect`: ``city``, ``rr``, ``rr_low``,
-    ``rr_high`` (from each city's own estimate and SE) and ``weight_percent`` (its weight in the pool)."""
+    ``rr_high`` (from each city's own estimate and SE), ``weight_percent`` (its weight in the pool), ``per``
+    and, when the pooled result carries one, the exposure ``unit`` (for the axis label)."""
     cities = pooled.blup()
     rows = rr_rows(cities, estimate="estimate", se="se", per=pooled.per, level=pooled.level)
-    return rows[["city", "rr", "rr_low", "rr_high", "weight_percent"]]
+    rows = rows[["city", "rr", "rr_low", "rr_high", "weight_percent"]].assign(per=pooled.per)
+    unit = getattr(pooled, "unit", None)
+    return rows if unit is None else rows.assign(unit=unit)
 
 
 def pooled_summary(pooled: Any) -> dict[str, Any]:
@@ -88,16 +92,25 @@ def rr_limits(*tables: pd.DataFrame, pooled: Sequence[Mapping[str, Any]] = ()) -
 
 
 def _decimals(low: Any, high: Any) -> int:
-    """Decimals of a panel's printed RRs: three, or more when its narrowest interval is below 0.01 wide."""
-    widths = np.abs(np.asarray(high, dtype=float) - np.asarray(low, dtype=float))
-    widths = widths[np.isfinite(widths) & (widths > 0)]
-    width = float(widths.min()) if widths.size else 1.0
-    return 3 if width >= 0.01 else min(6, 1 + int(np.ceil(-np.log10(width))))
+    """Decimals of a panel's printed RRs: the report's one rule (:func:`~airhealth.report.numbers.rr_decimals`)."""
+    return rr_decimals(low, high)
 
 
-def _rr_text(rr: float, low: float, high: float, decimals: int = 3) -> str:
-    """'1.012 (1.003 to 1.021)'."""
-    return f"{rr:.{decimals}f} ({low:.{decimals}f} to {high:.{decimals}f})"
+def _rr_text(rr: float, low: float, high: float, decimals: int) -> str:
+    """'1.012 (1.003 to 1.021)', through :func:`~airhealth.report.numbers.format_rr`."""
+    return format_rr(rr, low, high, decimals)
+
+
+def _default_xlabel(table: pd.DataFrame) -> str:
+    """The x-axis label from the table's ``per`` and ``unit`` columns (:func:`pooled_forest_table` adds them)."""
+    unit = table["unit"].dropna() if "unit" in table.columns else pd.Series(dtype=object)
+    if unit.empty:
+        raise SpecificationError(
+            "plot_forest cannot tell the exposure unit: the table has no 'unit' column (the pooled result "
+            "carries none). Pass xlabel, e.g. xlabel='relative risk per 10 µg/m³ (log scale)'."
+        )
+    per = float(table["per"].iloc[0]) if "per" in table.columns else 10.0
+    return f"relative risk per {per:g} {unit.iloc[0]} (log scale)"
 
 
 def _log_axis(ax: Any, limits: tuple[float, float]) -> None:
@@ -155,7 +168,7 @@ def plot_forest(
     weight: str | None = "weight_percent",
     pooled: Mapping[str, Any] | None = None,
     labels: Mapping[str, str] | None = None,
-    xlabel: str = "relative risk per 10 units (log scale)",
+    xlabel: str | None = None,
     limits: tuple[float, float] | None = None,
     level: float = 0.95,
     ax: Any = None,
@@ -179,6 +192,9 @@ def plot_forest(
         :func:`pooled_summary`.
     labels : mapping, optional
         Display names of row labels, e.g. ``{"deaths_all": "All-cause deaths"}``.
+    xlabel : str, optional
+        The x-axis label; by default "relative risk per 10 µg/m³ (log scale)" from the table's ``per`` and
+        ``unit`` columns (an error names the fix when the table has no unit).
     limits : (float, float), optional
         The x-range; :func:`forest_figure` gives every panel the same one (:func:`rr_limits`).
     title : str, optional
@@ -191,6 +207,7 @@ def plot_forest(
     rows = _sorted_rows(table, label, weight)
     if rows.empty:
         return nothing_to_plot(ax, "nothing to plot: no row has a finite estimate")
+    xlabel = _default_xlabel(table) if xlabel is None else xlabel
     n = len(rows)
     y = np.arange(n, dtype=float) + (3 if pooled else 0)
     rr, low, high = (rows[c].to_numpy(dtype=float) for c in _NEEDED)
@@ -233,8 +250,12 @@ def _pooled_rows(ax: Any, pooled: Mapping[str, Any], dec: int, weighted: bool) -
 
 
 def _heterogeneity_text(p: Mapping[str, Any]) -> str:
-    q_p = "<0.001" if p["q_p"] < 0.001 else f"{p['q_p']:.3f}"
-    return f"Heterogeneity: I² = {p['i2']:.1f}%, τ² = {p['tau2']:.3g}, Cochran's Q p = {q_p}"
+    """I² with one decimal, τ² (a variance of log-RR per unit, often about 1e-7) in fixed form with three
+    significant digits (``τ² = 0.000000177``, never ``1.77e-07``), Cochran's Q p by :func:`format_p`."""
+    return (
+        f"Heterogeneity: I² = {format_decimal(p['i2'], 1)}%, τ² = {format_coef(p['tau2'], 3)}, "
+        f"Cochran's Q p = {format_p(p['q_p'])}"
+    )
 
 
 def forest_figure(
@@ -242,16 +263,19 @@ def forest_figure(
     label: str = "city",
     weight: str | None = "weight_percent",
     labels: Mapping[str, str] | None = None,
-    xlabel: str = "relative risk per 10 units (log scale)",
+    xlabel: str | None = None,
     level: float = 0.95,
 ) -> Any:
     """Several forest panels (title → (rows, pooled or None)) in one figure, sharing one x-scale.
+
+    ``xlabel`` defaults to the label :func:`plot_forest` takes from the first panel's ``per`` and ``unit``.
 
     Returns the matplotlib Figure; its Axes are ``figure.axes`` in the order of ``panels``.
     """
     if not panels:
         return nothing_to_plot(new_figure((6.5, 2.0)), "nothing to plot: no panels").figure
     limits = rr_limits(*(t for t, _ in panels.values()), pooled=[p for _, p in panels.values() if p])
+    xlabel = _default_xlabel(next(iter(panels.values()))[0]) if xlabel is None else xlabel
     heights = [len(t) + (4 if p else 1) + 1.5 for t, p in panels.values()]
     with house_style():
         from matplotlib.figure import Figure as MplFigure

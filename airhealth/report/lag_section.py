@@ -25,6 +25,7 @@ from ..model.fitting import fit
 from ..model.lag_predictions import minimum_risk_exposure
 from ..studies.compare import compare_results
 from .document import Figure, Section, Table, Text
+from .labels import Labels, display_name
 from .lag_plots import plot_exposure_lag_surface, plot_exposure_response, plot_lag_response
 from .numbers import format_rr
 from .tables import effects_table, format_effects
@@ -101,6 +102,7 @@ def lag_structure_section(
     distributed: Sequence[Any] = DISTRIBUTED_LAGS,
     temperature_term: ExposureLagTerm | None = None,
     per: float = 10.0,
+    labels: Labels | None = None,
     **model_options: Any,
 ) -> Section:
     """Build the lag-structure section of a report for one outcome and pollutant.
@@ -120,6 +122,8 @@ def lag_structure_section(
         4 df on the ``temperature`` option's column. Omitted when no temperature column is given.
     per : float
         Exposure increase for the relative risks.
+    labels : mapping, optional
+        Display names of the outcome and exposure columns for titles and captions.
     **model_options
         Other :class:`~airhealth.model.spec.ModelSpec` options (``temperature``, ``trend_df_per_year``, ...).
 
@@ -131,23 +135,26 @@ def lag_structure_section(
     """
     fits = compare_results(data, [*single_lags, *distributed], outcome=outcome, exposure=exposure, **model_options)
     single, dist = fits[: len(single_lags)], fits[len(single_lags) :]
+    unit = fits[0].spec.unit
+    outcome_name, exposure_name = display_name(outcome, labels), display_name(exposure, labels)
     blocks: list[Any] = [
         Text(_INTRO),
         Table(
-            f"{outcome} and {exposure}: relative risk per {per:g} units by lag structure",
+            f"{outcome_name} and {exposure_name}: relative risk per {per:g} {unit} by lag structure",
             _structure_table(single, dist, per),
             "lag_structures",
             note="Distributed lags show the cumulative effect over all their lags.",
         ),
     ]
     if dist:
-        blocks.append(Table("Per-lag effects of the distributed lags", _per_lag_table(dist, per), "lag_effects"))
+        title = f"Per-lag effects of the distributed lags of {exposure_name} on {outcome_name} (RR per {per:g} {unit})"
+        blocks.append(Table(title, _per_lag_table(dist, per), "lag_effects"))
     for result in dist:
         ax = plot_lag_response(result, per=per)
         name = f"lag_response_{result.spec.lag.label}"  # made a safe file name by the writer
         blocks.append(
             Figure(
-                f"{exposure}: relative risk per {per:g} {result.spec.unit} at each lag, {result.spec.lag.label}",
+                f"{exposure_name}: relative risk per {per:g} {result.spec.unit} at each lag, {result.spec.lag.label}",
                 ax.figure,
                 name,
             )

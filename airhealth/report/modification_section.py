@@ -24,6 +24,7 @@ import pandas as pd
 
 from ..errors import SpecificationError
 from .document import Section, Table, Text
+from .numbers import IntervalStyle, format_decimal, format_p, format_rr, rr_decimals
 
 __all__ = ["copollutant_section", "group_effects_html", "group_effects_section", "modification_section"]
 
@@ -42,9 +43,11 @@ _GROUP_TEXT = (
 )
 
 
-def _rr_text(table: pd.DataFrame, digits: int = 3) -> list[str]:
+def _rr_text(table: pd.DataFrame, style: IntervalStyle = "to") -> list[str]:
+    """The column of relative risks (CI) by the report's one rule (:mod:`airhealth.report.numbers`)."""
+    places = rr_decimals(table["rr_low"], table["rr_high"])
     return [
-        f"{r:.{digits}f} ({lo:.{digits}f} to {hi:.{digits}f})"
+        format_rr(r, lo, hi, places, style)
         for r, lo, hi in zip(table["rr"], table["rr_low"], table["rr_high"], strict=True)
     ]
 
@@ -68,8 +71,8 @@ def copollutant_section(
             "adjusted for": [("none (single pollutant)" if pd.isna(a) else str(a)) for a in table["adjusted_for"]],
             "lag": table["lag"],
             f"RR per {per:g} {unit} (95% CI)": _rr_text(table),
-            "p": table["p_value"].map(lambda v: f"{v:.3g}"),
-            "correlation with exposure": table["correlation"].map(lambda v: "" if pd.isna(v) else f"{v:.2f}"),
+            "p": table["p_value"].map(format_p),
+            "correlation with exposure": table["correlation"].map(lambda v: format_decimal(v, 2)),
             "days": table["n_days"],
         }
     )
@@ -93,11 +96,11 @@ def group_effects_section(result: Any, per: float = 10.0, level: float = 0.95, t
         {
             spec.modifier: table["group"].map(str),
             f"RR per {per:g} {spec.unit} ({pct} CI)": _rr_text(table),
-            "p": table["p_value"].map(lambda v: f"{v:.3g}"),
+            "p": table["p_value"].map(format_p),
             "days": table["n_days"],
         }
     )
-    test_text = f"chi-square {test['statistic']:.2f} on {test['df']} df, p = {test['p_value']:.3g}"
+    test_text = f"chi-square {format_decimal(test['statistic'], 2)} on {test['df']} df, p = {format_p(test['p_value'])}"
     note = f"{spec.outcome}, {spec.exposure} at lag {spec.lag.label}; test of equal effects: {test_text}."
     return Section(
         title or f"Effect modification by {spec.modifier}",
@@ -115,7 +118,8 @@ def group_effects_html(result: Any, per: float = 10.0) -> str:
     test = result.modification_test()
     caption = html.escape(
         f"{spec.outcome} ~ {spec.exposure} lag {spec.lag.label} by {spec.modifier}: RR per {per:g} {spec.unit}; "
-        f"equal effects: Wald chi-square {test['statistic']:.3f} on {test['df']} df, p = {test['p_value']:.3g}"
+        f"equal effects: Wald chi-square {format_decimal(test['statistic'], 2)} on {test['df']} df, "
+        f"p = {format_p(test['p_value'])}"
     )
     return f"<p>{caption}</p>" + table.to_html(index=False, escape=True, float_format=lambda v: f"{v:.4g}")
 

@@ -4,12 +4,16 @@ Every table view, page and figure label of the report formats its numbers throug
 one convention holds everywhere (full precision stays in the data frames and the CSV files):
 
 - **Relative risks** get a fixed number of decimals chosen from the width of their interval
-  (:func:`rr_decimals`): the first significant digit of the width, plus one more, between 2 and 4 decimals.
-  ``1.008 (0.999 to 1.017)`` (width 0.018: 3 decimals), ``1.08 (0.99 to 1.17)`` (width 0.18: 2 decimals).
+  (:func:`rr_decimals`): the first significant digit of the width, plus one more, between 2 and 6 decimals.
+  ``1.008 (0.999 to 1.017)`` (width 0.018: 3 decimals), ``1.08 (0.99 to 1.17)`` (width 0.18: 2 decimals);
+  a very narrow interval (width 0.00005) gets 6, so its bounds never print alike (``1.0000 (1.0000 to
+  1.0000)`` would hide the interval).
   Within one table column every row gets the same number of decimals (the largest its rows need), so the
   decimal points line up. The interval style is chosen by the user (:data:`IntervalStyle`).
 - **Percent change** follows the same rule on the width of its interval, between 1 and 3 decimals.
-- **p-values**: two significant digits; below 0.001 written ``<0.001``.
+- **p-values**: two significant digits; below 0.001 written ``<0.001``. Rounding never carries a p-value
+  across 0.05: a value in [0.0495, 0.05) is written ``<0.05`` (``0.050`` would read as not below 0.05),
+  from 0.05 on the usual ``0.050``. A missing p (NaN) is empty; a p below 0 or above 1 is an error.
 - **Counts** are whole numbers with thousands separators (``179,300``), never in scientific notation.
 - **Coefficients per unit** (log relative risk per unit of exposure, about 1e-4) in a fixed form with four
   significant digits (``0.00009709``), never ``9.709e-05``.
@@ -28,8 +32,10 @@ from collections.abc import Iterable
 from typing import Any, Literal
 
 from .._choices import check_choice
+from ..errors import SpecificationError
 
 __all__ = [
+    "RR_MAX_DECIMALS",
     "IntervalStyle",
     "format_coef",
     "format_count",
@@ -49,6 +55,9 @@ IntervalStyle = Literal["to", "brackets", "dash"]
 ``to`` instead when a bound is negative, since a dash before a minus sign reads as a range of negatives)."""
 
 _MISSING = ""
+RR_MAX_DECIMALS = 6
+"""The most decimals a relative risk gets (an interval narrower than 1e-5 still prints at 6)."""
+_P_SLACK = 1e-9  # p-values computed as 2 * (1 - cdf) may exceed 1 by rounding error; more than this is an error
 
 
 def _missing(value: Any) -> bool:
@@ -71,13 +80,14 @@ def rr_decimals(low: float | Iterable[float], high: float | Iterable[float]) -> 
     """Decimals for relative risks whose intervals run from ``low`` to ``high`` (scalars or one per row).
 
     The rule: the decimal place of the first significant digit of the interval width, plus one, between
-    2 and 4 (width 0.018 → 3 decimals; 0.18 → 2; 0.0018 → 4). For several rows, the largest count any
+    2 and 6 (width 0.018 → 3 decimals; 0.18 → 2; 0.0018 → 4; 0.00005 → 6, so the bounds of a very
+    narrow interval still differ in print). For several rows, the largest count any
     row needs, so a column shares one number of decimals (missing rows are ignored).
     """
     lows = [low] if not isinstance(low, Iterable) else list(low)
     highs = [high] if not isinstance(high, Iterable) else list(high)
     needs = [
-        _decimals_for_width(float(h) - float(lo), 2, 4)
+        _decimals_for_width(float(h) - float(lo), 2, RR_MAX_DECIMALS)
         for lo, h in zip(lows, highs, strict=True)
         if not (_missing(lo) or _missing(h))
     ]
@@ -148,19 +158,35 @@ def format_percent_change(
 
 
 def format_p(p: float) -> str:
-    """A p-value: ``<0.001`` below 0.001, else two significant digits (``0.012``, ``0.050``, ``0.43``).
+    """A p-value: ``<0.001`` below 0.001, ``<0.05`` in [0.0495, 0.05), else two significant digits.
+
+    Rounding to two significant digits must not carry a value below 0.05 up to ``0.050``, so the few
+    values that would are written ``<0.05`` instead. Missing (``None``, NaN) gives an empty string.
+
+    Raises
+    ------
+    SpecificationError
+        If ``p`` is below 0 or above 1 (it is not a p-value).
 
     Examples
     --------
-    >>> [format_p(v) for v in (0.0004, 0.0123, 0.05, 0.0999, 0.431, 1.0)]
-    ['<0.001', '0.012', '0.050', '0.10', '0.43', '1.0']
+    >>> [format_p(v) for v in (0.0004, 0.0123, 0.0499999, 0.05, 0.0999, 0.431, 1.0)]
+    ['<0.001', '0.012', '<0.05', '0.050', '0.10', '0.43', '1.0']
     """
     if _missing(p):
         return _MISSING
     p = float(p)
+    if not -_P_SLACK <= p <= 1 + _P_SLACK:
+        raise SpecificationError(
+            f"format_p got {p!r}, which is not a p-value (it must lie between 0 and 1); "
+            "pass the p_value column of a result table."
+        )
+    p = min(max(p, 0.0), 1.0)
     if p < 0.001:
         return "<0.001"
     rounded = float(f"{p:.2g}")
+    if p < 0.05 <= rounded:
+        return "<0.05"
     decimals = max(1, 1 - math.floor(math.log10(rounded)))
     return f"{rounded:.{decimals}f}"
 

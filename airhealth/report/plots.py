@@ -8,6 +8,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from .document import Figure
+from .labels import Labels, display_name
 from .style import DATA, ESTIMATE, draw_band, draw_no_effect_line, integer_lags, new_figure, styled
 from .suppression import counts_for_figure
 
@@ -31,15 +32,17 @@ def plain(text: object) -> str:
 
 
 @styled
-def plot_observed_fitted(result: Any, ax: Any = None, suppress_below: int | None = None) -> Any:
-    """Observed daily counts (points) and fitted means (line) over time.
+def plot_observed_fitted(
+    result: Any, ax: Any = None, suppress_below: int | None = None, labels: Labels | None = None
+) -> Any:
+    """Observed daily counts (points) and fitted means (line) over time (the outcome shown by its label).
 
     With ``suppress_below`` the small-count rule of :mod:`airhealth.report.suppression` decides what is
     drawn: daily values, weekly or monthly totals of both series, or the fitted totals alone.
     """
     ax = new_axes(ax, (9, 3.5))
     shown = counts_for_figure(result.observed, suppress_below, alongside=result.fitted)
-    outcome = plain(result.spec.outcome)
+    outcome = plain(display_name(result.spec.outcome, labels))
     if shown.resolution != "omitted":
         marker = {"ms": 2} if shown.resolution == "daily" else {"ms": 3}
         ax.plot(shown.observed.index, shown.observed.to_numpy(), ".", color=DATA, label="observed", **marker)
@@ -54,13 +57,17 @@ def plot_observed_fitted(result: Any, ax: Any = None, suppress_below: int | None
     return ax
 
 
-def observed_fitted_figure(result: Any, suppress_below: int | None = None, name: str = "observed_fitted") -> Figure:
-    """The report block of :func:`plot_observed_fitted`, its note saying which counts are shown and why."""
+def observed_fitted_figure(
+    result: Any, suppress_below: int | None = None, name: str = "observed_fitted", labels: Labels | None = None
+) -> Figure:
+    """The report block of :func:`plot_observed_fitted`, its note saying which counts are shown and why;
+    outcome and exposure are named by their ``labels`` (display names)."""
     shown = counts_for_figure(result.observed, suppress_below)
     spec = result.spec
     what = "Fitted" if shown.resolution == "omitted" else "Observed and fitted"
-    title = f"{what} {_PER[shown.resolution]} {spec.outcome} ({spec.exposure}, lag {spec.lag.label})"
-    ax = plot_observed_fitted(result, suppress_below=suppress_below)
+    outcome, exposure = (display_name(v, labels) for v in (spec.outcome, spec.exposure))
+    title = f"{what} {_PER[shown.resolution]} {outcome} ({exposure}, lag {spec.lag.label})"
+    ax = plot_observed_fitted(result, suppress_below=suppress_below, labels=labels)
     return Figure(title, ax.figure, name, note=shown.note or None)
 
 

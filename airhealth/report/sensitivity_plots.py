@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from .document import CAUTION, Figure, Section, Table, Text
+from .numbers import format_p, format_rr, rr_decimals
 from .plots import new_axes, plain
 
 __all__ = ["CHECK_LABELS", "plot_sensitivity", "sensitivity_section", "setting_labels"]
@@ -90,17 +91,19 @@ def plot_sensitivity(table: pd.DataFrame, level: float = 0.95, ax: Any = None) -
 
 
 def _display_table(table: pd.DataFrame, level: float) -> pd.DataFrame:
+    places = rr_decimals(table["rr_low"], table["rr_high"])
+
     def interval(r: Any) -> str:
         if not np.isfinite(r.rr):
             return "not estimable"
-        return f"{r.rr:.4f} ({r.rr_low:.4f} to {r.rr_high:.4f})"
+        return format_rr(r.rr, r.rr_low, r.rr_high, places)
 
     return pd.DataFrame({
         "check": [CHECK_LABELS.get(c, c) for c in table["check"]],
         "setting": table["setting"],
         "main model": np.where(table["is_main"], "yes", ""),
         f"RR per {_per_label(table)} ({level:.0%} CI)": [interval(r) for r in table.itertuples()],
-        "p": table["p_value"].map(lambda v: "" if pd.isna(v) else f"{v:.3g}"),
+        "p": table["p_value"].map(format_p),
         "QAIC": table["qaic"].map(lambda v: "" if pd.isna(v) else f"{v:.1f}"),
         "days used": table["n_days"].map(lambda v: "" if pd.isna(v) else f"{int(v)}"),
         "days left out": table["n_excluded"],

@@ -90,6 +90,18 @@ def _per_text(table: pd.DataFrame, column: str) -> list[str]:
     return [f"{format_number(v)} {u}".strip() for v, u in zip(table[column], units, strict=True)]
 
 
+def _row_pair_decimals(table: pd.DataFrame, has_iqr: bool) -> int:
+    """One number of decimals for the RR column and, when shown, the RR per IQR column beside it.
+
+    Both columns are the same kind of number in one row, so they share the decimals the narrowest of
+    their intervals needs (:func:`~airhealth.report.numbers.rr_decimals`).
+    """
+    places = rr_decimals(table["rr_low"], table["rr_high"])
+    if has_iqr:
+        places = max(places, rr_decimals(table["rr_iqr_low"], table["rr_iqr_high"]))
+    return places
+
+
 def format_effects(
     table: pd.DataFrame,
     digits: int | None = None,
@@ -122,7 +134,8 @@ def format_effects(
         out["lag"] = table["lag"]
     if "per" in table:
         out["per"] = _per_text(table, "per")
-    places = rr_decimals(table["rr_low"], table["rr_high"]) if digits is None else digits
+    has_iqr = "exposure_iqr" in table and "rr_iqr" in table
+    places = _row_pair_decimals(table, has_iqr) if digits is None else digits
     out[f"RR ({ci})"] = [
         format_rr(r, lo, hi, places, style)
         for r, lo, hi in zip(table["rr"], table["rr_low"], table["rr_high"], strict=True)
@@ -130,11 +143,10 @@ def format_effects(
     pct = [(table[c].to_numpy(dtype=float) - 1) * 100 for c in ("rr", "rr_low", "rr_high")]
     pct_places = percent_decimals(pct[1], pct[2])
     out[f"% change ({ci})"] = [format_percent_change(*v, pct_places, style) for v in zip(*pct, strict=True)]
-    if "exposure_iqr" in table and "rr_iqr" in table:
+    if has_iqr:
         out["IQR"] = _per_text(table, "exposure_iqr")
-        iqr_places = rr_decimals(table["rr_iqr_low"], table["rr_iqr_high"]) if digits is None else digits
         out[f"RR per IQR ({ci})"] = [
-            format_rr(r, lo, hi, iqr_places, style)
+            format_rr(r, lo, hi, places, style)
             for r, lo, hi in zip(table["rr_iqr"], table["rr_iqr_low"], table["rr_iqr_high"], strict=True)
         ]
     out["p"] = table["p_value"].map(format_p)

@@ -229,6 +229,12 @@ class Diagnostics:
         lines += [f"  [{r.status}] {r.finding}" for r in self._verdict.itertuples()]
         return "\n".join(lines)
 
+    def _repr_html_(self) -> str:
+        """Notebook view: verdict, dispersion and the largest autocorrelations (every text escaped)."""
+        from ..report.diagnostics_view import diagnostics_html
+
+        return diagnostics_html(self)
+
     def plot_autocorrelation(self, ax: Any = None) -> Any:
         """Residual ACF and PACF with the white-noise band; returns the Axes."""
         from ..report.diagnostic_plots import plot_residual_autocorrelation
