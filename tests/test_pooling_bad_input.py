@@ -104,7 +104,7 @@ def test_not_a_table_is_refused():
 
 def test_cities_whose_first_stage_failed_are_left_out_with_a_warning():
     table = cities().assign(error=["", "no events in the period", None, ""])
-    with pytest.warns(DataWarning, match=r"1 cities with a message in the 'error' column are left out .*: Eastport"):
+    with pytest.warns(DataWarning, match=r"1 city with a message in the 'error' column is left out .*: Eastport"):
         result = airhealth.pool(table)
     assert result.labels == ("Norhaven", "Millbrook", "Southvale")
     assert result.coef == pytest.approx(airhealth.pool(table.drop(index=1).drop(columns="error")).coef, rel=1e-12)

@@ -86,7 +86,8 @@ def _drop_failed(frame: pd.DataFrame, city: str) -> pd.DataFrame:
         names = frame[city].astype(str).tolist() if city in frame.columns else [f"row {i}" for i in range(len(frame))]
         left_out = [names[i] for i in np.flatnonzero(failed)]
         warn_user(
-            f"{len(left_out)} cities with a message in the 'error' column are left out of the pooling: "
+            f"{len(left_out)} {'city' if len(left_out) == 1 else 'cities'} with a message in the 'error' column "
+            f"{'is' if len(left_out) == 1 else 'are'} left out of the pooling: "
             f"{', '.join(left_out[:5])}{' ...' if len(left_out) > 5 else ''}.",
             DataWarning,
         )
