@@ -62,7 +62,7 @@ def fit_with_residual_lags(design: Design, spec: ModelSpec, start: np.ndarray | 
 
     References
     ----------
-    Brumback BA, Ryan LM, Schwartz JD, Neas LM, Stark PC, Burge HA (2000). Transitional regression models,
+    Brumback BA, Ryan LM, Schwartz JD, Neas LM, Gold DR (2000). Transitional regression models,
     with application to environmental time series. J Am Stat Assoc 95:16–27.
     """
     glm = fit_design(design, spec, start=start)

@@ -219,7 +219,7 @@ class ModelSpec:
     conditional logistic case cross-over analysis. BMC Med Res Methodol 14:122.
     Janes H, Sheppard L, Lumley T (2005). Case-crossover analyses of air pollution exposure data: referent
     selection strategies and their implications for bias. Epidemiology 16:717–726.
-    Brumback BA, Ryan LM, Schwartz JD, Neas LM, Stark PC, Burge HA (2000). Transitional regression models,
+    Brumback BA, Ryan LM, Schwartz JD, Neas LM, Gold DR (2000). Transitional regression models,
     with application to environmental time series. J Am Stat Assoc 95:16–27.
     """
 
