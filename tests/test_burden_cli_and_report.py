@@ -216,3 +216,17 @@ def test_pollutant_option_is_checked_against_the_preset(sample_csv: Path, capsys
     assert main(args) == 2
     assert "preset 'who-guideline:o3:8h' is for O3, but the exposure 'pm25' is PM2.5" in capsys.readouterr().err
     assert main([*args, "--pollutant", "o3", "--json"]) == 0
+
+
+@pytest.mark.parametrize("flag", ["--out", "--report"])
+def test_an_output_folder_that_is_a_file_exits_2_naming_it(
+    sample_csv: Path, tmp_path: Path, capsys: pytest.CaptureFixture, flag: str
+) -> None:
+    # before, --out onto an existing file ended in a raw FileExistsError traceback after the fit
+    taken = tmp_path / "taken.csv"
+    taken.write_text("keep me\n", encoding="utf-8")
+    base = ["burden", str(sample_csv), "--outcome", "deaths_all", "--exposure", "pm25", "--counterfactual", "15"]
+    assert main([*base, "--coef", "0.001", "--se", "0.0005", flag, str(taken / "sub")]) == 2
+    err = capsys.readouterr().err
+    assert f"{flag} '{taken / 'sub'}': '{taken}' is an existing file, but {flag} takes a folder" in err
+    assert "Traceback" not in err and taken.read_text(encoding="utf-8") == "keep me\n"

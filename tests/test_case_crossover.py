@@ -189,6 +189,8 @@ def test_time_spline_options_with_case_crossover_are_refused(three_years, option
         ({"family": "negbin"}, "not family='negbin'"),
         ({"interval": "hac"}, "interval='hac' is not available with design='case-crossover'"),
         ({"overdispersion": "off"}, "overdispersion must be True or False, got 'off'"),
+        # was an internal "strata has shape ... but the design matrix has ... rows" after the first fit
+        ({"residual_lags": 2}, "residual_lags=2 is not available with design='case-crossover'; leave it at 0"),
     ],
 )
 def test_options_the_case_crossover_cannot_honour_are_refused(three_years, option, expected):

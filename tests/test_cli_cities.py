@@ -139,3 +139,15 @@ def test_pool_with_a_moderator_equals_python_meta_regression(tmp_path, capsys):
     for key in ("qm", "qm_p", "tau2", "q"):
         assert record[key] == pytest.approx(python[key], rel=1e-15), key  # same numbers through JSON
     assert record["moderators"] == ["mean_temp"]
+
+
+def test_fit_cities_where_no_city_fits_exits_2_with_the_first_message(folder, tmp_path, capsys):
+    # before, exit 0 with "0 of 5 cities fitted": a script could not tell that nothing was estimated
+    out = tmp_path / "none.csv"
+    argv = ["fit-cities", str(folder), "--outcome", "deaths", "--exposure", "no_such_column", "--quiet"]
+    assert main([*argv, "--out", str(out)]) == 2
+    line = one_line_error(capsys, "fit-cities")
+    assert "none of the 5 cities could be fitted; first, " in line
+    assert "column 'no_such_column' does not exist in data" in line
+    assert line.endswith(f"Every city's message is in the 'error' column of {out}.")
+    assert (pd.read_csv(out, keep_default_na=False)["error"] != "").all()  # the table is still written

@@ -26,6 +26,18 @@ def test_fewer_than_two_cities_is_refused():
         airhealth.pool(cities().iloc[:1])
 
 
+def test_too_few_cities_names_those_left_out_for_a_first_stage_error():
+    # before, the refusal named only the usable city and the reason the other vanished was lost on the CLI
+    table = cities().iloc[:2].assign(error=["", "too few usable days (12) for a model with 40 parameters"])
+    with pytest.warns(DataWarning, match="1 city with a message in the 'error' column is left out"):
+        with pytest.raises(DataError) as caught:
+            airhealth.pool(table)
+    assert str(caught.value) == (
+        "pooling needs at least two usable cities; got 1 (Norhaven). Left out for a message in the 'error' "
+        "column: Eastport (read it there: fix that city's data or model options and fit it again)."
+    )
+
+
 @pytest.mark.parametrize("bad", [0.0, -0.0003, np.nan, np.inf])
 def test_zero_negative_or_missing_standard_error_names_the_city_and_value(bad):
     table = cities()

@@ -304,3 +304,16 @@ def test_pool_report_into_a_file_exits_2(estimates_csv: Path, tmp_path: Path, ca
     assert main(["pool", str(estimates_csv), "--report", str(target)]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "the report goes into a folder, but" in err and "taken.txt" in err
+
+
+def test_an_analysis_failing_on_the_data_is_reported_and_the_rest_completes(city: pd.DataFrame) -> None:
+    # a robustness lag of 1450 days leaves too few usable days (a DataError), which
+    # before stopped the whole report with no page written
+    with pytest.warns(airhealth.DataWarning, match="The analysis 'robustness' could not be completed: too few"):
+        content = report_content(city, ["deaths_all"], ["pm25"], ["0-1", "0-1450"], robustness=True,
+                                 burden=WHO_PM25_24H, **OPTIONS)  # fmt: skip
+    titles = _titles(content)
+    assert "Not completed: robustness" in titles and "Attributable burden" in titles
+    failed = next(s for s in content.sections if s.title == "Not completed: robustness")
+    texts = " ".join(b.text for b in failed.blocks if isinstance(b, Text))
+    assert "(deaths_all, pm25, lag 0-1)" in texts and "too few usable days" in texts

@@ -94,6 +94,18 @@ def _drop_failed(frame: pd.DataFrame, city: str) -> pd.DataFrame:
     return frame.loc[~failed]
 
 
+def _failed_note(estimates: pd.DataFrame, kept: pd.DataFrame, city: str) -> str:
+    """Why cities are missing from a too-short table: those left out for a message in the 'error' column."""
+    failed = estimates.loc[~estimates.index.isin(kept.index)]
+    if failed.empty:
+        return ""
+    names = failed[city].astype(str).tolist() if city in failed.columns else [f"{len(failed)} rows"]
+    return (
+        f" Left out for a message in the 'error' column: {', '.join(names[:5])}{' ...' if len(names) > 5 else ''}"
+        " (read it there: fix that city's data or model options and fit it again)."
+    )
+
+
 def read_estimates(
     estimates: Any, estimate: str, se: str, moderators: Sequence[str] | None, city: str = "city"
 ) -> CityEstimates:
@@ -128,7 +140,10 @@ def read_estimates(
         )
     X, terms = _design(frame, labels, moderators)
     if len(y) < 2:
-        raise DataError(f"pooling needs at least two usable cities; got {len(y)} ({', '.join(labels) or 'none'}).")
+        raise DataError(
+            f"pooling needs at least two usable cities; got {len(y)} ({', '.join(labels) or 'none'})."
+            + _failed_note(estimates, frame, city)
+        )
     if len(y) <= X.shape[1]:
         raise DataError(
             f"{len(y)} cities cannot estimate {X.shape[1]} coefficients ({', '.join(terms)}); "

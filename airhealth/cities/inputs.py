@@ -170,8 +170,9 @@ def _from_mapping(cities: Mapping[Any, Any]) -> list[CityTask]:
 def _require_city_column(columns: Sequence[Any], city: str | None, what: str) -> str:
     if city is None:
         raise SpecificationError(
-            f"{what} holds several cities in one table: name its city column, e.g. city='city' "
-            f"(its columns are {[str(c) for c in columns]})."
+            f"{what} is read as one table of several cities: name its city column, e.g. city='city' "
+            f"(on the command line --city COL; its columns are {[str(c) for c in columns]}), or give a folder "
+            "with one CSV file per city."
         )
     if city not in columns:
         raise DataError(

@@ -104,6 +104,20 @@ def _required(args: argparse.Namespace) -> None:
     if (args.coef is None) != (args.se is None):
         given, absent = ("--coef", "--se") if args.se is None else ("--se", "--coef")
         raise SpecificationError(f"{given} needs {absent}: a coefficient without its standard error gives no interval.")
+    for flag, folder in (("--out", args.out), ("--report", args.report)):
+        _check_folder(flag, folder)
+
+
+def _check_folder(flag: str, folder: Path | None) -> None:
+    """Refuse, before any fitting, an output folder that is (or lies inside) an existing file."""
+    if folder is None:
+        return
+    for path in (folder, *folder.parents):
+        if path.exists() and not path.is_dir():
+            raise SpecificationError(
+                f"{flag} {str(folder)!r}: {str(path)!r} is an existing file, but {flag} takes a folder; "
+                "give a new or existing folder path."
+            )
 
 
 def _compute(args: argparse.Namespace, level: float) -> Any:

@@ -17,6 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from .._io import write_text, write_with
+from ..errors import FitError
 from .options import (
     add_lag_option,
     add_model_options,
@@ -122,5 +123,11 @@ def run(args: argparse.Namespace) -> int:
     sidecar = args.out.with_suffix(".json")
     write_text(sidecar, json.dumps(meta, indent=2) + "\n", make_parents=False)
     fitted = int((table["error"] == "").sum())
+    if fitted == 0:
+        first = table.iloc[0]
+        raise FitError(
+            f"none of the {len(table)} cities could be fitted; first, {first['city']}: {first['error']} "
+            f"Every city's message is in the 'error' column of {args.out}."
+        )
     print(f"{fitted} of {len(table)} cities fitted; estimates written to {args.out} (model in {sidecar.name})")
     return 0

@@ -385,6 +385,11 @@ class ModelSpec:
                 f"interval={self.interval!r} is not available with design='case-crossover'; use the default "
                 "interval='quasi-poisson'."
             )
+        if self.residual_lags:
+            raise SpecificationError(
+                f"residual_lags={self.residual_lags} is not available with design='case-crossover'; leave it at 0 "
+                "(none), or use design='time-series' to adjust for lagged residuals."
+            )
 
     def _check_roles(self) -> None:
         """The exposure and outcome must not also enter the model as confounders."""

@@ -24,7 +24,8 @@ from typing import Any
 
 import pandas as pd
 
-from ..errors import SpecificationError
+from .._warn import warn_user
+from ..errors import DataError, DataWarning, FitError, SpecificationError
 from .document import Figure, Section, Table, Text
 
 __all__ = ["ANALYSES", "Analyses", "analysis_sections", "check_analyses", "methods_text", "split_analyses"]
@@ -296,5 +297,21 @@ _BUILDERS = {
 
 
 def analysis_sections(analyses: Analyses, main_model: MainModel) -> list[Section]:
-    """One section per analysis asked for, in the order given (see the module's documentation)."""
-    return [_BUILDERS[name](main_model, value) for name, value in analyses.asked]
+    """One section per analysis asked for, in the order given (see the module's documentation).
+
+    An analysis that fails on the data (DataError or FitError, e.g. a robustness lag with too few days) gets a
+    section saying why, with a DataWarning, and the rest of the report completes; bad options were refused
+    earlier by :func:`check_analyses`.
+    """
+    return [_one_section(name, value, main_model) for name, value in analyses.asked]
+
+
+def _one_section(name: str, value: Any, main_model: MainModel) -> Section:
+    try:
+        return _BUILDERS[name](main_model, value)
+    except (DataError, FitError) as error:
+        spec = main_model.main.spec
+        what = f"{ANALYSES[name]} ({spec.outcome}, {spec.exposure}, lag {spec.lag.label})"
+        message = f"The analysis '{name}' could not be completed: {error}"
+        warn_user(f"{message} The rest of the report was written.", DataWarning)
+        return Section(f"Not completed: {name.replace('_', ' ')}", [Text(f"Asked for: {what}."), Text(message)])
