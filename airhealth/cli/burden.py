@@ -19,7 +19,7 @@ from typing import Any
 from .. import _io
 from ..burden.simulation import DEFAULT_DRAWS, DEFAULT_SEED, MIN_DRAWS
 from ..errors import SpecificationError
-from .fit import _clean
+from .json_output import json_safe
 from .options import (
     DAILY_FILE_HELP,
     add_lag_option,
@@ -194,7 +194,7 @@ def run(args: argparse.Namespace) -> int:
         title = f"Attributable burden: {args.outcome} and {args.exposure}"
         write_html_report([section], args.report, title=title, small_count_threshold=args.suppress_below)
     if args.json:
-        print(json.dumps(_clean(result.to_dict()), indent=2))
+        print(json.dumps(json_safe(result.to_dict()), indent=2))
     else:
         _print(result)
     return 0

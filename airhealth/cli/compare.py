@@ -22,6 +22,7 @@ import pandas as pd
 from .._io import write_with
 from ..errors import SpecificationError
 from ..model.bases.lag_structures import LagStructure
+from .json_output import json_safe
 from .options import (
     DAILY_FILE_HELP,
     add_model_options,
@@ -163,18 +164,8 @@ def records(table: pd.DataFrame) -> list[dict[str, Any]]:
     keys = [k for k in (*JSON_KEYS, "hac_lags") if k in table.columns]
     out = []
     for row in table[keys].to_dict(orient="records"):
-        out.append({k: _plain(v) for k, v in row.items()})
+        out.append({k: json_safe(v) for k, v in row.items()})
     return out
-
-
-def _plain(value: Any) -> Any:
-    if isinstance(value, pd.Timestamp):
-        return value.strftime("%Y-%m-%d")
-    if hasattr(value, "item"):
-        value = value.item()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
 
 
 def format_table(table: pd.DataFrame, level: float) -> str:

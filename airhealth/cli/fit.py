@@ -4,12 +4,12 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import sys
 import warnings
 from pathlib import Path
 from typing import Any
 
+from .json_output import json_safe
 from .options import (
     DAILY_FILE_HELP,
     add_copollutant_options,
@@ -48,19 +48,6 @@ def register(sub: Any) -> None:
     add_design_options(p)
     add_reading_options(p)
     p.set_defaults(func=run)
-
-
-def _clean(value: Any) -> Any:
-    """JSON-safe values: NaN and infinities become null."""
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: _clean(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_clean(v) for v in value]
-    if hasattr(value, "item"):
-        return _clean(value.item())
-    return value
 
 
 def _fit(args: argparse.Namespace) -> Any:
@@ -108,7 +95,7 @@ def run(args: argparse.Namespace) -> int:
                 print(f"warning: {with_command_line_remedy(str(w.message))}", file=sys.stderr)
     record = result.to_dict(per=args.per, level=level)
     if args.json:
-        print(json.dumps(_clean(record), indent=2))
+        print(json.dumps(json_safe(record), indent=2))
     else:
         if labels:
             from ..report.labels import display_name

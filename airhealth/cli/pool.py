@@ -15,7 +15,7 @@ import warnings
 from pathlib import Path
 from typing import Any
 
-from .fit import _clean
+from .json_output import json_safe
 from .options import confidence_level
 from .remedies import with_command_line_remedy
 from .tables import read_table
@@ -105,7 +105,7 @@ def run(args: argparse.Namespace) -> int:
     record = _record(result, left_out)
     path = None if args.report is None else _write_report(args, frame, result, left_out)
     if args.json:
-        print(json.dumps(_clean(record), indent=2))
+        print(json.dumps(json_safe(record), indent=2))
         if path is not None:
             print(f"report written to {path}", file=sys.stderr)
         return 0

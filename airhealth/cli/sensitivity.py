@@ -19,7 +19,7 @@ import pandas as pd
 
 from .._io import write_with
 from ..errors import SpecificationError
-from .fit import _clean
+from .json_output import json_safe
 from .options import (
     add_model_options,
     add_reading_options,
@@ -156,7 +156,7 @@ def run(args: argparse.Namespace) -> int:
         figure = plot_sensitivity(table, level=level).figure
         write_with(args.figure, lambda tmp: figure.savefig(tmp, format="png", dpi=150), make_parents=False)
     if args.json:
-        print(json.dumps(_clean(table.to_dict(orient="records")), indent=2, ensure_ascii=False))
+        print(json.dumps(json_safe(table.to_dict(orient="records")), indent=2, ensure_ascii=False))
     else:
         print(table[SHOWN].to_string(index=False, float_format=lambda v: f"{v:.4f}"))
         print("Relative risks are associations, not proof of causation.")
