@@ -22,6 +22,18 @@ from ..model.design import Design
 EFFECT_FIELDS = ("per", "coef", "se", "rr", "rr_low", "rr_high", "p_value")
 
 
+def outcome_only_on(frame: pd.DataFrame, outcome: str, keep: np.ndarray) -> pd.DataFrame:
+    """A copy of a validated frame whose outcome is missing outside the days ``keep``.
+
+    The exposure, its lags and the confounder bases still see every day; only the days fitted change.
+    """
+    out = frame.copy()
+    values = out[outcome].astype(float)
+    values[~np.asarray(keep, dtype=bool)] = np.nan
+    out[outcome] = values
+    return out
+
+
 def restrict_to_days(design: Design, keep: np.ndarray, reason: str, matrix: bool = True) -> Design:
     """The design restricted to the calendar days ``keep`` (a subset of ``design.used``).
 

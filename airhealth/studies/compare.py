@@ -47,7 +47,7 @@ from ..model.fitting import fit_design, fitted_result, warn_if_suspicious
 from ..model.group_effects import require_one_effect
 from ..model.result import SUMMARY_COLUMNS, FitResult
 from ..model.spec import Interval, ModelSpec
-from ._rows import restrict_to_days
+from ._rows import outcome_only_on, restrict_to_days
 from .qaic import add_common_qaic
 
 __all__ = ["compare", "compare_results"]
@@ -118,15 +118,8 @@ def _setup(data: pd.DataFrame, lags: Sequence[Any], model_options: dict[str, Any
 def _on_days(grid: _Grid, keep: np.ndarray) -> _Grid:
     """The grid on the days ``keep`` only (a case-crossover is rebuilt: the days used decide its strata)."""
     if grid.specs[0].design == "case-crossover":
-        return _grid(_outcome_on(grid.frame, grid.specs[0].outcome, keep), grid.specs)
+        return _grid(outcome_only_on(grid.frame, grid.specs[0].outcome, keep), grid.specs)
     return _restricted(grid, keep)
-
-
-def _outcome_on(frame: pd.DataFrame, outcome: str, keep: np.ndarray) -> pd.DataFrame:
-    """A copy of ``frame`` whose outcome is missing outside the days ``keep`` (the lags still see every day)."""
-    out = frame.copy()
-    out[outcome] = out[outcome].where(keep)
-    return out
 
 
 def _frame(data: pd.DataFrame, specs: Sequence[ModelSpec]) -> pd.DataFrame:

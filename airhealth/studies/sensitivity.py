@@ -50,6 +50,7 @@ from ..model.result import FitResult
 from ..model.spec import ModelSpec
 from ..prep.align import restrict_period
 from ..prep.lags import lag_matrix
+from ._rows import outcome_only_on
 from .sweep import sweep_results
 
 __all__ = ["DEFAULT_TIME_DF", "SENSITIVITY_COLUMNS", "default_checks", "sensitivity"]
@@ -167,22 +168,13 @@ def _exposure_as_entered(frame: pd.DataFrame, spec: ModelSpec) -> np.ndarray:
     return highest
 
 
-def _without_days(frame: pd.DataFrame, spec: ModelSpec, drop: np.ndarray) -> pd.DataFrame:
-    """The validated frame with the outcome missing on ``drop`` (a copy; the caller's data are untouched)."""
-    out = frame.copy()
-    outcome = out[spec.outcome].astype(float)
-    outcome[drop] = np.nan
-    out[spec.outcome] = outcome
-    return out
-
-
 def _fit_without(
     check: str, setting: str, frame: pd.DataFrame, main: FitResult, drop: np.ndarray, per: float, level: float
 ) -> dict:
     """The main model on the days not in ``drop``; a failure keeps the row with its message."""
     spec = main.spec if main.spec.date_format is None else main.spec.replace(date_format=None)  # dates parsed
     try:
-        result = fit_spec(_without_days(frame, main.spec, drop), spec)
+        result = fit_spec(outcome_only_on(frame, main.spec.outcome, ~drop), spec)
     except AirhealthError as error:
         row = _error_row(check, setting, main, per, error)
     else:
